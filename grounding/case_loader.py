@@ -1,0 +1,382 @@
+"""Load a YAML case file (format 1) and validate it into a :class:`grounding.case.Case`.
+
+Every problem is reported as a :class:`grounding.errors.CaseError` naming the file, the line,
+the key path, what is wrong and what would be right.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import math
+from pathlib import Path
+from typing import Any
+
+import yaml
+
+from .case import (
+    Case,
+    Conductor,
+    Criteria,
+    Discretization,
+    Electrodes,
+    Fault,
+    Grid,
+    Layer,
+    Rod,
+    Soil,
+    SurfaceLayer,
+    SurfaceMap,
+)
+from .errors import CaseError
+from .materials import MATERIALS
+
+SUPPORTED_FORMATS = (1,)
+#: A diameter at or above this (m) is taken for millimetres given as metres.
+MM_SUSPECT_DIAMETER = 0.25
+
+
+def load_case(path: str | Path) -> Case:
+    """Read and validate a case file.
+
+    Parameters
+    ----------
+    path : str or Path
+        YAML case file.
+
+    Returns
+    -------
+    Case
+        The validated, immutable case.
+
+    Raises
+    ------
+    CaseError
+        On any problem with the file, located by line and key path.
+    """
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise CaseError(str(path), None, "", "file not found; give the path of a YAML case file") from None
+    except OSError as exc:
+        raise CaseError(str(path), None, "", f"cannot be read ({exc.strerror}); check the path and permissions") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise CaseError(str(path), None, "", "is not UTF-8 text; save the case file as UTF-8 YAML") from None
+    return parse_case(text, file=str(path), sha256=hashlib.sha256(raw).hexdigest())
+
+
+def parse_case(text: str, file: str = "<case>", sha256: str = "") -> Case:
+    """Validate case-file text (YAML) into a :class:`Case`; ``file`` is used in messages only."""
+    doc = _Document.parse(text, file)
+    return _CaseReader(doc).read(sha256 or hashlib.sha256(text.encode("utf-8")).hexdigest())
+
+
+class _Document:
+    """Parsed YAML with the line of every key path."""
+
+    def __init__(self, file: str, data: Any, lines: dict[str, int]):
+        self.file = file
+        self.data = data
+        self.lines = lines
+
+    @classmethod
+    def parse(cls, text: str, file: str) -> "_Document":
+        try:
+            node = yaml.compose(text, Loader=yaml.SafeLoader)
+            data = yaml.safe_load(text)
+        except yaml.MarkedYAMLError as exc:
+            mark = exc.problem_mark or exc.context_mark
+            line = mark.line + 1 if mark else None
+            problem = exc.problem or "is not valid YAML"
+            raise CaseError(file, line, "", f"YAML syntax error: {problem}; check indentation, colons and brackets") from None
+        except yaml.YAMLError as exc:
+            raise CaseError(file, None, "", f"YAML error: {exc}") from None
+        lines: dict[str, int] = {}
+        if node is not None:
+            cls._index(node, "", lines)
+        return cls(file, data, lines)
+
+    @classmethod
+    def _index(cls, node: yaml.Node, path: str, lines: dict[str, int]) -> None:
+        lines.setdefault(path, node.start_mark.line + 1)
+        if isinstance(node, yaml.MappingNode):
+            for key_node, value_node in node.value:
+                child = f"{path}.{key_node.value}" if path else str(key_node.value)
+                lines[child] = key_node.start_mark.line + 1
+                cls._index(value_node, child, lines)
+                lines[child] = key_node.start_mark.line + 1
+        elif isinstance(node, yaml.SequenceNode):
+            for i, item in enumerate(node.value):
+                cls._index(item, f"{path}[{i}]", lines)
+
+    def line(self, path: str) -> int | None:
+        """Line of ``path``, or of its nearest ancestor that has one."""
+        while True:
+            if path in self.lines:
+                return self.lines[path]
+            if not path:
+                return None
+            cut = max(path.rfind("."), path.rfind("["))
+            path = path[:cut] if cut > 0 else ""
+
+    def fail(self, path: str, problem: str) -> CaseError:
+        return CaseError(self.file, self.line(path), path, problem)
+
+
+def _fmt(value: Any) -> str:
+    if isinstance(value, float):
+        return f"{value:g}"
+    return repr(value) if isinstance(value, str) else str(value)
+
+
+class _CaseReader:
+    """Walks the document section by section; validation happens here once, then data is trusted."""
+
+    def __init__(self, doc: _Document):
+        self.doc = doc
+
+    # ---- generic checks -------------------------------------------------------------------
+    def mapping(self, path: str, value: Any, allowed: tuple[str, ...], required: tuple[str, ...] = ()) -> dict:
+        if not isinstance(value, dict):
+            what = "a mapping of keys" if path else "a YAML mapping (key: value lines)"
+            raise self.doc.fail(path, f"must be {what}, got {type(value).__name__}")
+        for key in value:
+            if key not in allowed:
+                key_path = f"{path}.{key}" if path else str(key)
+                near = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.5)
+                hint = f"did you mean '{near[0]}'?" if near else f"known keys: {', '.join(allowed)}"
+                raise self.doc.fail(key_path, f"is not a known key; {hint}")
+        for key in required:
+            if key not in value:
+                where = f"{path}.{key}" if path else key
+                raise CaseError(self.doc.file, self.doc.line(path) if path else None, where,
+                                "is missing; it is required")
+        return value
+
+    def number(self, path: str, value: Any, unit: str, *, gt: float | None = None, ge: float | None = None,
+               lt: float | None = None, le: float | None = None) -> float:
+        u = f" {unit}" if unit else ""
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise self.doc.fail(path, f"must be a number{(' in' + u) if unit else ''}, got {_fmt(value)}")
+        x = float(value)
+        if not math.isfinite(x):
+            raise self.doc.fail(path, f"must be a finite number, got {_fmt(value)}")
+        if gt is not None and not x > gt:
+            raise self.doc.fail(path, f"must be > {gt:g}{u}, got {_fmt(value)}")
+        if ge is not None and not x >= ge:
+            raise self.doc.fail(path, f"must be >= {ge:g}{u}, got {_fmt(value)}")
+        if lt is not None and not x < lt:
+            raise self.doc.fail(path, f"must be < {lt:g}{u}, got {_fmt(value)}")
+        if le is not None and not x <= le:
+            raise self.doc.fail(path, f"must be <= {le:g}{u}, got {_fmt(value)}")
+        return x
+
+    def integer(self, path: str, value: Any, *, ge: int = 1) -> int:
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                raise self.doc.fail(path, f"must be a whole number, got {_fmt(value)}")
+        if value < ge:
+            raise self.doc.fail(path, f"must be >= {ge}, got {value}")
+        return int(value)
+
+    def vector(self, path: str, value: Any, n: int, unit: str, what: str) -> tuple[float, ...]:
+        if not isinstance(value, (list, tuple)) or len(value) != n:
+            raise self.doc.fail(path, f"must be a list of {n} numbers ({what}) in {unit}, got {_fmt(value)}")
+        return tuple(self.number(f"{path}[{i}]", v, unit) for i, v in enumerate(value))
+
+    def sequence(self, path: str, value: Any) -> list:
+        if value is None:
+            return []
+        if not isinstance(value, list):
+            raise self.doc.fail(path, f"must be a list, got {type(value).__name__}")
+        return value
+
+    def diameter(self, path: str, value: Any) -> float:
+        d = self.number(path, value, "m", gt=0)
+        if d >= MM_SUSPECT_DIAMETER:
+            raise self.doc.fail(
+                path, f"= {d:g} m looks like millimetres given as metres; give metres, e.g. {d / 1000:g} for {d:g} mm")
+        return d
+
+    def depth(self, path: str, value: float) -> float:
+        if value <= 0:
+            raise self.doc.fail(path, f"depth must be > 0 m (below the ground surface; z is positive downward), "
+                                      f"got {value:g}; conductors above ground are not electrodes")
+        return value
+
+    # ---- sections -------------------------------------------------------------------------
+    def read(self, sha256: str) -> Case:
+        data = self.doc.data
+        if data is None:
+            raise self.doc.fail("", "is empty; a case needs at least format, soil, fault and electrodes")
+        top = self.mapping("", data, ("format", "title", "soil", "surface_layer", "fault", "criteria",
+                                       "electrodes", "discretization", "surface", "probes"),
+                           ("format", "soil", "fault", "electrodes"))
+        fmt = top["format"]
+        if fmt not in SUPPORTED_FORMATS:
+            raise self.doc.fail("format", f"must be 1 (the only case-file format), got {_fmt(fmt)}")
+        title = top.get("title", Path(self.doc.file).stem)
+        if not isinstance(title, str):
+            title = str(title)
+        soil = self.soil(top["soil"])
+        surface_layer = self.surface_layer(top.get("surface_layer"))
+        fault = self.fault(top["fault"])
+        criteria = self.criteria(top.get("criteria", {}))
+        electrodes = self.electrodes(top["electrodes"], soil)
+        discretization = self.discretization(top.get("discretization", {}), electrodes)
+        surface = self.surface(top.get("surface", {}))
+        probes = tuple(self.vector(f"probes[{i}]", p, 2, "m", "x, y")
+                       for i, p in enumerate(self.sequence("probes", top.get("probes"))))
+        return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
+                    surface_layer=surface_layer, discretization=discretization, surface=surface,
+                    probes=probes, source=self.doc.file, sha256=sha256)
+
+    def soil(self, value: Any) -> Soil:
+        m = self.mapping("soil", value, ("resistivity", "layers"))
+        if ("resistivity" in m) == ("layers" in m):
+            raise self.doc.fail("soil", "needs either 'resistivity' (uniform soil, Ω·m) or 'layers' (top to bottom)")
+        if "resistivity" in m:
+            return Soil((Layer(self.number("soil.resistivity", m["resistivity"], "Ω·m", gt=0)),))
+        items = self.sequence("soil.layers", m["layers"])
+        if not items:
+            raise self.doc.fail("soil.layers", "must list at least one layer")
+        layers = []
+        for i, item in enumerate(items):
+            p = f"soil.layers[{i}]"
+            last = i == len(items) - 1
+            lm = self.mapping(p, item, ("resistivity", "thickness"), ("resistivity",))
+            rho = self.number(f"{p}.resistivity", lm["resistivity"], "Ω·m", gt=0)
+            if last:
+                if "thickness" in lm:
+                    raise self.doc.fail(f"{p}.thickness", "must be left out: the bottom layer extends to infinite depth")
+                layers.append(Layer(rho))
+            else:
+                if "thickness" not in lm:
+                    raise self.doc.fail(p, "needs a thickness in m (only the bottom layer has none)")
+                layers.append(Layer(rho, self.number(f"{p}.thickness", lm["thickness"], "m", gt=0)))
+        if len(layers) > 2:
+            raise self.doc.fail("soil.layers", f"has {len(layers)} layers; this version solves uniform and "
+                                               "two-layer soil; give at most two layers")
+        return Soil(tuple(layers))
+
+    def surface_layer(self, value: Any) -> SurfaceLayer | None:
+        if value is None:
+            return None
+        m = self.mapping("surface_layer", value, ("resistivity", "thickness"), ("resistivity", "thickness"))
+        rho = self.number("surface_layer.resistivity", m["resistivity"], "Ω·m", gt=0)
+        h = self.number("surface_layer.thickness", m["thickness"], "m", gt=0)
+        if h > 1.0:
+            raise self.doc.fail("surface_layer.thickness", f"= {h:g} m is too thick for a surface layer "
+                                "(the Cs derating is for layers of a few cm to 0.3 m); model it as a soil layer")
+        return SurfaceLayer(rho, h)
+
+    def fault(self, value: Any) -> Fault:
+        m = self.mapping("fault", value, ("current", "split_factor", "x_over_r", "frequency", "clearing_time",
+                                          "shock_duration"), ("current", "clearing_time"))
+        current = self.number("fault.current", m["current"], "A", gt=0)
+        tf = self.number("fault.clearing_time", m["clearing_time"], "s", gt=0, le=30)
+        ts = self.number("fault.shock_duration", m.get("shock_duration", tf), "s", ge=0.03, le=3.0) \
+            if "shock_duration" in m else tf
+        if not 0.03 <= ts <= 3.0:
+            raise self.doc.fail("fault.clearing_time", f"= {ts:g} s is outside 0.03 s to 3 s, where Dalziel's "
+                                "body-current limit holds; give fault.shock_duration within that range")
+        sf = self.number("fault.split_factor", m.get("split_factor", 1.0), "", gt=0, le=1)
+        xr = m.get("x_over_r")
+        xr = None if xr is None else self.number("fault.x_over_r", xr, "", ge=0)
+        f = self.number("fault.frequency", m.get("frequency", 50.0), "Hz", gt=0)
+        return Fault(current=current, clearing_time=tf, shock_duration=ts, split_factor=sf, x_over_r=xr, frequency=f)
+
+    def criteria(self, value: Any) -> Criteria:
+        m = self.mapping("criteria", value or {}, ("body_weight",))
+        w = m.get("body_weight", 70)
+        if w not in (50, 70) or isinstance(w, bool):
+            raise self.doc.fail("criteria.body_weight", f"must be 50 or 70 (kg, IEEE Std 80), got {_fmt(w)}")
+        return Criteria(int(w))
+
+    def electrodes(self, value: Any, soil: Soil) -> Electrodes:
+        m = self.mapping("electrodes", value, ("material", "grids", "conductors", "rods", "ambient_temperature",
+                                               "max_temperature"))
+        material = m.get("material", "copper-annealed")
+        if material not in MATERIALS:
+            near = difflib.get_close_matches(str(material), list(MATERIALS), n=1, cutoff=0.4)
+            hint = f"did you mean '{near[0]}'?" if near else f"choose one of {', '.join(MATERIALS)}"
+            raise self.doc.fail("electrodes.material", f"'{material}' is not in the material table; {hint}")
+        grids = tuple(self.grid(f"electrodes.grids[{i}]", g)
+                      for i, g in enumerate(self.sequence("electrodes.grids", m.get("grids"))))
+        conductors = tuple(self.conductor(f"electrodes.conductors[{i}]", c)
+                           for i, c in enumerate(self.sequence("electrodes.conductors", m.get("conductors"))))
+        rods = tuple(self.rod(f"electrodes.rods[{i}]", r)
+                     for i, r in enumerate(self.sequence("electrodes.rods", m.get("rods"))))
+        if not (grids or conductors or rods):
+            raise self.doc.fail("electrodes", "has no electrodes; give at least one of grids, conductors or rods")
+        ta = self.number("electrodes.ambient_temperature", m.get("ambient_temperature", 40.0), "°C", gt=-60, lt=80)
+        tm = m.get("max_temperature")
+        if tm is not None:
+            tm = self.number("electrodes.max_temperature", tm, "°C", gt=ta,
+                             le=MATERIALS[material].fusing_temperature)
+        return Electrodes(material=material, grids=grids, conductors=conductors, rods=rods,
+                          ambient_temperature=ta, max_temperature=tm)
+
+    def grid(self, p: str, value: Any) -> Grid:
+        m = self.mapping(p, value, ("origin", "size", "meshes", "depth", "diameter"),
+                         ("origin", "size", "meshes", "depth", "diameter"))
+        origin = self.vector(f"{p}.origin", m["origin"], 2, "m", "x, y")
+        size = self.vector(f"{p}.size", m["size"], 2, "m", "along x, along y")
+        for i in range(2):
+            if size[i] <= 0:
+                raise self.doc.fail(f"{p}.size[{i}]", f"must be > 0 m, got {size[i]:g}")
+        meshes = m["meshes"]
+        if not isinstance(meshes, list) or len(meshes) != 2:
+            raise self.doc.fail(f"{p}.meshes", f"must be a list of 2 whole numbers (along x, along y), got {_fmt(meshes)}")
+        meshes = tuple(self.integer(f"{p}.meshes[{i}]", v) for i, v in enumerate(meshes))
+        depth = self.depth(f"{p}.depth", self.number(f"{p}.depth", m["depth"], "m"))
+        d = self.diameter(f"{p}.diameter", m["diameter"])
+        return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p)
+
+    def conductor(self, p: str, value: Any) -> Conductor:
+        m = self.mapping(p, value, ("start", "end", "diameter"), ("start", "end", "diameter"))
+        a = self.vector(f"{p}.start", m["start"], 3, "m", "x, y, depth")
+        b = self.vector(f"{p}.end", m["end"], 3, "m", "x, y, depth")
+        self.depth(f"{p}.start[2]", a[2])
+        self.depth(f"{p}.end[2]", b[2])
+        if math.dist(a, b) <= 1e-6:
+            raise self.doc.fail(p, "has zero length (start = end); give two different points")
+        return Conductor(a, b, self.diameter(f"{p}.diameter", m["diameter"]), key=p)
+
+    def rod(self, p: str, value: Any) -> Rod:
+        m = self.mapping(p, value, ("top", "length", "diameter"), ("top", "length", "diameter"))
+        top = self.vector(f"{p}.top", m["top"], 3, "m", "x, y, depth")
+        if top[2] < 0:
+            raise self.doc.fail(f"{p}.top[2]", f"depth must be >= 0 m (z is positive downward), got {top[2]:g}")
+        length = self.number(f"{p}.length", m["length"], "m", gt=0)
+        return Rod(top, length, self.diameter(f"{p}.diameter", m["diameter"]), key=p)
+
+    def discretization(self, value: Any, electrodes: Electrodes) -> Discretization:
+        m = self.mapping("discretization", value or {}, ("max_segment",))
+        s = self.number("discretization.max_segment", m.get("max_segment", 1.0), "m", gt=0)
+        diameters = [g.diameter for g in electrodes.grids] + [c.diameter for c in electrodes.conductors] + \
+                    [r.diameter for r in electrodes.rods]
+        if s < 4 * max(diameters):
+            raise self.doc.fail("discretization.max_segment", f"= {s:g} m is shorter than 4 conductor diameters "
+                                f"({4 * max(diameters):g} m); the thin-wire kernel needs longer segments")
+        return Discretization(s)
+
+    def surface(self, value: Any) -> SurfaceMap:
+        p = "surface"
+        m = self.mapping(p, value or {}, ("margin", "resolution", "touch_reach", "touch_area", "step_distance"))
+        margin = self.number(f"{p}.margin", m.get("margin", 3.0), "m", ge=0)
+        res = self.number(f"{p}.resolution", m.get("resolution", 0.5), "m", gt=0)
+        reach = self.number(f"{p}.touch_reach", m.get("touch_reach", 1.0), "m", ge=0)
+        step = self.number(f"{p}.step_distance", m.get("step_distance", 1.0), "m", gt=0)
+        area = m.get("touch_area")
+        if area is not None:
+            pts = self.sequence(f"{p}.touch_area", area)
+            if len(pts) < 3:
+                raise self.doc.fail(f"{p}.touch_area", "must be a polygon of at least 3 [x, y] corners in m")
+            area = tuple(self.vector(f"{p}.touch_area[{i}]", q, 2, "m", "x, y") for i, q in enumerate(pts))
+        return SurfaceMap(margin=margin, resolution=res, touch_reach=reach, touch_area=area, step_distance=step)

@@ -1,0 +1,276 @@
+"""Electrode geometry: straight conductors from the case, merged, noded and cut into segments.
+
+Every electrode becomes straight conductors; collinear overlaps are merged; conductors are cut at
+crossings, junctions and soil-layer interfaces; each piece is divided into equal segments no longer
+than ``max_segment``. Coordinates are (x, y, z) in m with z the depth, positive downward.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .case import Case
+
+#: Distance below which two points are the same node, m.
+NODE_TOLERANCE = 1e-6
+
+
+@dataclass(frozen=True)
+class Conductors:
+    """Straight conductors after merging collinear overlaps.
+
+    Attributes
+    ----------
+    start, end : ndarray, shape (M, 3)
+        End points, m.
+    radius : ndarray, shape (M,)
+        Conductor radius, m.
+    keys : tuple of str
+        Case-file key path(s) each conductor came from.
+    is_rod : ndarray of bool, shape (M,)
+        True for vertical rods.
+    """
+
+    start: np.ndarray
+    end: np.ndarray
+    radius: np.ndarray
+    keys: tuple[str, ...]
+    is_rod: np.ndarray
+
+    @property
+    def length(self) -> np.ndarray:
+        """Conductor lengths, m."""
+        return np.linalg.norm(self.end - self.start, axis=1)
+
+
+@dataclass(frozen=True)
+class Segments:
+    """The discretised electrode system.
+
+    Attributes
+    ----------
+    start, end : ndarray, shape (N, 3)
+        Segment end points, m.
+    radius : ndarray, shape (N,)
+        Conductor radius, m.
+    conductor : ndarray of int, shape (N,)
+        Index of the conductor each segment belongs to.
+    conductors : Conductors
+        The conductors.
+    warnings : tuple of str
+        Things the user should know about how the geometry was interpreted.
+    """
+
+    start: np.ndarray
+    end: np.ndarray
+    radius: np.ndarray
+    conductor: np.ndarray
+    conductors: Conductors
+    warnings: tuple[str, ...] = field(default=())
+
+    def __len__(self) -> int:
+        return len(self.radius)
+
+    @property
+    def length(self) -> np.ndarray:
+        """Segment lengths, m."""
+        return np.linalg.norm(self.end - self.start, axis=1)
+
+    @property
+    def midpoint(self) -> np.ndarray:
+        """Segment midpoints, m, shape (N, 3)."""
+        return 0.5 * (self.start + self.end)
+
+    @property
+    def total_length(self) -> float:
+        """Total electrode length, m."""
+        return float(self.length.sum())
+
+    @property
+    def is_rod(self) -> np.ndarray:
+        """True for segments of vertical rods."""
+        return self.conductors.is_rod[self.conductor]
+
+
+def electrode_lines(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str], np.ndarray]:
+    """All electrodes of a case as straight lines: (start, end, radius, key, is_rod)."""
+    starts, ends, radii, keys, rods = [], [], [], [], []
+    el = case.electrodes
+    for g in el.grids:
+        (ox, oy), (lx, ly), (nx, ny) = g.origin, g.size, g.meshes
+        for j in range(ny + 1):
+            y = oy + ly * j / ny
+            starts.append((ox, y, g.depth)); ends.append((ox + lx, y, g.depth))
+        for i in range(nx + 1):
+            x = ox + lx * i / nx
+            starts.append((x, oy, g.depth)); ends.append((x, oy + ly, g.depth))
+        n = nx + ny + 2
+        radii += [g.diameter / 2] * n; keys += [g.key] * n; rods += [False] * n
+    for c in el.conductors:
+        starts.append(c.start); ends.append(c.end); radii.append(c.diameter / 2); keys.append(c.key)
+        rods.append(False)
+    for r in el.rods:
+        starts.append(r.top); ends.append((r.top[0], r.top[1], r.top[2] + r.length))
+        radii.append(r.diameter / 2); keys.append(r.key); rods.append(True)
+    return (np.array(starts, float), np.array(ends, float), np.array(radii, float), keys,
+            np.array(rods, bool))
+
+
+def merge_collinear(start, end, radius, keys, is_rod) -> tuple[Conductors, list[str]]:
+    """Merge conductors that lie on one line and overlap, so that no metal is counted twice.
+
+    Returns the merged conductors and a warning per merge. The merged conductor takes the larger
+    radius of the two.
+    """
+    direction = end - start
+    length = np.linalg.norm(direction, axis=1)
+    u = direction / length[:, None]
+    # canonical sign: first clearly non-zero component positive
+    first = np.argmax(np.abs(u) > 1e-9, axis=1)
+    sign = np.sign(u[np.arange(len(u)), first])
+    u = u * sign[:, None]
+    t0 = np.einsum("ij,ij->i", start, u)
+    t1 = np.einsum("ij,ij->i", end, u)
+    foot = start - t0[:, None] * u
+    lo, hi = np.minimum(t0, t1), np.maximum(t0, t1)
+    key = np.round(np.hstack([u, foot]) / 1e-6).astype(np.int64)
+    _, group = np.unique(key, axis=0, return_inverse=True)
+    group = group.ravel()
+    out_s, out_e, out_r, out_k, out_rod, warnings = [], [], [], [], [], []
+    for g in np.unique(group):
+        members = np.flatnonzero(group == g)
+        members = members[np.argsort(lo[members], kind="stable")]
+        cur = [members[0]]
+        cur_lo, cur_hi = lo[members[0]], hi[members[0]]
+
+        def flush(cur, a, b):
+            m0 = cur[0]
+            out_s.append(foot[m0] + a * u[m0]); out_e.append(foot[m0] + b * u[m0])
+            out_r.append(max(radius[i] for i in cur))
+            ks = list(dict.fromkeys(keys[i] for i in cur))
+            out_k.append(" + ".join(ks)); out_rod.append(bool(all(is_rod[i] for i in cur)))
+            if len(cur) > 1:
+                warnings.append(f"{' and '.join(ks)} overlap along a shared line ({b - a:.2f} m); "
+                                "merged into one conductor so no metal is counted twice")
+
+        for i in members[1:]:
+            if lo[i] < cur_hi - NODE_TOLERANCE:
+                cur.append(i)
+                cur_hi = max(cur_hi, hi[i])
+            else:
+                flush(cur, cur_lo, cur_hi)
+                cur, cur_lo, cur_hi = [i], lo[i], hi[i]
+        flush(cur, cur_lo, cur_hi)
+    # restore the z-down orientation for vertical conductors: start shallower than end
+    s, e = np.array(out_s), np.array(out_e)
+    swap = s[:, 2] > e[:, 2] + NODE_TOLERANCE
+    s[swap], e[swap] = e[swap].copy(), s[swap].copy()
+    return Conductors(s, e, np.array(out_r), tuple(out_k), np.array(out_rod, bool)), warnings
+
+
+def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
+    """Where conductors touch or cross one another.
+
+    Returns
+    -------
+    cuts : list of ndarray
+        For each conductor, the distances along it (m from its start) of points where another
+        conductor touches or crosses it.
+    touching : ndarray of bool, shape (M, M)
+        Which conductors touch.
+    """
+    a, b = c.start, c.end
+    d = b - a
+    L = np.linalg.norm(d, axis=1)
+    u = d / L[:, None]
+    m = len(L)
+    # closest approach of segment i (a_i + s u_i, s in [0, L_i]) to segment j, for all pairs
+    w = a[:, None, :] - a[None, :, :]                      # a_i - a_j
+    uu = np.einsum("ik,jk->ij", u, u)                      # u_i . u_j
+    wi = np.einsum("ijk,ik->ij", w, u)                     # w . u_i
+    wj = np.einsum("ijk,jk->ij", w, u)                     # w . u_j
+    den = 1.0 - uu ** 2
+    parallel = den < 1e-12
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s = np.where(parallel, 0.0, (uu * wj - wi) / den)
+        t = np.where(parallel, 0.0, (wj - uu * wi) / den)
+    s = np.clip(s, 0.0, L[:, None])
+    t = np.clip(t, 0.0, L[None, :])
+    # re-project once after clipping so that end-point contacts are found exactly
+    pj = a[None, :, :] + t[..., None] * u[None, :, :]
+    s = np.clip(np.einsum("ijk,ik->ij", pj - a[:, None, :], u), 0.0, L[:, None])
+    pi = a[:, None, :] + s[..., None] * u[:, None, :]
+    t = np.clip(np.einsum("ijk,jk->ij", pi - a[None, :, :], u), 0.0, L[None, :])
+    pj = a[None, :, :] + t[..., None] * u[None, :, :]
+    gap = np.linalg.norm(pi - pj, axis=2)
+    touching = gap < 1e-4
+    np.fill_diagonal(touching, False)
+    # parallel (non-collinear after merging) conductors touch only end to end: check end points
+    ends = np.stack([a, b], axis=1)                         # (M, 2, 3)
+    rel = ends[None, :, :, :] - a[:, None, None, :]          # end e of j relative to a_i
+    proj = np.einsum("ijek,ik->ije", rel, u)
+    foot = a[:, None, None, :] + np.clip(proj, 0, L[:, None, None])[..., None] * u[:, None, None, :]
+    on_i = np.linalg.norm(ends[None] - foot, axis=3) < 1e-4   # (M, M, 2)
+    np.fill_diagonal(on_i[..., 0], False); np.fill_diagonal(on_i[..., 1], False)
+    touching |= on_i.any(axis=2) | on_i.any(axis=2).T
+    cuts = []
+    for i in range(m):
+        ci = [s[i, touching[i]]]
+        ci.append(np.clip(proj[i][on_i[i]], 0, L[i]))
+        ci.append(t[touching[:, i], i])
+        cuts.append(np.concatenate(ci))
+    return cuts, touching
+
+
+def bonded_groups(touching: np.ndarray) -> np.ndarray:
+    """Label of the galvanically connected group of each conductor."""
+    from scipy.sparse import csr_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    _, labels = connected_components(csr_matrix(touching), directed=False)
+    return labels
+
+
+def segment(case: Case) -> Segments:
+    """Discretise the case's electrodes into straight segments.
+
+    Cuts every conductor at junctions and crossings with other conductors, at soil-layer
+    interfaces, and into equal parts no longer than ``case.discretization.max_segment``.
+    """
+    conductors, warnings = merge_collinear(*electrode_lines(case))
+    cuts, touching = junction_parameters(conductors)
+    groups = bonded_groups(touching)
+    if len(np.unique(groups)) > 1:
+        sizes = np.bincount(groups)
+        loose = [conductors.keys[i] for i in range(len(groups)) if sizes[groups[i]] < sizes.max()]
+        loose = list(dict.fromkeys(loose))
+        warnings.append(f"{len(np.unique(groups))} electrode groups do not touch each other "
+                        f"({', '.join(loose[:4])}{' ...' if len(loose) > 4 else ''}); they are taken as "
+                        "bonded by above-ground leads into one equipotential system")
+    interfaces = np.array(case.soil.interface_depths)
+    max_seg = case.discretization.max_segment
+    a, b = conductors.start, conductors.end
+    L = conductors.length
+    starts, ends, owner = [], [], []
+    for i in range(len(L)):
+        za, zb = a[i, 2], b[i, 2]
+        extra = []
+        if abs(zb - za) > NODE_TOLERANCE and len(interfaces):
+            f = (interfaces - za) / (zb - za)
+            extra = f[(f > 0) & (f < 1)] * L[i]
+        p = np.sort(np.concatenate([[0.0, L[i]], cuts[i], extra]))
+        p = p[np.concatenate([[True], np.diff(p) > 1e-4])]
+        p[-1] = L[i]
+        if len(p) > 2 and p[-1] - p[-2] <= 1e-4:
+            p = np.delete(p, -2)
+        pieces = np.diff(p)
+        n = np.maximum(1, np.ceil(pieces / max_seg - 1e-9).astype(int))
+        fr = np.concatenate([p[k] + pieces[k] * np.arange(n[k] + 1) / n[k] for k in range(len(n))])
+        fr = fr[np.concatenate([[True], np.diff(fr) > 1e-12])] / L[i]
+        pts = a[i] + fr[:, None] * (b[i] - a[i])
+        starts.append(pts[:-1]); ends.append(pts[1:]); owner.append(np.full(len(pts) - 1, i))
+    owner = np.concatenate(owner)
+    return Segments(np.vstack(starts), np.vstack(ends), conductors.radius[owner], owner, conductors,
+                    tuple(warnings))

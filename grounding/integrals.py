@@ -1,0 +1,114 @@
+"""Closed-form and quadrature integrals of 1/|x − y| over straight thin wires.
+
+Pure functions over arrays, used by assembly (segment–segment, Galerkin) and by the surface
+stage (point–segment). The thin-wire reduced kernel is used: the distance from the wire axis is
+taken as √(d² + a²), a being the wire radius, which makes the self term finite and exact for a
+uniformly charged tube observed on its own axis average.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: Gauss–Legendre order for the outer integral of non-parallel near pairs.
+OUTER_ORDER = 12
+
+
+def line_integral(p: np.ndarray, a: np.ndarray, b: np.ndarray, radius: np.ndarray | float) -> np.ndarray:
+    """∫ ds / |p − x(s)| along the straight segment a→b (unit: dimensionless, ln of lengths).
+
+    Parameters
+    ----------
+    p : ndarray, shape (..., 3)
+        Observation points, m.
+    a, b : ndarray, shape (..., 3)
+        Segment end points, m (broadcast against ``p``).
+    radius : ndarray or float
+        Thin-wire radius added in quadrature to the distances, m.
+
+    Returns
+    -------
+    ndarray, shape (...)
+        ln((r1 + r2 + L) / (r1 + r2 − L)), the potential of a uniform unit line density times 1/L⁻¹.
+    """
+    a2 = np.square(radius)
+    r1 = np.sqrt(np.sum((p - a) ** 2, axis=-1) + a2)
+    r2 = np.sqrt(np.sum((p - b) ** 2, axis=-1) + a2)
+    L = np.sqrt(np.sum((b - a) ** 2, axis=-1))
+    s = r1 + r2
+    # (s - L) computed as ((s² - L²) / (s + L)) to keep digits when p is close to the wire
+    num = (s + L)
+    den = (s * s - L * L) / num
+    return np.log(num / den)
+
+
+def _parallel_pair(a, b, c, d, radius):
+    """Exact ∫∫ ds dt / √((s − t)² + h²) for parallel (or antiparallel) segments."""
+    ab = b - a
+    L1 = np.linalg.norm(ab, axis=-1)
+    u = ab / L1[..., None]
+    y1 = np.einsum("...k,...k->...", c - a, u)
+    y2 = np.einsum("...k,...k->...", d - a, u)
+    lo, hi = np.minimum(y1, y2), np.maximum(y1, y2)
+    perp = (c - a) - y1[..., None] * u
+    h = np.sqrt(np.sum(perp ** 2, axis=-1) + np.square(radius))
+
+    def G(w):
+        return w * np.arcsinh(w / h) - np.sqrt(w * w + h * h)
+
+    return G(L1 - lo) + G(0.0 - hi) - G(0.0 - lo) - G(L1 - hi)
+
+
+_tau, _w = np.polynomial.legendre.leggauss(OUTER_ORDER)
+_tau = 0.5 * (_tau + 1.0)
+_w = 0.5 * _w
+# smoothstep map s = 3τ² − 2τ³ clusters the nodes at both ends, where a touching segment
+# makes the inner integral logarithmically singular
+_S = 3 * _tau ** 2 - 2 * _tau ** 3
+_W = _w * 6 * _tau * (1 - _tau)
+
+
+def _oblique_pair(a, b, c, d, radius):
+    """∫∫ ds dt / |x(s) − y(t)| by quadrature on a→b and the closed form on c→d."""
+    L1 = np.linalg.norm(b - a, axis=-1)
+    pts = a[..., None, :] + _S[:, None] * (b - a)[..., None, :]          # (..., q, 3)
+    rad = np.asarray(radius)[..., None] if np.ndim(radius) else radius
+    inner = line_integral(pts, c[..., None, :], d[..., None, :], rad)     # (..., q)
+    return L1 * np.sum(inner * _W, axis=-1)
+
+
+def segment_pair_integral(a, b, c, d, radius) -> np.ndarray:
+    """∫_{a→b} ∫_{c→d} ds dt / |x(s) − y(t)| for many segment pairs (unit: m).
+
+    Parameters
+    ----------
+    a, b : ndarray, shape (n, 3)
+        First segment of each pair, m.
+    c, d : ndarray, shape (n, 3)
+        Second segment of each pair (possibly an image), m.
+    radius : ndarray, shape (n,)
+        Thin-wire radius, m.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        The double integral, m. Exact for parallel pairs; Gauss–Legendre (order 12, end-clustered)
+        times the closed-form line integral otherwise.
+    """
+    a, b, c, d = (np.asarray(x, float) for x in (a, b, c, d))
+    radius = np.broadcast_to(np.asarray(radius, float), a.shape[:-1])
+    u = b - a
+    v = d - c
+    cross = np.linalg.norm(np.cross(u, v), axis=-1)
+    sine = cross / (np.linalg.norm(u, axis=-1) * np.linalg.norm(v, axis=-1))
+    par = sine < 1e-9
+    out = np.empty(a.shape[:-1])
+    if par.any():
+        out[par] = _parallel_pair(a[par], b[par], c[par], d[par], radius[par])
+    if (~par).any():
+        q = ~par
+        out[q] = _oblique_pair(a[q], b[q], c[q], d[q], radius[q])
+    return out
+
+
+GAUSS2 = (np.array([0.5 - 0.5 / np.sqrt(3.0), 0.5 + 0.5 / np.sqrt(3.0)]), np.array([0.5, 0.5]))

@@ -1,0 +1,43 @@
+"""Uniform soil under insulating air: the source and its image mirrored in the surface."""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+import numpy as np
+
+from .base import ImageTerms, Radial, SoilKernel
+
+
+class UniformSoil(SoilKernel):
+    """G = ρ/(4π) (1/R + 1/R'), R' the distance to the image mirrored in the ground surface.
+
+    Parameters
+    ----------
+    resistivity : float
+        ρ, Ω·m.
+    """
+
+    def __init__(self, resistivity: float):
+        self.resistivity = float(resistivity)
+        self.resistivities = (self.resistivity,)
+        self.interfaces = ()
+        c = self.resistivity / (4 * np.pi)
+        self._terms = ImageTerms(np.array([c, c]), np.array([1.0, -1.0]), np.array([0.0, 0.0]))
+
+    def near_terms(self, obs_layer: int, src_layer: int) -> ImageTerms:
+        return self._terms
+
+    @lru_cache(maxsize=None)
+    def radial(self, z: float, zp: float) -> Radial:
+        c = self.resistivity / (4 * np.pi)
+        dm2, dp2 = (z - zp) ** 2, (z + zp) ** 2
+
+        def g(r):
+            r2 = np.square(r)
+            return c * (1.0 / np.sqrt(r2 + dm2) + 1.0 / np.sqrt(r2 + dp2))
+
+        return g
+
+    def remainder_radial(self, z: float, zp: float) -> Radial | None:
+        return None
