@@ -122,17 +122,36 @@ class SoilKernel(ABC):
         out = np.zeros(r.shape)
         if r.size == 0:
             return out
-        qz = np.round(z.ravel() / DEPTH_QUANTUM).astype(np.int64)
-        qp = np.round(zp.ravel() / DEPTH_QUANTUM).astype(np.int64)
-        pairs, inverse = np.unique(np.stack([qz, qp], axis=1), axis=0, return_inverse=True)
-        inverse = inverse.ravel()
-        order = np.argsort(inverse, kind="stable")
-        bounds = np.searchsorted(inverse[order], np.arange(len(pairs) + 1))
+        lz, iz = _levels(z.ravel())
+        lp, ip = _levels(zp.ravel())
         flat_r, flat = r.ravel(), out.ravel()
-        for k, (a, b) in enumerate(pairs):
-            f = factory(a * DEPTH_QUANTUM, b * DEPTH_QUANTUM)
+        if len(lz) == 1 and len(lp) == 1:
+            f = factory(lz[0] * DEPTH_QUANTUM, lp[0] * DEPTH_QUANTUM)
+            if f is not None:
+                flat[:] = f(flat_r)
+            return out
+        code = iz * len(lp) + ip
+        n_codes = len(lz) * len(lp)
+        order = np.argsort(code.astype(np.uint16) if n_codes < 2 ** 16 else code, kind="stable")
+        bounds = np.searchsorted(code[order], np.arange(n_codes + 1))
+        for c in np.flatnonzero(np.diff(bounds)):
+            f = factory(lz[c // len(lp)] * DEPTH_QUANTUM, lp[c % len(lp)] * DEPTH_QUANTUM)
             if f is None:
                 continue
-            idx = order[bounds[k]:bounds[k + 1]]
+            idx = order[bounds[c]:bounds[c + 1]]
             flat[idx] = f(flat_r[idx])
         return flat.reshape(r.shape)
+
+
+def _levels(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct quantised depths and the index of each depth among them, avoiding a full sort
+    when the depths take few values (the usual case: they come from a few burial depths)."""
+    q = np.round(z / DEPTH_QUANTUM).astype(np.int64)
+    if q.size and q.min() == q.max():
+        return q[:1], np.zeros(q.size, dtype=np.int64)
+    sample = np.unique(q[:: max(1, q.size // 4096)])
+    idx = np.minimum(np.searchsorted(sample, q), len(sample) - 1)
+    if np.array_equal(sample[idx], q):
+        return sample, idx
+    levels, inverse = np.unique(q, return_inverse=True)
+    return levels, inverse.ravel()

@@ -1,0 +1,208 @@
+"""The study pipeline and its Python API: case → geometry → soil → assembly → solve → surface → safety.
+
+>>> from grounding import load_case, run_study          # doctest: +SKIP
+>>> result = run_study(load_case("cases/river-terrace-uniform.yaml"))
+>>> result.grid_resistance, result.ground_potential_rise
+"""
+
+from __future__ import annotations
+
+import os
+import time
+from dataclasses import dataclass, replace
+from typing import Callable
+
+import numpy as np
+
+from .assembly import AssemblyOptions, assemble, matrix_memory_bytes
+from .case import Case, Discretization
+from .cautions import CAUTIONS
+from .errors import ModelTooLargeError
+from .geometry import Segments, segment
+from .materials import MATERIALS
+from .safety.conductor import ConductorCheck, check_conductor
+from .safety.ieee80 import Limits, decrement_factor, tolerable_limits
+from .safety.simplified import SimplifiedResult, simplified_method
+from .soil import SoilKernel, make_kernel
+from .solve import Solution, solve_equipotential
+from .surface import SurfaceResult, surface_fields
+
+Progress = Callable[[str, float], None]
+
+#: Observed convergence order of Rg in the segment length (measured on grids, see DEVELOPERS.md).
+CONVERGENCE_ORDER = 1.0
+#: Share of physical memory a study may plan to use for its dense matrices.
+MEMORY_SHARE = 0.5
+
+
+@dataclass(frozen=True)
+class DiscretizationError:
+    """Estimate of the discretisation error of Rg from a second solve at twice the segment length.
+
+    Attributes
+    ----------
+    coarse_resistance : float or None
+        Rg at twice the segment length, Ω.
+    estimate_ohm : float or None
+        |Rg − Rg(2h)| / (2^p − 1), Ω, with p the convergence order.
+    relative : float or None
+        estimate / Rg.
+    note : str
+        Why no estimate was made, when it was not.
+    """
+
+    coarse_resistance: float | None
+    estimate_ohm: float | None
+    relative: float | None
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class StudyResult:
+    """Everything a study computed. Currents in A, voltages in V, resistances in Ω, lengths in m."""
+
+    case: Case
+    segments: Segments
+    kernel: SoilKernel
+    solution: Solution
+    decrement_factor: float
+    grid_current: float
+    ground_potential_rise: float
+    segment_currents: np.ndarray
+    surface: SurfaceResult
+    limits: Limits
+    simplified: SimplifiedResult
+    conductor: ConductorCheck
+    discretization_error: DiscretizationError
+    timings: dict
+    warnings: tuple[str, ...]
+    cautions: tuple[str, ...] = CAUTIONS
+
+    @property
+    def grid_resistance(self) -> float:
+        """Rg, Ω."""
+        return self.solution.resistance
+
+    @property
+    def body_weight(self) -> int:
+        """Body weight the verdicts use, kg."""
+        return self.case.criteria.body_weight
+
+    @property
+    def tolerable_touch(self) -> float:
+        """Tolerable touch voltage for the case's body weight, V."""
+        return self.limits.touch[self.body_weight]
+
+    @property
+    def tolerable_step(self) -> float:
+        """Tolerable step voltage for the case's body weight, V."""
+        return self.limits.step[self.body_weight]
+
+    @property
+    def touch_ok(self) -> bool:
+        """True when the worst touch voltage is within the tolerable limit."""
+        return self.surface.max_touch.value <= self.tolerable_touch
+
+    @property
+    def step_ok(self) -> bool:
+        """True when the worst step voltage is within the tolerable limit."""
+        return self.surface.max_step.value <= self.tolerable_step
+
+    @property
+    def mesh_ok(self) -> bool | None:
+        """True when the worst mesh voltage is within the tolerable touch limit; None without meshes."""
+        m = self.surface.max_mesh
+        return None if m is None else m.value <= self.tolerable_touch
+
+    def probe_touch_voltages(self) -> np.ndarray:
+        """GPR − surface potential at the probes, V."""
+        return self.ground_potential_rise - self.surface.probe_potential
+
+
+def available_memory() -> int:
+    """Physical memory of this machine, bytes."""
+    try:
+        return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError, AttributeError):
+        return 8 * 2 ** 30
+
+
+def check_model_size(case: Case, segments: Segments) -> None:
+    """Refuse a discretisation whose dense matrices would not fit in memory."""
+    n = len(segments)
+    need = matrix_memory_bytes(n)
+    limit = MEMORY_SHARE * available_memory()
+    if need > limit:
+        n_max = int(np.sqrt(limit / matrix_memory_bytes(1)))
+        suggest = case.discretization.max_segment * n / n_max
+        raise ModelTooLargeError(
+            f"{case.source}: discretization.max_segment = {case.discretization.max_segment:g} m gives {n:,} "
+            f"segments; the dense matrix and its factor would need {need / 2 ** 30:.1f} GiB, more than the "
+            f"{limit / 2 ** 30:.1f} GiB this machine can spare; use max_segment of at least {suggest:.2g} m")
+
+
+def _solve(case: Case, progress: Progress | None = None):
+    """Segment, assemble and solve one discretisation; returns (segments, kernel, solution, timings)."""
+    segments = segment(case)
+    check_model_size(case, segments)
+    kernel = make_kernel(case.soil, case.discretization.max_segment)
+    t0 = time.perf_counter()
+    R = assemble(segments, kernel, AssemblyOptions(), progress)
+    t1 = time.perf_counter()
+    solution = solve_equipotential(R)
+    t2 = time.perf_counter()
+    return segments, kernel, solution, {"assemble_s": t1 - t0, "solve_s": t2 - t1}
+
+
+def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int) -> DiscretizationError:
+    """Second solve at twice the segment length (about an eighth of the cost) and Richardson's estimate."""
+    coarse_case = replace(case, discretization=Discretization(2 * case.discretization.max_segment))
+    segments, _, coarse, _ = _solve(coarse_case)
+    if len(segments) == fine_segments:
+        return DiscretizationError(coarse.resistance, None, None,
+                                   "not estimated: doubling max_segment does not change the segments "
+                                   "(conductor pieces between junctions are already shorter)")
+    est = abs(fine.resistance - coarse.resistance) / (2 ** CONVERGENCE_ORDER - 1)
+    return DiscretizationError(coarse.resistance, est, est / fine.resistance)
+
+
+def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True) -> StudyResult:
+    """Run a whole study.
+
+    Parameters
+    ----------
+    case : Case
+        A validated case (see :func:`grounding.load_case`).
+    progress : callable, optional
+        Called as progress(stage, fraction) during long stages.
+    estimate_error : bool
+        Also solve at twice the segment length to estimate the discretisation error of Rg.
+
+    Returns
+    -------
+    StudyResult
+    """
+    segments, kernel, solution, timings = _solve(case, progress)
+    fault = case.fault
+    df = decrement_factor(fault.x_over_r, fault.frequency, fault.clearing_time)
+    ig = df * fault.split_factor * fault.current
+    gpr = ig * solution.resistance
+    currents = solution.currents(ig)
+    t0 = time.perf_counter()
+    surface = surface_fields(segments, currents, gpr, kernel, case.surface, case.probes,
+                             progress=progress)
+    timings["surface_s"] = time.perf_counter() - t0
+    limits = tolerable_limits(case.soil.top_resistivity, case.surface_layer, fault.shock_duration)
+    el = case.electrodes
+    horizontal = [g.diameter for g in el.grids] + [c.diameter for c in el.conductors]
+    conductor = check_conductor(df * fault.current, fault.clearing_time, MATERIALS[el.material],
+                                el.ambient_temperature, el.max_temperature,
+                                min(horizontal) if horizontal else min(r.diameter for r in el.rods))
+    if estimate_error:
+        error = estimate_discretization_error(case, solution, len(segments))
+    else:
+        error = DiscretizationError(None, None, None, "not requested")
+    return StudyResult(case=case, segments=segments, kernel=kernel, solution=solution, decrement_factor=df,
+                       grid_current=ig, ground_potential_rise=gpr, segment_currents=currents, surface=surface,
+                       limits=limits, simplified=simplified_method(case, ig), conductor=conductor,
+                       discretization_error=error, timings=timings, warnings=segments.warnings)
