@@ -68,13 +68,33 @@ _S = 3 * _tau ** 2 - 2 * _tau ** 3
 _W = _w * 6 * _tau * (1 - _tau)
 
 
+def _closest_parameter(a, b, c, d):
+    """Parameter in [0, 1] along a→b of the point closest to the segment c→d."""
+    u, v, w = b - a, d - c, a - c
+    uu, uv, vv = (np.einsum("...k,...k->...", x, y) for x, y in ((u, u), (u, v), (v, v)))
+    uw, vw = np.einsum("...k,...k->...", u, w), np.einsum("...k,...k->...", v, w)
+    den = uu * vv - uv * uv
+    s = np.clip((uv * vw - vv * uw) / np.where(den > 0, den, 1.0), 0.0, 1.0)
+    t = np.clip((vw + s * uv) / vv, 0.0, 1.0)
+    return np.clip((t * uv - uw) / uu, 0.0, 1.0)
+
+
 def _oblique_pair(a, b, c, d, radius):
-    """∫∫ ds dt / |x(s) − y(t)| by quadrature on a→b and the closed form on c→d."""
+    """∫∫ ds dt / |x(s) − y(t)| by quadrature on a→b and the closed form on c→d.
+
+    The outer segment is split at its point closest to c→d, so that the near-singular point of the
+    inner integral sits at a sub-interval end, where the end-clustered nodes resolve it.
+    """
     L1 = np.linalg.norm(b - a, axis=-1)
-    pts = a[..., None, :] + _S[:, None] * (b - a)[..., None, :]          # (..., q, 3)
+    split = _closest_parameter(a, b, c, d)
     rad = np.asarray(radius)[..., None] if np.ndim(radius) else radius
-    inner = line_integral(pts, c[..., None, :], d[..., None, :], rad)     # (..., q)
-    return L1 * np.sum(inner * _W, axis=-1)
+    total = np.zeros(a.shape[:-1])
+    for lo, width in ((0.0, split), (split, 1.0 - split)):
+        f = np.asarray(lo)[..., None] + np.asarray(width)[..., None] * _S          # (..., q)
+        pts = a[..., None, :] + f[..., None] * (b - a)[..., None, :]
+        inner = line_integral(pts, c[..., None, :], d[..., None, :], rad)
+        total += width * np.sum(inner * _W, axis=-1)
+    return L1 * total
 
 
 def segment_pair_integral(a, b, c, d, radius) -> np.ndarray:
@@ -92,8 +112,9 @@ def segment_pair_integral(a, b, c, d, radius) -> np.ndarray:
     Returns
     -------
     ndarray, shape (n,)
-        The double integral, m. Exact for parallel pairs; Gauss–Legendre (order 12, end-clustered)
-        times the closed-form line integral otherwise.
+        The double integral, m. Exact for parallel pairs; Gauss–Legendre (order 12, end-clustered, on
+        the two parts of a→b either side of its point closest to c→d) times the closed-form line
+        integral otherwise.
     """
     a, b, c, d = (np.asarray(x, float) for x in (a, b, c, d))
     radius = np.broadcast_to(np.asarray(radius, float), a.shape[:-1])

@@ -1,0 +1,99 @@
+"""Command line: ``grounding study CASE`` and ``grounding check CASE``."""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from . import __version__
+from .case_loader import load_case
+from .errors import GroundingError
+
+
+class _Bar:
+    """tqdm progress bars per stage, on standard error."""
+
+    def __init__(self, enabled: bool):
+        self.enabled = enabled
+        self.bars = {}
+
+    def __call__(self, stage: str, fraction: float) -> None:
+        if not self.enabled:
+            return
+        from tqdm import tqdm
+
+        bar = self.bars.get(stage)
+        if bar is None:
+            bar = self.bars[stage] = tqdm(total=100, desc=f"{stage:<9}", unit="%", leave=False, file=sys.stderr,
+                                          bar_format="{desc} {bar} {percentage:3.0f}%")
+        bar.n = int(round(100 * min(1.0, fraction)))
+        bar.refresh()
+        if fraction >= 1.0:
+            bar.close()
+
+    def close(self):
+        for bar in self.bars.values():
+            bar.close()
+
+
+def _fail(exc: Exception) -> None:
+    click.echo(f"error: {exc}", err=True)
+    sys.exit(2)
+
+
+@click.group()
+@click.version_option(__version__, prog_name="grounding")
+def main():
+    """Earthing-grid studies: grid resistance, GPR, touch and step voltages against IEEE Std 80 limits.
+
+    A preliminary study aid: results must be reviewed by a licensed professional engineer.
+    """
+
+
+@main.command()
+@click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), help="Also write the results as JSON.")
+@click.option("--quiet", is_flag=True, help="No progress bars.")
+def study(case_file, json_file, quiet):
+    """Run a study of CASE (YAML) and print the summary."""
+    from .outputs.atomic import write_atomic
+    from .outputs.results_json import results_json
+    from .outputs.summary_text import study_summary
+    from .study import run_study
+
+    bar = _Bar(enabled=not quiet and sys.stderr.isatty())
+    try:
+        case = load_case(case_file)
+        result = run_study(case, progress=bar)
+        bar.close()
+        if json_file:
+            write_atomic(json_file, results_json(result))
+    except GroundingError as exc:
+        bar.close()
+        _fail(exc)
+    click.echo(study_summary(result))
+    if json_file:
+        click.echo(f"Results written to {json_file}")
+
+
+@main.command()
+@click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
+def check(case_file):
+    """Validate CASE without solving it."""
+    from .geometry import segment
+    from .study import check_model_size
+
+    try:
+        case = load_case(case_file)
+        segments = segment(case)
+        check_model_size(case, segments)
+    except GroundingError as exc:
+        _fail(exc)
+    click.echo(f"{case_file}: valid; {len(segments)} segments, {segments.total_length:.1f} m of electrode")
+    for w in segments.warnings:
+        click.echo(f"  note: {w}")
+
+
+if __name__ == "__main__":
+    main()

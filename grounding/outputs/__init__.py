@@ -1,0 +1,1 @@
+"""Outputs: the terminal summary and the JSON results, written atomically."""

@@ -1,0 +1,97 @@
+"""The study results as a JSON document (format 1; keys documented in docs/results-json.md)."""
+
+from __future__ import annotations
+
+import json
+import math
+
+from .. import __version__
+from ..study import StudyResult
+
+RESULTS_FORMAT = 1
+
+
+def _num(x, digits: int = 6):
+    """A float rounded to ``digits`` significant digits, or None for None/NaN."""
+    if x is None:
+        return None
+    x = float(x)
+    if not math.isfinite(x):
+        return None
+    return float(f"{x:.{digits}g}")
+
+
+def results_dict(r: StudyResult) -> dict:
+    """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named)."""
+    s = r.surface
+    c = r.case
+    summary = {
+        "grid_resistance_ohm": _num(r.grid_resistance),
+        "ground_potential_rise_v": _num(r.ground_potential_rise),
+        "grid_current_a": _num(r.grid_current),
+        "decrement_factor": _num(r.decrement_factor),
+        "max_touch_voltage_v": _num(s.max_touch.value),
+        "max_touch_at": [_num(s.max_touch.x), _num(s.max_touch.y)],
+        "max_step_voltage_v": _num(s.max_step.value),
+        "max_step_at": [_num(s.max_step.x), _num(s.max_step.y)],
+        "max_mesh_voltage_v": _num(s.max_mesh.value) if s.max_mesh else None,
+        "max_mesh_at": [_num(s.max_mesh.x), _num(s.max_mesh.y)] if s.max_mesh else None,
+        "tolerable_touch_voltage_v": _num(r.tolerable_touch),
+        "tolerable_step_voltage_v": _num(r.tolerable_step),
+        "body_weight_kg": r.body_weight,
+        "touch_ok": bool(r.touch_ok),
+        "step_ok": bool(r.step_ok),
+        "mesh_ok": r.mesh_ok,
+        "segments": len(r.segments),
+        "electrode_length_m": _num(r.segments.total_length),
+    }
+    probes = [{"x": _num(x), "y": _num(y), "surface_potential_v": _num(v), "touch_voltage_v": _num(t)}
+              for (x, y), v, t in zip(c.probes, s.probe_potential, r.probe_touch_voltages())]
+    simp = r.simplified
+    simplified = None
+    if simp.applicable:
+        simplified = {"grid_resistance_ohm": _num(simp.grid_resistance), "mesh_voltage_v": _num(simp.mesh_voltage),
+                      "step_voltage_v": _num(simp.step_voltage),
+                      "factors": {k: _num(v) for k, v in simp.factors.items()}}
+    err = r.discretization_error
+    return {
+        "format": RESULTS_FORMAT,
+        "tool": {"name": "grounding", "version": __version__},
+        "case": {"file": c.source, "sha256": c.sha256, "title": c.title},
+        "summary": summary,
+        "limits": {
+            "surface_layer_factor_cs": _num(r.limits.cs),
+            "surface_resistivity_ohm_m": _num(r.limits.surface_resistivity),
+            "shock_duration_s": c.fault.shock_duration,
+            "tolerable_touch_voltage_v": {str(w): _num(v) for w, v in r.limits.touch.items()},
+            "tolerable_step_voltage_v": {str(w): _num(v) for w, v in r.limits.step.items()},
+        },
+        "soil": {"layers": [{"resistivity": l.resistivity, **({"thickness": l.thickness} if l.thickness else {})}
+                            for l in c.soil.layers]},
+        "probes": probes,
+        "simplified": simplified,
+        "simplified_note": None if simp.applicable else simp.reason,
+        "conductor": {"required_area_mm2": _num(r.conductor.required_area_mm2),
+                      "actual_area_mm2": _num(r.conductor.actual_area_mm2), "ok": bool(r.conductor.ok),
+                      "sizing_current_a": _num(r.conductor.current_a),
+                      "max_temperature_c": r.conductor.max_temperature,
+                      "ambient_temperature_c": r.conductor.ambient_temperature,
+                      "material": c.electrodes.material},
+        "diagnostics": {
+            "assemble_s": _num(r.timings["assemble_s"], 4),
+            "solve_s": _num(r.timings["solve_s"], 4),
+            "surface_s": _num(r.timings["surface_s"], 4),
+            "discretization_error": {"estimate_ohm": _num(err.estimate_ohm), "relative": _num(err.relative),
+                                     "coarse_resistance_ohm": _num(err.coarse_resistance),
+                                     "note": err.note or None},
+            "solve_relative_residual": _num(r.solution.relative_residual, 3),
+            "max_segment_m": c.discretization.max_segment,
+        },
+        "warnings": list(r.warnings),
+        "cautions": list(r.cautions),
+    }
+
+
+def results_json(r: StudyResult) -> bytes:
+    """The results document as UTF-8 JSON bytes."""
+    return (json.dumps(results_dict(r), indent=2, ensure_ascii=False) + "\n").encode("utf-8")

@@ -1,0 +1,78 @@
+"""Geometry stage: segmentation at junctions, crossings, interfaces and max_segment; merging overlaps."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from grounding.geometry import segment
+
+
+def test_grid_cut_at_every_crossing(make_case):
+    case = make_case("grids: [{origin: [0, 0], size: [10, 6], meshes: [2, 3], depth: 0.5, diameter: 0.01}]\n"
+                     "", extra="discretization: {max_segment: 10}\n")
+    s = segment(case)
+    # 4 lines along x (cut into 2 by 3 crossings each) and 3 along y (cut into 3): 4*2 + 3*3
+    assert len(s) == 4 * 2 + 3 * 3
+    assert s.total_length == pytest.approx(4 * 10 + 3 * 6)
+    assert np.all(s.length <= 5 + 1e-12)
+
+
+def test_max_segment_respected_and_lengths_equal_within_piece(make_case):
+    case = make_case("conductors: [{start: [0, 0, 0.5], end: [10, 0, 0.5], diameter: 0.01}]\n",
+                     extra="discretization: {max_segment: 3}\n")
+    s = segment(case)
+    assert len(s) == 4
+    assert np.allclose(s.length, 2.5)
+
+
+def test_rod_cut_at_layer_interface(make_case):
+    case = make_case("rods: [{top: [0, 0, 0.5], length: 6, diameter: 0.016}]\n",
+                     soil="{layers: [{resistivity: 300, thickness: 2.2}, {resistivity: 50}]}",
+                     extra="discretization: {max_segment: 10}\n")
+    s = segment(case)
+    assert len(s) == 2
+    assert s.end[0, 2] == pytest.approx(2.2)
+    assert s.start[1, 2] == pytest.approx(2.2)
+
+
+def test_rod_top_on_conductor_cuts_it(make_case):
+    case = make_case("conductors: [{start: [0, 0, 0.5], end: [10, 0, 0.5], diameter: 0.01}]\n"
+                     "rods: [{top: [3, 0, 0.5], length: 2, diameter: 0.016}]\n",
+                     extra="discretization: {max_segment: 10}\n")
+    s = segment(case)
+    horizontal = s.length[~s.is_rod]
+    assert sorted(horizontal.round(6)) == [3.0, 7.0]
+
+
+def test_overlapping_collinear_conductors_merged(make_case):
+    case = make_case("grids: [{origin: [0, 0], size: [10, 10], meshes: [1, 1], depth: 0.5, diameter: 0.01}]\n"
+                     "conductors: [{start: [5, 0, 0.5], end: [15, 0, 0.5], diameter: 0.012}]\n")
+    s = segment(case)
+    assert s.total_length == pytest.approx(40 + 5)
+    assert any("overlap" in w for w in s.warnings)
+
+
+def test_adjacent_grids_share_their_edge(make_case):
+    case = make_case("grids:\n"
+                     "  - {origin: [0, 0], size: [10, 10], meshes: [2, 2], depth: 0.5, diameter: 0.01}\n"
+                     "  - {origin: [10, 0], size: [10, 10], meshes: [2, 2], depth: 0.5, diameter: 0.01}\n")
+    s = segment(case)
+    # 2 grids of 60 m each minus the shared 10 m edge
+    assert s.total_length == pytest.approx(110)
+
+
+def test_separate_electrodes_warned_as_bonded(make_case):
+    case = make_case("rods:\n  - {top: [0, 0, 0.5], length: 3, diameter: 0.016}\n"
+                     "  - {top: [20, 0, 0.5], length: 3, diameter: 0.016}\n")
+    s = segment(case)
+    assert any("bonded" in w for w in s.warnings)
+
+
+def test_oblique_crossing_found(make_case):
+    case = make_case("conductors:\n  - {start: [0, 0, 0.5], end: [10, 10, 0.5], diameter: 0.01}\n"
+                     "  - {start: [0, 10, 0.5], end: [10, 0, 0.5], diameter: 0.01}\n",
+                     extra="discretization: {max_segment: 100}\n")
+    s = segment(case)
+    assert len(s) == 4
+    assert np.allclose(s.length, np.sqrt(50))
