@@ -124,12 +124,16 @@ def far_matrix(segments: Segments, kernel: SoilKernel, progress: Progress | None
             for k, rows_all in enumerate(members):
                 for start in range(0, len(rows_all), ROW_CHUNK):
                     rows = rows_all[start:start + ROW_CHUNK]
-                    for q, cols in enumerate(members):
+                    # blocks k ≤ q only, mirrored, so that R is exactly symmetric
+                    for q in range(k, len(members)):
+                        cols = members[q]
                         block = kernel.radial(zc[k], zc[q])(cdist(xy[rows], xy[cols]))
                         if len(members) == 1:
                             out[rows] = block
                         else:
                             out[np.ix_(rows, cols)] = block
+                            if q != k:
+                                out[np.ix_(cols, rows)] = block.T
                     done += len(rows)
                     if progress:
                         progress("assemble", done / n)

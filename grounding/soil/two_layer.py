@@ -113,7 +113,7 @@ class TwoLayerSoil(SoilKernel):
         dz = abs(z - zp)
         r_c = max(dz, 0.05 * self.h, 1e-3)
         r_min = 1e-4 if dz < 1e-6 else 0.0
-        return RadialTable(lambda r: _sum_terms(terms, r, z, zp), r_c, r_min)
+        return RadialTable(lambda r: _sum_terms(terms, r, z, zp), r_c, r_min, weight_scale=dz)
 
     @lru_cache(maxsize=None)
     def remainder_radial(self, z: float, zp: float) -> Radial | None:
