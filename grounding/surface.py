@@ -118,6 +118,10 @@ def _gauss_point_values(evaluate, p, a, b) -> np.ndarray:
 def _near_point_values(p, segments: Segments, kernel: SoilKernel, j) -> np.ndarray:
     """(1/L_j) ∫_j G(p, x') ds' with the near terms in closed form and the remainder by Gauss."""
     a, b, L = segments.start[j], segments.end[j], segments.length[j]
+    # the thin-wire offset applies only inside the metal; elsewhere the exact distance is used
+    t = np.clip(np.einsum("ij,ij->i", p - a, b - a) / (L * L), 0.0, 1.0)
+    inside = np.linalg.norm(p - (a + t[:, None] * (b - a)), axis=1) < segments.radius[j]
+    offset = np.where(inside, segments.radius[j], 0.0)
     lo = kernel.layer_of(p[:, 2])
     ls = kernel.layer_of(segments.midpoint[j, 2])
     out = np.zeros(len(j))
@@ -132,7 +136,7 @@ def _near_point_values(p, segments: Segments, kernel: SoilKernel, j) -> np.ndarr
             for coef, s, t in zip(terms.coefficient, terms.sign, terms.shift):
                 c[:, 2] = s * a[m, 2] + t
                 d[:, 2] = s * b[m, 2] + t
-                acc += coef * line_integral(p[m], c, d, segments.radius[j[m]])
+                acc += coef * line_integral(p[m], c, d, offset[m])
             out[m] = acc / L[m]
     return out + _gauss_point_values(kernel.remainder, p, a, b)
 

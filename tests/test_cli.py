@@ -1,0 +1,119 @@
+"""Command line: study and check, the JSON keys, and one-line errors with exit code 2."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from grounding.cautions import CAUTIONS
+from grounding.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+SMALL = """\
+format: 1
+title: small yard
+soil: {resistivity: 150}
+surface_layer: {resistivity: 2500, thickness: 0.1}
+fault: {current: 4000, split_factor: 0.7, x_over_r: 10, clearing_time: 0.3}
+electrodes:
+  grids: [{origin: [0, 0], size: [20, 15], meshes: [4, 3], depth: 0.6, diameter: 0.01}]
+  rods: [{top: [0, 0, 0.6], length: 3, diameter: 0.016}]
+surface: {margin: 2, resolution: 1.0}
+probes: [[2.5, 2.5]]
+"""
+
+
+@pytest.fixture
+def small_case(tmp_path):
+    path = tmp_path / "small.yaml"
+    path.write_text(SMALL)
+    return path
+
+
+def run(*args):
+    return CliRunner().invoke(main, [str(a) for a in args])
+
+
+def test_study_prints_summary_and_cautions(small_case):
+    res = run("study", small_case, "--quiet")
+    assert res.exit_code == 0, res.output
+    for text in ("Grid resistance Rg", "Ground potential rise", "Touch voltage", "Step voltage", "Mesh voltage",
+                 "Sverak", "Required area", "PASS" if "PASS" in res.output else "FAIL"):
+        assert text in res.output
+    assert CAUTIONS[1].split()[0] in res.output and "licensed professional engineer" in res.output
+
+
+JSON_SUMMARY_KEYS = {"grid_resistance_ohm", "ground_potential_rise_v", "grid_current_a", "decrement_factor",
+                     "max_touch_voltage_v", "max_touch_at", "max_step_voltage_v", "max_step_at",
+                     "max_mesh_voltage_v", "tolerable_touch_voltage_v", "tolerable_step_voltage_v", "touch_ok",
+                     "step_ok", "segments", "electrode_length_m"}
+
+
+def test_study_json_has_stable_keys(small_case, tmp_path):
+    out = tmp_path / "res.json"
+    res = run("study", small_case, "--json", out, "--quiet")
+    assert res.exit_code == 0, res.output
+    doc = json.loads(out.read_text())
+    assert doc["format"] == 1
+    assert JSON_SUMMARY_KEYS <= set(doc["summary"])
+    assert set(doc["probes"][0]) == {"x", "y", "surface_potential_v", "touch_voltage_v"}
+    assert set(doc["simplified"]) >= {"grid_resistance_ohm", "mesh_voltage_v", "step_voltage_v"}
+    assert set(doc["conductor"]) >= {"required_area_mm2", "actual_area_mm2", "ok"}
+    assert set(doc["diagnostics"]) >= {"assemble_s", "solve_s", "surface_s", "discretization_error"}
+    assert doc["cautions"] == list(CAUTIONS)
+    s = doc["summary"]
+    assert s["ground_potential_rise_v"] == pytest.approx(s["grid_current_a"] * s["grid_resistance_ohm"], rel=1e-5)
+    assert s["touch_ok"] == (s["max_touch_voltage_v"] <= s["tolerable_touch_voltage_v"])
+    assert doc["probes"][0]["touch_voltage_v"] == pytest.approx(
+        s["ground_potential_rise_v"] - doc["probes"][0]["surface_potential_v"], rel=1e-5)
+
+
+def test_check_validates_only(small_case):
+    res = run("check", small_case)
+    assert res.exit_code == 0 and "valid" in res.output
+
+
+def test_bad_input_is_one_line_exit_2(tmp_path):
+    bad = tmp_path / "bad.yaml"
+    bad.write_text(SMALL.replace("length: 3,", "length: -3,"))
+    res = subprocess.run([sys.executable, "-m", "grounding.cli", "study", str(bad)], capture_output=True, text=True)
+    assert res.returncode == 2
+    assert "Traceback" not in res.stderr
+    lines = res.stderr.strip().splitlines()
+    assert len(lines) == 1
+    assert lines[0] == f"error: {bad}:8: electrodes.rods[0].length must be > 0 m, got -3"
+
+
+def test_too_large_discretisation_refused_with_size(tmp_path):
+    big = tmp_path / "big.yaml"
+    big.write_text(SMALL.replace("size: [20, 15], meshes: [4, 3]", "size: [3000, 3000], meshes: [30, 30]")
+                   + "discretization: {max_segment: 0.1}\n")
+    res = run("check", big)
+    assert res.exit_code == 2
+    assert "segments" in res.output and "GiB" in res.output and "max_segment of at least" in res.output
+
+
+def test_json_not_written_on_failure(tmp_path):
+    bad = tmp_path / "bad.yaml"
+    bad.write_text(SMALL.replace("resistivity: 150", "resistivity: -1"))
+    out = tmp_path / "res.json"
+    out.write_text("previous")
+    res = run("study", bad, "--json", out)
+    assert res.exit_code == 2
+    assert out.read_text() == "previous"
+
+
+def test_unwritable_json_path_is_a_clean_error(small_case, tmp_path):
+    res = run("study", small_case, "--json", tmp_path / "no-such-folder" / "r.json", "--quiet")
+    assert res.exit_code == 2 and "does not exist" in res.output
+
+
+@pytest.mark.parametrize("name", ["kestrel-bend-uniform.yaml", "kestrel-bend-two-layer.yaml"])
+def test_demo_cases_are_valid(name):
+    res = run("check", ROOT / "cases" / name)
+    assert res.exit_code == 0, res.output

@@ -1,0 +1,122 @@
+"""Surface stage: surface potential of known current distributions, touch, step and mesh voltages."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import shapely
+from scipy.integrate import quad
+
+from grounding.case_loader import parse_case
+from grounding.geometry import segment
+from grounding.soil import make_kernel
+from grounding.study import run_study
+from grounding.surface import surface_potential
+from tests.conftest import case_text
+
+ROD = "rods: [{top: [0, 0, 0], length: 5, diameter: 0.016}]\n"
+
+
+def rod_with_uniform_current(soil: str):
+    case = parse_case(case_text(ROD, soil=soil, extra="discretization: {max_segment: 0.25}\n"))
+    s = segment(case)
+    current = 10.0 * s.length / s.length.sum()           # 10 A leaking uniformly
+    return s, current, make_kernel(case.soil, 0.25)
+
+
+def test_uniform_rod_surface_potential_closed_form():
+    """Uniform line source from the surface to depth L in uniform soil (image coincides with the source
+    at the surface): V(r) = ρ I/(2π L) asinh(L/r) (integral of ρ I dz/(2π L √(r² + z²))).
+
+    Tolerance: beyond ``near_reach`` segment lengths the potential uses 2-point Gauss and, beyond
+    ``mid_reach``, the midpoint rule, whose relative error per segment is below L²/(24 d²); summed
+    over the rod that is about 1e-4 at these distances."""
+    s, i, k = rod_with_uniform_current("{resistivity: 120}")
+    r = np.array([0.2, 0.7, 2.0, 6.0, 20.0, 150.0])
+    v = surface_potential(np.column_stack([r, np.zeros_like(r)]), s, i, k)
+    expected = 120.0 * 10.0 / (2 * np.pi * 5.0) * np.arcsinh(5.0 / r)
+    assert np.allclose(v, expected, rtol=2e-4)
+
+
+def test_two_layer_rod_surface_potential_against_quadrature():
+    """Same uniform source in two-layer soil, against scipy.integrate.quad of the image series along the rod."""
+    soil = "{layers: [{resistivity: 300, thickness: 2}, {resistivity: 50}]}"
+    s, i, k = rod_with_uniform_current(soil)
+    for r in (0.3, 1.5, 8.0, 40.0):
+        ref = quad(lambda z: k.series(np.array([r]), 0.0, z)[0], 0, 5, points=[2.0], epsrel=1e-10)[0] * 10.0 / 5.0
+        v = surface_potential(np.array([[r, 0.0]]), s, i, k)[0]
+        assert v == pytest.approx(ref, rel=2e-4)   # same quadrature tiers as above
+
+
+GRID_CASE = """\
+format: 1
+soil: {resistivity: 200}
+surface_layer: {resistivity: 2000, thickness: 0.1}
+fault: {current: 5000, split_factor: 0.5, clearing_time: 0.5}
+electrodes:
+  grids: [{origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, diameter: 0.01}]
+surface: {margin: 3, resolution: 0.5}
+probes: [[5, 5], [15, 15], [60, 60]]
+"""
+
+
+@pytest.fixture(scope="module")
+def grid_result():
+    return run_study(parse_case(GRID_CASE), estimate_error=False)
+
+
+def test_far_surface_potential_is_point_source(grid_result):
+    """Far away the grid looks like a point source at the surface: V = ρ IG/(2π r)."""
+    r = grid_result
+    far = surface_potential(np.array([[10.0 + 2000.0, 10.0]]), r.segments, r.segment_currents, r.kernel)[0]
+    assert far == pytest.approx(200.0 * r.grid_current / (2 * np.pi * 2000.0), rel=1e-3)
+
+
+def test_currents_add_up_to_grid_current(grid_result):
+    assert grid_result.segment_currents.sum() == pytest.approx(grid_result.grid_current, rel=1e-12)
+
+
+def test_max_touch_is_at_least_every_mapped_value(grid_result):
+    s = grid_result.surface
+    assert s.max_touch.value >= np.nanmax(s.touch) - 1e-9
+    assert shapely.covers(s.touch_area, shapely.Point(s.max_touch.x, s.max_touch.y))
+    # the worst touch voltage of a plain square grid is near a corner mesh (well-known behaviour)
+    assert min(np.hypot(s.max_touch.x - cx, s.max_touch.y - cy) for cx in (0, 20) for cy in (0, 20)) < 8
+
+
+def test_mesh_voltage_is_inside_meshes_and_below_touch(grid_result):
+    s = grid_result.surface
+    assert s.max_mesh is not None
+    assert shapely.contains(s.meshes, shapely.Point(s.max_mesh.x, s.max_mesh.y))
+    assert s.max_mesh.value <= s.max_touch.value + 1e-9
+
+
+def test_symmetric_grid_gives_symmetric_potential(grid_result):
+    s = grid_result.surface
+    V = s.potential
+    assert np.allclose(V, V[:, ::-1], rtol=1e-6)
+    assert np.allclose(V, V.T, rtol=1e-6)
+
+
+def test_step_voltage_checked_exactly(grid_result):
+    """The reported step voltage is evaluated directly at both feet; it must match the spline map
+    to within the map's interpolation error and be the largest."""
+    s = grid_result.surface
+    assert s.max_step.value == pytest.approx(np.max(s.step), rel=0.03)
+    r = grid_result
+    x, y = s.max_step.x, s.max_step.y
+    ang = np.linspace(0, 2 * np.pi, 73)
+    ends = np.column_stack([x + np.cos(ang), y + np.sin(ang)])
+    v0 = surface_potential(np.array([[x, y]]), r.segments, r.segment_currents, r.kernel)[0]
+    v = surface_potential(ends, r.segments, r.segment_currents, r.kernel)
+    assert np.abs(v - v0).max() <= s.max_step.value * (1 + 1e-9)
+
+
+def test_probe_touch_voltage(grid_result):
+    r = grid_result
+    t = r.probe_touch_voltages()
+    assert t[0] == pytest.approx(t[1], rel=1e-6)          # symmetric mesh centres
+    assert t[2] > t[0]                                    # far outside: almost the whole GPR
+    # 70.7 m from the grid centre the grid acts as a point source at the surface: V = ρ IG / (2π d)
+    d = np.hypot(50.0, 50.0)
+    assert r.surface.probe_potential[2] == pytest.approx(200.0 * r.grid_current / (2 * np.pi * d), rel=0.02)
