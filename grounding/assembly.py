@@ -29,7 +29,7 @@ Progress = Callable[[str, float], None]
 #: Above this many distinct segment depths the far field is evaluated point-pair-wise.
 MAX_DEPTH_CLASSES = 64
 #: Rows per chunk of the far-field evaluation.
-ROW_CHUNK = 512
+ROW_CHUNK = 128
 #: Pairs per chunk of the near-field evaluation.
 PAIR_CHUNK = 40_000
 #: Bytes of one matrix entry (float64).

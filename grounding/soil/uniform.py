@@ -34,8 +34,16 @@ class UniformSoil(SoilKernel):
         dm2, dp2 = (z - zp) ** 2, (z + zp) ** 2
 
         def g(r):
+            # in-place arithmetic: this runs over every far pair of the matrix
             r2 = np.square(r)
-            return c * (1.0 / np.sqrt(r2 + dm2) + 1.0 / np.sqrt(r2 + dp2))
+            direct = r2 + dm2
+            np.sqrt(direct, out=direct)
+            np.divide(c, direct, out=direct)
+            r2 += dp2
+            np.sqrt(r2, out=r2)
+            np.divide(c, r2, out=r2)
+            direct += r2
+            return direct
 
         return g
 
