@@ -187,6 +187,8 @@ class SurfaceMap:
         Explicit touch-area polygon, m; replaces the default when given.
     step_distance : float
         Step length, m.
+    profile : ((x, y), (x, y)) or None
+        Line along which the potential profile is reported, m; None means the map's diagonal.
     """
 
     margin: float = 3.0
@@ -194,6 +196,7 @@ class SurfaceMap:
     touch_reach: float = 1.0
     touch_area: tuple[Point2, ...] | None = None
     step_distance: float = 1.0
+    profile: tuple[Point2, Point2] | None = None
 
 
 @dataclass(frozen=True)
@@ -209,5 +212,6 @@ class Case:
     discretization: Discretization = field(default_factory=Discretization)
     surface: SurfaceMap = field(default_factory=SurfaceMap)
     probes: tuple[Point2, ...] = ()
+    site: str = ""
     source: str = ""
     sha256: str = ""

@@ -214,7 +214,7 @@ class _CaseReader:
         data = self.doc.data
         if data is None:
             raise self.doc.fail("", "is empty; a case needs at least format, soil, fault and electrodes")
-        top = self.mapping("", data, ("format", "title", "soil", "surface_layer", "fault", "criteria",
+        top = self.mapping("", data, ("format", "title", "site", "soil", "surface_layer", "fault", "criteria",
                                        "electrodes", "discretization", "surface", "probes"),
                            ("format", "soil", "fault", "electrodes"))
         fmt = top["format"]
@@ -223,6 +223,8 @@ class _CaseReader:
         title = top.get("title", Path(self.doc.file).stem)
         if not isinstance(title, str):
             title = str(title)
+        site = top.get("site", "")
+        site = "" if site is None else str(site)
         soil = self.soil(top["soil"])
         surface_layer = self.surface_layer(top.get("surface_layer"))
         fault = self.fault(top["fault"])
@@ -234,7 +236,7 @@ class _CaseReader:
                        for i, p in enumerate(self.sequence("probes", top.get("probes"))))
         return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
                     surface_layer=surface_layer, discretization=discretization, surface=surface,
-                    probes=probes, source=self.doc.file, sha256=sha256)
+                    probes=probes, site=site, source=self.doc.file, sha256=sha256)
 
     def soil(self, value: Any) -> Soil:
         m = self.mapping("soil", value, ("resistivity", "layers"))
@@ -368,7 +370,8 @@ class _CaseReader:
 
     def surface(self, value: Any) -> SurfaceMap:
         p = "surface"
-        m = self.mapping(p, value or {}, ("margin", "resolution", "touch_reach", "touch_area", "step_distance"))
+        m = self.mapping(p, value or {}, ("margin", "resolution", "touch_reach", "touch_area", "step_distance",
+                                          "profile"))
         margin = self.number(f"{p}.margin", m.get("margin", 3.0), "m", ge=0)
         res = self.number(f"{p}.resolution", m.get("resolution", 0.5), "m", gt=0)
         reach = self.number(f"{p}.touch_reach", m.get("touch_reach", 1.0), "m", ge=0)
@@ -379,4 +382,12 @@ class _CaseReader:
             if len(pts) < 3:
                 raise self.doc.fail(f"{p}.touch_area", "must be a polygon of at least 3 [x, y] corners in m")
             area = tuple(self.vector(f"{p}.touch_area[{i}]", q, 2, "m", "x, y") for i, q in enumerate(pts))
-        return SurfaceMap(margin=margin, resolution=res, touch_reach=reach, touch_area=area, step_distance=step)
+        profile = m.get("profile")
+        if profile is not None:
+            if not isinstance(profile, list) or len(profile) != 2:
+                raise self.doc.fail(f"{p}.profile", "must be two [x, y] points in m: [[x0, y0], [x1, y1]]")
+            profile = tuple(self.vector(f"{p}.profile[{i}]", q, 2, "m", "x, y") for i, q in enumerate(profile))
+            if math.dist(*profile) < 1e-6:
+                raise self.doc.fail(f"{p}.profile", "has zero length; give two different points")
+        return SurfaceMap(margin=margin, resolution=res, touch_reach=reach, touch_area=area, step_distance=step,
+                          profile=profile)

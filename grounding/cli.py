@@ -54,27 +54,56 @@ def main():
 @main.command()
 @click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
 @click.option("--json", "json_file", type=click.Path(dir_okay=False), help="Also write the results as JSON.")
+@click.option("--report", "report_file", type=click.Path(dir_okay=False), help="Also write the review report (PDF).")
+@click.option("--plots", "plots_dir", type=click.Path(file_okay=False), help="Also write the figures as PNG files here.")
+@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write the surface map as CSV.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
-def study(case_file, json_file, quiet):
+def study(case_file, json_file, report_file, plots_dir, csv_file, quiet):
     """Run a study of CASE (YAML) and print the summary."""
-    from .outputs.atomic import write_atomic
-    from .outputs.results_json import results_json
     from .outputs.summary_text import study_summary
     from .study import run_study
 
     bar = _Bar(enabled=not quiet and sys.stderr.isatty())
+    written = []
     try:
         case = load_case(case_file)
         result = run_study(case, progress=bar)
         bar.close()
-        if json_file:
-            write_atomic(json_file, results_json(result))
+        written = _write_outputs(result, json_file, report_file, plots_dir, csv_file)
     except GroundingError as exc:
         bar.close()
         _fail(exc)
     click.echo(study_summary(result))
+    for path in written:
+        click.echo(f"Written: {path}")
+
+
+def _write_outputs(result, json_file, report_file, plots_dir, csv_file) -> list[str]:
+    """Build every requested output in memory first, then write each atomically."""
+    from pathlib import Path
+
+    from .outputs.atomic import write_atomic
+
+    files: list[tuple[str, bytes]] = []
     if json_file:
-        click.echo(f"Results written to {json_file}")
+        from .outputs.results_json import results_json
+        files.append((json_file, results_json(result)))
+    if csv_file:
+        from .outputs.surface_csv import surface_csv
+        files.append((csv_file, surface_csv(result)))
+    if plots_dir:
+        from .outputs.figures import all_figures, png_bytes
+        folder = Path(plots_dir)
+        if not folder.parent.is_dir():
+            raise GroundingError(f"{plots_dir}: parent folder '{folder.parent}' does not exist")
+        folder.mkdir(exist_ok=True)
+        files += [(str(folder / f"{f.name}.png"), png_bytes(f.figure)) for f in all_figures(result)]
+    if report_file:
+        from .outputs.report_pdf import build_report
+        files.append((report_file, build_report(result)))
+    for path, data in files:
+        write_atomic(path, data)
+    return [p for p, _ in files]
 
 
 @main.command()

@@ -195,6 +195,8 @@ class SurfaceResult:
         Worst touch voltage inside the meshes; None when the layout has no closed mesh.
     probe_potential : ndarray
         Surface potential at the case's probe points, V.
+    profile : Profile
+        Surface potential along the profile line.
     """
 
     x: np.ndarray
@@ -208,6 +210,21 @@ class SurfaceResult:
     max_step: Extreme
     max_mesh: Extreme | None
     probe_potential: np.ndarray
+    profile: "Profile"
+
+
+@dataclass(frozen=True)
+class Profile:
+    """Surface potential along a straight line: distance along it, x, y (m) and potential (V)."""
+
+    distance: np.ndarray
+    x: np.ndarray
+    y: np.ndarray
+    potential: np.ndarray
+
+
+#: Points along the potential profile.
+PROFILE_POINTS = 301
 
 
 def map_axes(segments: Segments, surface: SurfaceMap) -> tuple[np.ndarray, np.ndarray]:
@@ -273,7 +290,11 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
         max_mesh = _worst_touch(np.where(in_mesh, gpr - V, np.nan), X, Y, exact, gpr, surface.resolution, meshes)
     step, max_step = _step_voltages(x, y, V, surface.step_distance, potential)
     probe_v = potential(np.array(probes, float).reshape(-1, 2)) if probes else np.zeros(0)
-    return SurfaceResult(x, y, V, touch, step, area, meshes, max_touch, max_step, max_mesh, probe_v)
+    (x0, y0), (x1, y1) = surface.profile or ((x[0], y[0]), (x[-1], y[-1]))
+    f = np.linspace(0.0, 1.0, PROFILE_POINTS)
+    px, py = x0 + f * (x1 - x0), y0 + f * (y1 - y0)
+    profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, potential(np.column_stack([px, py])))
+    return SurfaceResult(x, y, V, touch, step, area, meshes, max_touch, max_step, max_mesh, probe_v, profile)
 
 
 def _worst_touch(touch, X, Y, exact, gpr, resolution, region) -> Extreme:

@@ -31,7 +31,8 @@ def test_matrix_symmetric_positive_definite(soil):
     assert np.linalg.eigvalsh(R).min() > 0
 
 
-@pytest.mark.parametrize("soil", ["{resistivity: 100}", TWO_LAYER])
+@pytest.mark.parametrize("soil", ["{resistivity: 100}", TWO_LAYER,
+                                  "{layers: [{resistivity: 40, thickness: 0.3}, {resistivity: 400}]}"])
 def test_tiers_agree_with_exact_everywhere(soil):
     """Treating every pair as near (exact near terms) must give the same Rg as the three tiers."""
     tiered = solve_equipotential(matrix(soil)).resistance

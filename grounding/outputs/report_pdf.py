@@ -1,0 +1,336 @@
+"""The review report: a self-contained PDF a licensed reviewer can check line by line.
+
+Sections: cover (identity, verdicts, cautions), inputs, plan, results, figures, method and
+assumptions with a live validation table, and a reviewer block. Cautions stand in the footer of every
+page. The PDF is built in memory and written atomically; with the same case and date it is
+byte-for-byte reproducible.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import io
+from pathlib import Path
+
+import matplotlib
+from reportlab.lib import colors
+from reportlab.lib.enums import TA_LEFT
+from reportlab.lib.pagesizes import A4
+from reportlab.lib.styles import ParagraphStyle
+from reportlab.lib.units import mm
+from reportlab.pdfbase import pdfmetrics
+from reportlab.pdfbase.ttfonts import TTFont
+from reportlab.platypus import (BaseDocTemplate, Frame, Image, KeepTogether, PageBreak, PageTemplate, Paragraph,
+                                Spacer, Table, TableStyle)
+
+from .. import __version__
+from ..cautions import CAUTIONS
+from ..study import StudyResult
+from ..validation import validation_checks
+from .figures import all_figures, png_bytes
+from .summary_text import soil_text
+
+INK = colors.HexColor("#1c2833")
+ACCENT = colors.HexColor("#1f3b73")
+WARN = colors.HexColor("#b03a2e")
+PALE = colors.HexColor("#eef1f6")
+FAIL_BG = colors.HexColor("#f6dcd8")
+PASS_BG = colors.HexColor("#dcefe0")
+
+
+def _register_fonts() -> tuple[str, str]:
+    """DejaVu Sans (shipped with matplotlib) covers Ω, ρ, ², √ and the other symbols of the report."""
+    if "DejaVuSans" not in pdfmetrics.getRegisteredFontNames():
+        base = Path(matplotlib.get_data_path()) / "fonts" / "ttf"
+        pdfmetrics.registerFont(TTFont("DejaVuSans", str(base / "DejaVuSans.ttf")))
+        pdfmetrics.registerFont(TTFont("DejaVuSans-Bold", str(base / "DejaVuSans-Bold.ttf")))
+    return "DejaVuSans", "DejaVuSans-Bold"
+
+
+def _styles():
+    reg, bold = _register_fonts()
+    s = {
+        "body": ParagraphStyle("body", fontName=reg, fontSize=9, leading=12, textColor=INK, alignment=TA_LEFT),
+        "small": ParagraphStyle("small", fontName=reg, fontSize=7.5, leading=9.5, textColor=INK),
+        "h1": ParagraphStyle("h1", fontName=bold, fontSize=14, leading=18, textColor=ACCENT, spaceBefore=6,
+                             spaceAfter=6),
+        "h2": ParagraphStyle("h2", fontName=bold, fontSize=11, leading=14, textColor=ACCENT, spaceBefore=8,
+                             spaceAfter=4),
+        "title": ParagraphStyle("title", fontName=bold, fontSize=20, leading=25, textColor=INK, spaceAfter=4),
+        "subtitle": ParagraphStyle("subtitle", fontName=reg, fontSize=11, leading=15, textColor=INK),
+        "caution": ParagraphStyle("caution", fontName=reg, fontSize=9, leading=12, textColor=WARN),
+    }
+    s["reg"], s["bold"] = reg, bold
+    return s
+
+
+def _v(x: float) -> str:
+    return f"{x / 1000:,.2f} kV" if abs(x) >= 10_000 else f"{x:,.0f} V"
+
+
+def _table(rows, widths, st, header=True, verdict_col=None, row_heights=None):
+    style = [
+        ("FONT", (0, 0), (-1, -1), st["reg"], 8.5),
+        ("TEXTCOLOR", (0, 0), (-1, -1), INK),
+        ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+        ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#c5cbd3")),
+        ("TOPPADDING", (0, 0), (-1, -1), 2.5),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 2.5),
+    ]
+    if header:
+        style += [("FONT", (0, 0), (-1, 0), st["bold"], 8.5), ("BACKGROUND", (0, 0), (-1, 0), PALE),
+                  ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT)]
+    if verdict_col is not None:
+        for i, row in enumerate(rows[1:] if header else rows, start=1 if header else 0):
+            cell = str(row[verdict_col])
+            if cell.startswith("FAIL"):
+                style.append(("BACKGROUND", (verdict_col, i), (verdict_col, i), FAIL_BG))
+            elif cell.startswith("PASS"):
+                style.append(("BACKGROUND", (verdict_col, i), (verdict_col, i), PASS_BG))
+    t = Table(rows, colWidths=widths, rowHeights=row_heights, hAlign="LEFT", repeatRows=1 if header else 0)
+    t.setStyle(TableStyle(style))
+    return t
+
+
+def _caution_box(st):
+    paras = [Paragraph("<b>CAUTION</b>", st["caution"])] + [Paragraph("• " + c, st["caution"]) for c in CAUTIONS]
+    t = Table([[p] for p in paras], colWidths=[170 * mm])
+    t.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1.2, WARN), ("BACKGROUND", (0, 0), (-1, -1),
+                                                                      colors.HexColor("#fdf2f0")),
+                           ("TOPPADDING", (0, 0), (-1, -1), 2), ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
+                           ("LEFTPADDING", (0, 0), (-1, -1), 6)]))
+    return t
+
+
+def _verdict(ok):
+    return "n/a" if ok is None else ("PASS" if ok else "FAIL")
+
+
+def _margin(value, limit):
+    return f"{(limit - value) / limit * 100:+.0f} %"
+
+
+def _verdict_rows(r: StudyResult):
+    s = r.surface
+    rows = [["Criterion", "Worst computed", "Tolerable", "Margin", "Verdict", "Where (x, y) m"],
+            ["Touch voltage", _v(s.max_touch.value), _v(r.tolerable_touch), _margin(s.max_touch.value, r.tolerable_touch),
+             _verdict(r.touch_ok), f"({s.max_touch.x:.1f}, {s.max_touch.y:.1f})"],
+            ["Step voltage", _v(s.max_step.value), _v(r.tolerable_step), _margin(s.max_step.value, r.tolerable_step),
+             _verdict(r.step_ok), f"({s.max_step.x:.1f}, {s.max_step.y:.1f})"]]
+    if s.max_mesh is not None:
+        rows.append(["Mesh voltage", _v(s.max_mesh.value), _v(r.tolerable_touch),
+                     _margin(s.max_mesh.value, r.tolerable_touch), _verdict(r.mesh_ok),
+                     f"({s.max_mesh.x:.1f}, {s.max_mesh.y:.1f})"])
+    else:
+        rows.append(["Mesh voltage", "—", _v(r.tolerable_touch), "", "n/a", "no closed mesh"])
+    c = r.conductor
+    rows.append(["Conductor size", f"{c.actual_area_mm2:.1f} mm² fitted", f"{c.required_area_mm2:.1f} mm² needed",
+                 _margin(c.required_area_mm2, c.actual_area_mm2) if c.actual_area_mm2 else "", _verdict(c.ok), ""])
+    return rows
+
+
+def build_report(r: StudyResult, date: str | None = None, readings_sha256: str | None = None) -> bytes:
+    """The review report as PDF bytes.
+
+    Parameters
+    ----------
+    r : StudyResult
+        A finished study.
+    date : str, optional
+        Report date (ISO); default today (UTC). The only content that changes between runs.
+    readings_sha256 : str, optional
+        Hash of a soil-readings file the soil model was fitted from.
+    """
+    st = _styles()
+    date = date or _dt.datetime.now(_dt.timezone.utc).date().isoformat()
+    c, f, s = r.case, r.case.fault, r.surface
+    buf = io.BytesIO()
+
+    def decorate(canvas, doc):
+        canvas.saveState()
+        w, h = A4
+        canvas.setStrokeColor(ACCENT)
+        canvas.setLineWidth(1.5)
+        canvas.line(18 * mm, h - 14 * mm, w - 18 * mm, h - 14 * mm)
+        canvas.setFont(st["bold"], 8)
+        canvas.setFillColor(ACCENT)
+        canvas.drawString(18 * mm, h - 12 * mm, "EARTHING GRID STUDY · REVIEW COPY")
+        canvas.setFont(st["reg"], 8)
+        canvas.drawRightString(w - 18 * mm, h - 12 * mm, f"{c.title[:70]} · page {doc.page}")
+        canvas.setStrokeColor(WARN)
+        canvas.setLineWidth(0.8)
+        canvas.line(18 * mm, 17 * mm, w - 18 * mm, 17 * mm)
+        canvas.setFillColor(WARN)
+        canvas.setFont(st["reg"], 6.6)
+        canvas.drawString(18 * mm, 13.5 * mm, "CAUTION: preliminary study aid only. Results must be reviewed by a "
+                          "licensed professional engineer and checked against local codes and the")
+        canvas.drawString(18 * mm, 10.5 * mm, "utility's practice. Soil and fault data dominate the answer. "
+                          f"Case SHA-256 {c.sha256[:16]}… · grounding {__version__} · {date}")
+        canvas.restoreState()
+
+    doc = BaseDocTemplate(buf, pagesize=A4, leftMargin=20 * mm, rightMargin=20 * mm, topMargin=20 * mm,
+                          bottomMargin=22 * mm, title=f"Earthing grid study: {c.title}", author="grounding",
+                          subject="Earthing grid study for review", creator=f"grounding {__version__}",
+                          invariant=1)
+    frame = Frame(doc.leftMargin, doc.bottomMargin, doc.width, doc.height, id="body")
+    doc.addPageTemplates([PageTemplate(id="page", frames=[frame], onPage=decorate)])
+    P = lambda text, style="body": Paragraph(text, st[style])  # noqa: E731
+    story = []
+
+    # ---- cover -------------------------------------------------------------------------------
+    story += [Spacer(1, 8 * mm), P("Earthing grid study", "subtitle"), P(c.title, "title")]
+    ident = [["Site", c.site or "—"], ["Date", date], ["Tool", f"grounding {__version__}"],
+             ["Case file", c.source], ["Case SHA-256", c.sha256]]
+    if readings_sha256:
+        ident.append(["Readings SHA-256", readings_sha256])
+    story += [Spacer(1, 4 * mm), _table(ident, [35 * mm, 135 * mm], st, header=False), Spacer(1, 6 * mm)]
+    overall = all(x is not False for x in (r.touch_ok, r.step_ok, r.mesh_ok, r.conductor.ok))
+    story.append(P(f"<b>Overall: {'all criteria PASS' if overall else 'at least one criterion FAILS'}</b> "
+                   f"(IEEE Std 80, {r.body_weight} kg body, ts = {f.shock_duration:g} s)", "h2"))
+    story += [_table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
+              Spacer(1, 4 * mm)]
+    story.append(P(f"Grid resistance Rg = <b>{r.grid_resistance:.4f} Ω</b>; grid current IG = "
+                   f"<b>{r.grid_current / 1000:.3f} kA</b>; ground potential rise GPR = <b>{_v(r.ground_potential_rise)}</b>."))
+    story += [Spacer(1, 6 * mm), _caution_box(st), PageBreak()]
+
+    # ---- 1 inputs ------------------------------------------------------------------------------
+    story.append(P("1  Inputs", "h1"))
+    story.append(P("1.1  Soil and surface layer", "h2"))
+    soil_rows = [["Layer", "Resistivity", "Thickness"]]
+    for i, layer in enumerate(c.soil.layers, start=1):
+        soil_rows.append([str(i), f"{layer.resistivity:g} Ω·m",
+                          f"{layer.thickness:g} m" if layer.thickness else "to infinite depth"])
+    story.append(_table(soil_rows, [20 * mm, 40 * mm, 50 * mm], st))
+    story.append(P(f"Model: {soil_text(c)}."))
+    if c.surface_layer:
+        story.append(P(f"Surface layer: {c.surface_layer.resistivity:g} Ω·m, {c.surface_layer.thickness * 1000:.0f} mm; "
+                       f"derating factor Cs = 1 − 0.09 (1 − ρ/ρs)/(2 hs + 0.09) = <b>{r.limits.cs:.3f}</b> "
+                       f"(ρ = {c.soil.top_resistivity:g} Ω·m). Used in the limits only, not in the solve."))
+    else:
+        story.append(P(f"No surface layer: people stand on the top soil, ρs = {r.limits.surface_resistivity:g} Ω·m, Cs = 1."))
+    story.append(P("1.2  Fault and grid current", "h2"))
+    xr = "not given (Df = 1)" if f.x_over_r is None else f"{f.x_over_r:g}"
+    fault_rows = [["Quantity", "Value", "Note"],
+                  ["Fault current 3I0", f"{f.current / 1000:.3f} kA", "symmetrical rms"],
+                  ["Split factor Sf", f"{f.split_factor:g}", "share into the soil through this grid"],
+                  ["X/R", xr, f"at {f.frequency:g} Hz"],
+                  ["Clearing time tf", f"{f.clearing_time:g} s", "decrement factor, conductor heating"],
+                  ["Decrement factor Df", f"{r.decrement_factor:.4f}", "√(1 + (Ta/tf)(1 − e^(−2tf/Ta))), Ta = (X/R)/(2πf)"],
+                  ["Grid current IG", f"{r.grid_current / 1000:.3f} kA", "IG = Df · Sf · 3I0"]]
+    story.append(_table(fault_rows, [40 * mm, 30 * mm, 100 * mm], st))
+    story.append(P("1.3  Criteria and discretisation", "h2"))
+    el = c.electrodes
+    crit_rows = [["Item", "Value"],
+                 ["Body weight (verdicts)", f"{c.criteria.body_weight} kg"],
+                 ["Shock duration ts", f"{f.shock_duration:g} s"],
+                 ["Electrodes", f"{len(el.grids)} grid(s), {len(el.conductors)} conductor(s), {len(el.rods)} rod(s); "
+                                f"{r.segments.total_length:,.1f} m in all"],
+                 ["Material", el.material],
+                 ["Discretisation", f"{len(r.segments)} segments, at most {c.discretization.max_segment:g} m"],
+                 ["Map", f"margin {c.surface.margin:g} m, spacing {c.surface.resolution:g} m, "
+                         f"{len(s.x)} × {len(s.y)} points"],
+                 ["Touch area", "explicit polygon" if c.surface.touch_area else
+                  f"grid meshes plus {c.surface.touch_reach:g} m around every conductor and rod"],
+                 ["Step length", f"{c.surface.step_distance:g} m"]]
+    story.append(_table(crit_rows, [45 * mm, 125 * mm], st))
+    if r.warnings:
+        story.append(P("Notes on how the geometry was read:", "body"))
+        for w in r.warnings:
+            story.append(P("• " + w, "small"))
+
+    # ---- 2 plan -------------------------------------------------------------------------------
+    figs = {fig.name: fig for fig in all_figures(r)}
+
+    def image(name, width=165 * mm):
+        fig = figs[name].figure
+        wi, hi = fig.get_size_inches()
+        return Image(io.BytesIO(png_bytes(fig)), width=width, height=width * hi / wi)
+
+    story += [PageBreak(), P("2  Electrode plan", "h1"), image("plan"),
+              P("To scale; +y is taken as north. Rods are dots, probes triangles (P1, P2, …)."),
+              Spacer(1, 3 * mm)]
+    if c.probes:
+        rows = [["Probe", "x m", "y m", "Surface potential", "Touch voltage"]]
+        for k, ((x, y), v, t) in enumerate(zip(c.probes, s.probe_potential, r.probe_touch_voltages()), start=1):
+            rows.append([f"P{k}", f"{x:.1f}", f"{y:.1f}", _v(v), _v(t)])
+        story.append(_table(rows, [20 * mm, 20 * mm, 20 * mm, 40 * mm, 40 * mm], st))
+
+    # ---- 3 results ----------------------------------------------------------------------------
+    err = r.discretization_error
+    err_text = (f"± {err.estimate_ohm:.4f} Ω ({err.relative * 100:.2f} %), from Rg at twice the segment length "
+                f"({err.coarse_resistance:.4f} Ω)") if err.relative is not None else err.note
+    story += [PageBreak(), P("3  Results", "h1"), P("3.1  Grid", "h2"),
+              _table([["Quantity", "Value", "Note"],
+                      ["Grid resistance Rg", f"{r.grid_resistance:.4f} Ω", err_text],
+                      ["Ground potential rise", _v(r.ground_potential_rise), "GPR = IG · Rg"],
+                      ["Solve residual", f"{r.solution.relative_residual:.1e}", "‖R i − 1‖ / √N after Cholesky"]],
+                     [40 * mm, 30 * mm, 100 * mm], st),
+              P("3.2  Touch, step and mesh voltages", "h2"),
+              _table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
+              P(f"Tolerable limits (Dalziel, IEEE Std 80): touch (1000 + 1.5 Cs ρs)·k/√ts, step (1000 + 6 Cs ρs)·k/√ts; "
+                f"50 kg: touch {_v(r.limits.touch[50])}, step {_v(r.limits.step[50])}; "
+                f"70 kg: touch {_v(r.limits.touch[70])}, step {_v(r.limits.step[70])}.")]
+    cc = r.conductor
+    story += [P("3.3  Conductor sizing", "h2"),
+              P(f"IEEE Std 80 equation for {el.material} with the standard's material constants: the current "
+                f"Df · 3I0 = {cc.current_a / 1000:.2f} kA for tf = {f.clearing_time:g} s, from Ta = "
+                f"{cc.ambient_temperature:g} °C to Tm = {cc.max_temperature:g} °C needs "
+                f"<b>{cc.required_area_mm2:.1f} mm²</b>; the smallest conductor has {cc.actual_area_mm2:.1f} mm² "
+                f"→ <b>{_verdict(cc.ok)}</b>. "
+                + ("Tm is the fusing temperature: joints usually need a lower limit (give electrodes.max_temperature)."
+                   if c.electrodes.max_temperature is None else ""))]
+    simp = r.simplified
+    story.append(P("3.4  IEEE Std 80 simplified method beside the numerical result", "h2"))
+    if simp.applicable:
+        fa = simp.factors
+        story.append(_table([["Quantity", "Simplified method", "Numerical (this study)"],
+                             ["Grid resistance", f"{simp.grid_resistance:.4f} Ω (Sverak)", f"{r.grid_resistance:.4f} Ω"],
+                             ["Mesh voltage", f"{_v(simp.mesh_voltage)} (Em)",
+                              _v(s.max_mesh.value) if s.max_mesh else "—"],
+                             ["Step voltage", f"{_v(simp.step_voltage)} (Es)", _v(s.max_step.value)]],
+                            [45 * mm, 55 * mm, 55 * mm], st))
+        story.append(P(f"n = {fa['n']:.2f}, Km = {fa['Km']:.4f}, Ki = {fa['Ki']:.3f}, Ks = {fa['Ks']:.4f}, "
+                       f"Kii = {fa['Kii']:.3f}, Kh = {fa['Kh']:.3f}, D = {fa['D']:.2f} m, LC = {fa['LC']:.1f} m, "
+                       f"LR = {fa['LR']:.1f} m, LM = {fa['LM']:.1f} m, LS = {fa['LS']:.1f} m.", "small"))
+    else:
+        story.append(P(f"Not applicable: {simp.reason}."))
+
+    # ---- 4 figures ----------------------------------------------------------------------------
+    story += [PageBreak(), P("4  Surface potentials", "h1"), image("potential", 160 * mm), image("profile", 160 * mm),
+              PageBreak(), P("5  Touch and step voltages", "h1"), image("touch", 160 * mm),
+              P("Hatched: touch voltage above the tolerable limit; red line: the limit contour; ✕: the worst point "
+                "(refined by a local search on the exact potential).", "small"),
+              image("step", 160 * mm)]
+
+    # ---- 6 method -----------------------------------------------------------------------------
+    story += [PageBreak(), P("6  Method and assumptions", "h1")]
+    for text in (
+        "The electrodes form one equipotential body at the GPR. The soil is a half-space under insulating air, "
+        "uniform or in horizontal layers; the surface layer enters the limits only. Conductors are thin wires; "
+        "each segment leaks a constant current, the unknowns of a Galerkin method of moments: "
+        "R<sub>ij</sub> = 1/(L<sub>i</sub>L<sub>j</sub>) ∫∫ G ds ds′, R i = V, solved by Cholesky factorisation.",
+        "Kernel G: uniform soil with the surface image; two-layer soil by the image series of Sunde (1949) and "
+        "Tagg (1964), truncated at a relative tail of 1e-6. Near pairs are integrated exactly (closed form for "
+        "parallel wires, end-clustered Gauss–Legendre otherwise), far pairs at midpoints.",
+        "Touch voltage = GPR − surface potential over the touch area; step voltage = largest potential "
+        "difference between a point and the points one step away, over the whole map; mesh voltage = worst "
+        "touch voltage inside the grid meshes.",
+        "Validity: conductor impedance neglected (equipotential electrodes); power-frequency earth fault; soil "
+        "as given (its data dominate the answer); Dalziel's limits for 0.03 s ≤ ts ≤ 3 s.",
+    ):
+        story.append(P(text))
+    story.append(P("6.1  Validation (computed now, with the same code)", "h2"))
+    rows = [["Check", "Source", "Reference", "Computed", "Deviation", "Accepted"]]
+    for ch in validation_checks():
+        rows.append([Paragraph(ch.name, st["small"]), Paragraph(ch.source, st["small"]),
+                     f"{ch.reference:.4g} {ch.unit}", f"{ch.computed:.4g} {ch.unit}", f"{ch.deviation * 100:+.2f} %",
+                     Paragraph(ch.accepted, st["small"])])
+    story.append(_table(rows, [38 * mm, 32 * mm, 22 * mm, 22 * mm, 18 * mm, 38 * mm], st))
+
+    # ---- reviewer block -------------------------------------------------------------------------
+    story.append(KeepTogether([
+        P("7  Review", "h1"), _caution_box(st), Spacer(1, 4 * mm),
+        _table([["Reviewer name", ""], ["Licence number", ""], ["Date", ""], ["Signature", ""], ["Remarks", ""]],
+               [45 * mm, 125 * mm], st, header=False, row_heights=[9 * mm, 9 * mm, 9 * mm, 16 * mm, 30 * mm])]))
+    doc.build(story)
+    return buf.getvalue()

@@ -1,0 +1,119 @@
+"""Review report, figures and CSV export: content from the real solution, reproducible, atomic."""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from pypdf import PdfReader
+
+from grounding.case_loader import parse_case
+from grounding.cautions import CAUTIONS
+from grounding.cli import main
+from grounding.outputs import report_pdf
+from grounding.outputs.figures import all_figures, touch_figure
+from grounding.outputs.report_pdf import build_report
+from grounding.outputs.surface_csv import surface_csv
+from grounding.study import run_study
+from tests.test_cli import SMALL
+
+
+@pytest.fixture(scope="module")
+def result():
+    return run_study(parse_case(SMALL.replace("title: small yard", "title: small yard\nsite: Testfield"),
+                                file="small.yaml"))
+
+
+@pytest.fixture(scope="module")
+def pdf(result):
+    return build_report(result, date="2026-12-01")
+
+
+def text_of(pdf_bytes: bytes) -> str:
+    reader = PdfReader(io.BytesIO(pdf_bytes))
+    return "\n".join(page.extract_text() for page in reader.pages)
+
+
+def squash(text: str) -> str:
+    return " ".join(text.split())
+
+
+def test_report_sections_and_numbers(result, pdf):
+    text = text_of(pdf)
+    flat = squash(text)
+    for section in ("1 Inputs", "2 Electrode plan", "3 Results", "4 Surface potentials", "5 Touch and step voltages",
+                    "6 Method and assumptions", "6.1 Validation", "7 Review", "Reviewer name", "Licence number"):
+        assert section in flat, section
+    assert f"{result.grid_resistance:.4f} Ω" in flat
+    gpr = result.ground_potential_rise
+    assert (f"{gpr:,.0f} V" if gpr < 10_000 else f"{gpr / 1000:,.2f} kV") in flat
+    assert f"{result.tolerable_touch:,.0f} V" in flat and f"{result.tolerable_step:,.0f} V" in flat
+    assert ("PASS" in flat) and (("FAIL" in flat) == (not (result.touch_ok and result.step_ok and result.mesh_ok)))
+    assert result.case.sha256 in flat.replace(" ", "") or result.case.sha256 in text.replace("\n", "")
+    assert "Testfield" in flat
+    assert squash(CAUTIONS[1]) in flat
+
+
+def test_every_page_carries_the_caution(pdf):
+    for page in PdfReader(io.BytesIO(pdf)).pages:
+        assert "licensed professional engineer" in squash(page.extract_text())
+
+
+def test_report_is_reproducible(result, pdf):
+    assert build_report(result, date="2026-12-01") == pdf
+
+
+def test_touch_figure_shows_the_summary_maximum(result):
+    fig = touch_figure(result)
+    assert fig.shown_max == result.surface.max_touch.value
+    # the filled contours are drawn from the touch map itself
+    ax = fig.figure.axes[0]
+    assert ax.get_xlim() == (result.surface.x[0], result.surface.x[-1])
+    assert np.nanmax(result.surface.touch) <= fig.shown_max + 1e-9
+
+
+def test_all_figures_have_labelled_colour_bars(result):
+    for f in all_figures(result):
+        for ax in f.figure.axes[1:]:
+            assert ax.get_ylabel(), f.name
+
+
+def test_failed_report_writes_nothing(result, tmp_path, monkeypatch):
+    """Every output is built in memory before any is written: a failure while drawing the report
+    leaves the previous files as they were and no temporary files behind."""
+    from grounding import cli
+
+    json_file, pdf_file = tmp_path / "r.json", tmp_path / "r.pdf"
+    json_file.write_text("previous")
+    pdf_file.write_bytes(b"previous")
+
+    def boom(r):
+        raise RuntimeError("figure failed")
+
+    monkeypatch.setattr(report_pdf, "all_figures", boom)
+    with pytest.raises(RuntimeError):
+        cli._write_outputs(result, str(json_file), str(pdf_file), None, None)
+    assert json_file.read_text() == "previous" and pdf_file.read_bytes() == b"previous"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["r.json", "r.pdf"]
+
+
+def test_csv_has_every_map_point(result):
+    rows = surface_csv(result).decode().splitlines()
+    data = [r for r in rows if not r.startswith("#")]
+    assert data[0] == "x_m,y_m,potential_v,touch_v,step_v"
+    assert len(data) - 1 == result.surface.potential.size
+    assert all(("CAUTION" in r) for r in rows[1:4])
+
+
+def test_cli_writes_report_plots_and_csv(tmp_path):
+    case = tmp_path / "c.yaml"
+    case.write_text(SMALL)
+    res = CliRunner().invoke(main, ["study", str(case), "--quiet", "--report", str(tmp_path / "r.pdf"),
+                                    "--plots", str(tmp_path / "figs"), "--csv", str(tmp_path / "m.csv")])
+    assert res.exit_code == 0, res.output
+    assert (tmp_path / "r.pdf").read_bytes().startswith(b"%PDF")
+    assert sorted(p.name for p in (tmp_path / "figs").iterdir()) == \
+        ["plan.png", "potential.png", "profile.png", "step.png", "touch.png"]
+    assert (tmp_path / "m.csv").stat().st_size > 0
