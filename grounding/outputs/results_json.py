@@ -54,6 +54,11 @@ def results_dict(r: StudyResult) -> dict:
                       "step_voltage_v": _num(simp.step_voltage),
                       "factors": {k: _num(v) for k, v in simp.factors.items()}}
     err = r.discretization_error
+    seg = r.segments
+    leakage = [{"start": [_num(v) for v in a], "end": [_num(v) for v in b], "current_a": _num(i),
+                "current_per_length_a_m": _num(i / length)}
+               for a, b, i, length in zip(seg.start.tolist(), seg.end.tolist(), r.segment_currents.tolist(),
+                                          seg.length.tolist())]
     return {
         "format": RESULTS_FORMAT,
         "tool": {"name": "grounding", "version": __version__},
@@ -86,7 +91,9 @@ def results_dict(r: StudyResult) -> dict:
                                      "note": err.note or None},
             "solve_relative_residual": _num(r.solution.relative_residual, 3),
             "max_segment_m": c.discretization.max_segment,
+            "soil_kernel": r.kernel.describe(),
         },
+        "leakage_currents": leakage,
         "warnings": list(r.warnings),
         "cautions": list(r.cautions),
     }

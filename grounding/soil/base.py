@@ -95,6 +95,11 @@ class SoilKernel(ABC):
     #: Interface depths, m.
     interfaces: tuple[float, ...]
 
+    def describe(self) -> dict:
+        """What the kernel is, for the results' diagnostics."""
+        return {"kind": type(self).__name__, "resistivities_ohm_m": list(self.resistivities),
+                "interfaces_m": list(self.interfaces)}
+
     def layer_of(self, z: np.ndarray) -> np.ndarray:
         """Index of the layer holding each depth z (m); 0 is the top layer."""
         return np.searchsorted(np.asarray(self.interfaces), np.asarray(z), side="right")

@@ -54,6 +54,11 @@ class TwoLayerSoil(SoilKernel):
         self.near_order = min(near_order, self.order)
         self._all = {pair: self._terms(*pair) for pair in ((0, 0), (0, 1), (1, 0), (1, 1))}
 
+    def describe(self) -> dict:
+        """Kernel facts plus the image series' truncation."""
+        return {**super().describe(), "reflection_factor": self.k, "series_tolerance": self.tolerance,
+                "series_orders": self.order, "exact_image_orders": self.near_order}
+
     @property
     def term_count(self) -> int:
         """Number of point-source terms in the top–top series."""
