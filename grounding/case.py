@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from .sounding.fit import SoilFit
+
 Point2 = tuple[float, float]
 Point3 = tuple[float, float, float]
 
@@ -212,6 +214,7 @@ class Case:
     discretization: Discretization = field(default_factory=Discretization)
     surface: SurfaceMap = field(default_factory=SurfaceMap)
     probes: tuple[Point2, ...] = ()
+    soil_fit: SoilFit | None = None
     site: str = ""
     source: str = ""
     sha256: str = ""

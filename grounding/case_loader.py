@@ -12,6 +12,7 @@ import math
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import yaml
 
 from .case import (
@@ -32,6 +33,8 @@ from .errors import CaseError
 from .materials import MATERIALS
 
 SUPPORTED_FORMATS = (1,)
+#: Most soil layers a case may give.
+MAX_LAYERS = 2
 #: A diameter at or above this (m) is taken for millimetres given as metres.
 MM_SUSPECT_DIAMETER = 0.25
 
@@ -225,7 +228,7 @@ class _CaseReader:
             title = str(title)
         site = top.get("site", "")
         site = "" if site is None else str(site)
-        soil = self.soil(top["soil"])
+        soil, soil_fit = self.soil(top["soil"])
         surface_layer = self.surface_layer(top.get("surface_layer"))
         fault = self.fault(top["fault"])
         criteria = self.criteria(top.get("criteria", {}))
@@ -236,14 +239,22 @@ class _CaseReader:
                        for i, p in enumerate(self.sequence("probes", top.get("probes"))))
         return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
                     surface_layer=surface_layer, discretization=discretization, surface=surface,
-                    probes=probes, site=site, source=self.doc.file, sha256=sha256)
+                    probes=probes, soil_fit=soil_fit, site=site, source=self.doc.file, sha256=sha256)
 
-    def soil(self, value: Any) -> Soil:
-        m = self.mapping("soil", value, ("resistivity", "layers"))
-        if ("resistivity" in m) == ("layers" in m):
-            raise self.doc.fail("soil", "needs either 'resistivity' (uniform soil, Ω·m) or 'layers' (top to bottom)")
+    def soil(self, value: Any):
+        m = self.mapping("soil", value, ("resistivity", "layers", "readings", "array", "traverse"))
+        if "readings" in m:
+            if "resistivity" in m:
+                raise self.doc.fail("soil.resistivity", "cannot stand beside soil.readings; give one or the other")
+            return self.fitted_soil(m)
+        if sum(k in m for k in ("resistivity", "layers")) != 1:
+            raise self.doc.fail("soil", "needs one of 'resistivity' (uniform soil, Ω·m), 'layers' (top to bottom) "
+                                        "or 'readings' (a sounding CSV file to fit)")
+        for k in ("array", "traverse"):
+            if k in m:
+                raise self.doc.fail(f"soil.{k}", "goes only with soil.readings")
         if "resistivity" in m:
-            return Soil((Layer(self.number("soil.resistivity", m["resistivity"], "Ω·m", gt=0)),))
+            return Soil((Layer(self.number("soil.resistivity", m["resistivity"], "Ω·m", gt=0)),)), None
         items = self.sequence("soil.layers", m["layers"])
         if not items:
             raise self.doc.fail("soil.layers", "must list at least one layer")
@@ -261,10 +272,39 @@ class _CaseReader:
                 if "thickness" not in lm:
                     raise self.doc.fail(p, "needs a thickness in m (only the bottom layer has none)")
                 layers.append(Layer(rho, self.number(f"{p}.thickness", lm["thickness"], "m", gt=0)))
-        if len(layers) > 2:
-            raise self.doc.fail("soil.layers", f"has {len(layers)} layers; this version solves uniform and "
-                                               "two-layer soil; give at most two layers")
-        return Soil(tuple(layers))
+        if len(layers) > MAX_LAYERS:
+            raise self.doc.fail("soil.layers", f"has {len(layers)} layers; give at most {MAX_LAYERS}")
+        return Soil(tuple(layers)), None
+
+    def fitted_soil(self, m: dict):
+        from .sounding.fit import fit_soil
+        from .sounding.readings import load_readings
+
+        path = m["readings"]
+        if not isinstance(path, str) or not path:
+            raise self.doc.fail("soil.readings", "must be the path of a readings CSV file (relative to the case file)")
+        full = Path(self.doc.file).parent / path
+        array = m.get("array")
+        if array is not None and array not in ("wenner", "schlumberger"):
+            raise self.doc.fail("soil.array", f"must be 'wenner' or 'schlumberger', got {_fmt(array)}")
+        count = m.get("layers", "auto")
+        if count not in (1, 2, 3, "auto") or isinstance(count, bool):
+            raise self.doc.fail("soil.layers", f"with soil.readings must be the layer count to fit: 1, 2, 3 or "
+                                               f"'auto', got {_fmt(count)}")
+        if not full.is_file():
+            raise self.doc.fail("soil.readings", f"file '{full}' not found (the path is relative to the case file)")
+        readings = load_readings(full, array)
+        traverse = m.get("traverse")
+        if traverse is not None:
+            mask = np.array([t == str(traverse) for t in readings.traverse])
+            if not mask.any():
+                names = sorted(set(readings.traverse))
+                raise self.doc.fail("soil.traverse", f"'{traverse}' is not in {full}; traverses: {', '.join(names)}")
+            readings = readings.subset(mask)
+        fit = fit_soil(readings, count)
+        best = fit.best
+        layers = tuple(Layer(l.resistivity, l.thickness) for l in best.layers)
+        return Soil(layers), fit
 
     def surface_layer(self, value: Any) -> SurfaceLayer | None:
         if value is None:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import sys
 
 import click
+import numpy as np
 
 from . import __version__
 from .case_loader import load_case
@@ -104,6 +105,49 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file) -> list[
     for path, data in files:
         write_atomic(path, data)
     return [p for p, _ in files]
+
+
+@main.command()
+@click.argument("readings_file", metavar="READINGS", type=click.Path(dir_okay=False))
+@click.option("--array", type=click.Choice(["wenner", "schlumberger"]), help="Array type (default: from the columns).")
+@click.option("--layers", default="auto", type=click.Choice(["1", "2", "3", "auto"]), show_default=True,
+              help="Layer count to fit, or auto to fit 1, 2 and 3 and recommend one.")
+@click.option("--traverses", default="together", type=click.Choice(["together", "separate"]), show_default=True,
+              help="Fit all traverses together or each separately.")
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), help="Also write the fit as JSON.")
+@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), help="Also write the sounding plot (PNG).")
+def soil(readings_file, array, layers, traverses, json_file, plot_file):
+    """Fit soil models to a Wenner or Schlumberger sounding (CSV)."""
+    from .cautions import CAUTIONS
+    from .outputs.atomic import write_atomic
+    from .outputs.figures import png_bytes
+    from .outputs.soil_outputs import fit_figure, fit_text, soil_json
+    from .outputs.summary_text import caution_box
+    from .sounding.fit import fit_soil
+    from .sounding.readings import load_readings
+
+    try:
+        readings = load_readings(readings_file, array)
+        count = layers if layers == "auto" else int(layers)
+        names = [""] if traverses == "together" else sorted(set(readings.traverse))
+        fits = {n: fit_soil(readings if traverses == "together" else
+                            readings.subset(np.array([t == n for t in readings.traverse])), count) for n in names}
+        files = []
+        if json_file:
+            files.append((json_file, soil_json(fits, readings.source, readings.sha256)))
+        if plot_file:
+            if len(fits) > 1:
+                raise GroundingError("--plot draws one sounding; use --traverses together, or fit each file alone")
+            files.append((plot_file, png_bytes(fit_figure(next(iter(fits.values()))))))
+        for path, data in files:
+            write_atomic(path, data)
+    except GroundingError as exc:
+        _fail(exc)
+    click.echo(caution_box(CAUTIONS))
+    for name, fit in fits.items():
+        click.echo(fit_text(fit, name))
+    for path, _ in files:
+        click.echo(f"Written: {path}")
 
 
 @main.command()

@@ -129,7 +129,7 @@ def _verdict_rows(r: StudyResult):
     return rows
 
 
-def build_report(r: StudyResult, date: str | None = None, readings_sha256: str | None = None) -> bytes:
+def build_report(r: StudyResult, date: str | None = None) -> bytes:
     """The review report as PDF bytes.
 
     Parameters
@@ -138,8 +138,6 @@ def build_report(r: StudyResult, date: str | None = None, readings_sha256: str |
         A finished study.
     date : str, optional
         Report date (ISO); default today (UTC). The only content that changes between runs.
-    readings_sha256 : str, optional
-        Hash of a soil-readings file the soil model was fitted from.
     """
     st = _styles()
     date = date or _dt.datetime.now(_dt.timezone.utc).date().isoformat()
@@ -181,8 +179,9 @@ def build_report(r: StudyResult, date: str | None = None, readings_sha256: str |
     story += [Spacer(1, 8 * mm), P("Earthing grid study", "subtitle"), P(c.title, "title")]
     ident = [["Site", c.site or "—"], ["Date", date], ["Tool", f"grounding {__version__}"],
              ["Case file", c.source], ["Case SHA-256", c.sha256]]
-    if readings_sha256:
-        ident.append(["Readings SHA-256", readings_sha256])
+    if c.soil_fit is not None:
+        ident.append(["Readings file", c.soil_fit.readings.source])
+        ident.append(["Readings SHA-256", c.soil_fit.readings.sha256])
     story += [Spacer(1, 4 * mm), _table(ident, [35 * mm, 135 * mm], st, header=False), Spacer(1, 6 * mm)]
     overall = all(x is not False for x in (r.touch_ok, r.step_ok, r.mesh_ok, r.conductor.ok))
     story.append(P(f"<b>Overall: {'all criteria PASS' if overall else 'at least one criterion FAILS'}</b> "
@@ -202,6 +201,28 @@ def build_report(r: StudyResult, date: str | None = None, readings_sha256: str |
                           f"{layer.thickness:g} m" if layer.thickness else "to infinite depth"])
     story.append(_table(soil_rows, [20 * mm, 40 * mm, 50 * mm], st))
     story.append(P(f"Model: {soil_text(c)}."))
+    if c.soil_fit is not None:
+        fit = c.soil_fit
+        story.append(P(f"Fitted from the {fit.readings.array} sounding <b>{fit.readings.source}</b> "
+                       f"({len(fit.readings)} readings; apparent resistivity: {fit.readings.conversion}). "
+                       f"Recommended {fit.recommended}-layer model, RMS misfit {fit.best.rms_misfit_percent:.1f} %: "
+                       f"{fit.reason}."))
+        rows = [["Model", "Layers (ρ Ω·m / h m, 1-σ)", "RMS misfit", "BIC"]]
+        for n, m in sorted(fit.models.items()):
+            desc = "; ".join(f"{l.resistivity:.0f} ±{min(l.resistivity_uncertainty, 9.99) * 100:.0f}%"
+                             + (f" / {l.thickness:.2f} ±{min(l.thickness_uncertainty, 9.99) * 100:.0f}%"
+                                if l.thickness is not None else "") for l in m.layers)
+            rows.append([f"{n}-layer{' ✓' if n == fit.recommended else ''}", Paragraph(desc, st["small"]),
+                         f"{m.rms_misfit_percent:.1f} %", f"{m.bic:.1f}"])
+        story.append(_table(rows, [22 * mm, 105 * mm, 22 * mm, 20 * mm], st))
+        from .soil_outputs import fit_figure
+        fig = fit_figure(fit)
+        wi, hi = fig.get_size_inches()
+        story.append(Image(io.BytesIO(png_bytes(fig)), width=140 * mm, height=140 * mm * hi / wi))
+        down = [i for i in range(len(fit.readings)) if fit.best.down_weighted[i]]
+        if down:
+            story.append(P("Down-weighted readings: " + ", ".join(
+                f"line {fit.readings.rows[i]} (spacing {fit.readings.spacing[i]:g} m)" for i in down) + "."))
     if c.surface_layer:
         story.append(P(f"Surface layer: {c.surface_layer.resistivity:g} Ω·m, {c.surface_layer.thickness * 1000:.0f} mm; "
                        f"derating factor Cs = 1 − 0.09 (1 − ρ/ρs)/(2 hs + 0.09) = <b>{r.limits.cs:.3f}</b> "

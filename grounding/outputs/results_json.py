@@ -21,6 +21,16 @@ def _num(x, digits: int = 6):
     return float(f"{x:.{digits}g}")
 
 
+def _soil(c) -> dict:
+    out = {"layers": [{"resistivity": l.resistivity, **({"thickness": l.thickness} if l.thickness else {})}
+                      for l in c.soil.layers], "fit": None}
+    if c.soil_fit is not None:
+        from .soil_outputs import fit_dict
+        out["fit"] = {"readings_file": c.soil_fit.readings.source, "sha256": c.soil_fit.readings.sha256,
+                      **fit_dict(c.soil_fit)}
+    return out
+
+
 def results_dict(r: StudyResult) -> dict:
     """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named)."""
     s = r.surface
@@ -71,8 +81,7 @@ def results_dict(r: StudyResult) -> dict:
             "tolerable_touch_voltage_v": {str(w): _num(v) for w, v in r.limits.touch.items()},
             "tolerable_step_voltage_v": {str(w): _num(v) for w, v in r.limits.step.items()},
         },
-        "soil": {"layers": [{"resistivity": l.resistivity, **({"thickness": l.thickness} if l.thickness else {})}
-                            for l in c.soil.layers]},
+        "soil": _soil(c),
         "probes": probes,
         "simplified": simplified,
         "simplified_note": None if simp.applicable else simp.reason,

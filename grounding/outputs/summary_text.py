@@ -42,9 +42,9 @@ def soil_text(case) -> str:
     """One line describing the soil model."""
     layers = case.soil.layers
     if len(layers) == 1:
-        return f"uniform, {layers[0].resistivity:g} Ω·m"
-    parts = [f"{l.resistivity:g} Ω·m × {l.thickness:g} m" for l in layers[:-1]]
-    return f"{len(layers)} layers: " + ", ".join(parts) + f", then {layers[-1].resistivity:g} Ω·m"
+        return f"uniform, {layers[0].resistivity:.4g} Ω·m"
+    parts = [f"{l.resistivity:.4g} Ω·m × {l.thickness:.3g} m" for l in layers[:-1]]
+    return f"{len(layers)} layers: " + ", ".join(parts) + f", then {layers[-1].resistivity:.4g} Ω·m"
 
 
 def study_summary(r: StudyResult) -> str:
@@ -56,6 +56,17 @@ def study_summary(r: StudyResult) -> str:
 
     out.append(_heading("Inputs"))
     out.append(_row("Soil", soil_text(c)))
+    if c.soil_fit is not None:
+        fit = c.soil_fit
+        unc = ", ".join(f"ρ{i} ± {l.resistivity_uncertainty * 100:.0f} %"
+                        + (f", h{i} ± {l.thickness_uncertainty * 100:.0f} %" if l.thickness is not None else "")
+                        for i, l in enumerate(fit.best.layers, start=1))
+        out.append(f"  {'  fitted from':<26}{fit.readings.source} (sha256 {fit.readings.sha256[:16]}…)")
+        out.append(_row("  fit", f"RMS misfit {fit.best.rms_misfit_percent:.1f} %",
+                        f"{fit.readings.array}, {len(fit.readings)} readings; {unc}"))
+        down = int(fit.best.down_weighted.sum())
+        if down:
+            out.append(_row("", f"{down} reading(s) down-weighted"))
     if c.surface_layer:
         out.append(_row("Surface layer", f"{c.surface_layer.resistivity:g} Ω·m",
                         f"{c.surface_layer.thickness * 1000:.0f} mm thick"))
