@@ -34,6 +34,9 @@ discretization: {{max_segment: {seg}}}
 SOILS = {
     "uniform": ("{resistivity: 400}", 3.0),
     "two-layer": ("{layers: [{resistivity: 400, thickness: 3.0}, {resistivity: 80}]}", 6.0),
+    # no target set by an issue; measured and printed so regressions show
+    "3-layer": ("{layers: [{resistivity: 400, thickness: 1.5}, {resistivity: 80, thickness: 4.0}, "
+                "{resistivity: 1000}]}", None),
 }
 
 
@@ -70,10 +73,11 @@ def main():
         A = R.copy()
         t_chol = best_of(lambda: scipy.linalg.cho_factor(A, lower=True, overwrite_a=False))
         ratio = t_work / t_chol
-        ok = ratio <= target
+        ok = target is None or ratio <= target
         failed |= not ok
+        goal = f"target ≤ {target:g}" if target else "no target"
         print(f"{name:>9}: N = {n}, assembly + solve {t_work:.3f} s, bare Cholesky {t_chol:.3f} s, "
-              f"ratio {ratio:.2f} (target ≤ {target:g}) {'OK' if ok else 'ABOVE TARGET'}")
+              f"ratio {ratio:.2f} ({goal}) {'OK' if ok else 'ABOVE TARGET'}")
     raise SystemExit(1 if failed else 0)
 
 

@@ -34,7 +34,7 @@ from .materials import MATERIALS
 
 SUPPORTED_FORMATS = (1,)
 #: Most soil layers a case may give.
-MAX_LAYERS = 2
+MAX_LAYERS = 6
 #: A diameter at or above this (m) is taken for millimetres given as metres.
 MM_SUSPECT_DIAMETER = 0.25
 

@@ -32,7 +32,9 @@ def test_matrix_symmetric_positive_definite(soil):
 
 
 @pytest.mark.parametrize("soil", ["{resistivity: 100}", TWO_LAYER,
-                                  "{layers: [{resistivity: 40, thickness: 0.3}, {resistivity: 400}]}"])
+                                  "{layers: [{resistivity: 40, thickness: 0.3}, {resistivity: 400}]}",
+                                  "{layers: [{resistivity: 300, thickness: 1.2}, {resistivity: 40, thickness: 2}, "
+                                  "{resistivity: 900}]}"])
 def test_tiers_agree_with_exact_everywhere(soil):
     """Treating every pair as near (exact near terms) must give the same Rg as the three tiers."""
     tiered = solve_equipotential(matrix(soil)).resistance

@@ -6,6 +6,7 @@ import math
 
 from ..case import Soil
 from .base import ImageTerms, RadialTable, SoilKernel
+from .layered import LayeredSoil
 from .two_layer import TwoLayerSoil
 from .uniform import UniformSoil
 
@@ -16,7 +17,8 @@ EXACT_IMAGE_REACH = 3.0
 
 
 def make_kernel(soil: Soil, max_segment: float = 1.0, tolerance: float = SERIES_TOLERANCE) -> SoilKernel:
-    """The kernel for a soil model.
+    """The kernel for a soil model: closed form for uniform soil, the image series for two layers,
+    the tabulated Hankel transform for three or more.
 
     Parameters
     ----------
@@ -34,7 +36,7 @@ def make_kernel(soil: Soil, max_segment: float = 1.0, tolerance: float = SERIES_
         h = layers[0].thickness
         near = max(1, math.ceil(EXACT_IMAGE_REACH * max_segment / (2 * h)))
         return TwoLayerSoil(layers[0].resistivity, layers[1].resistivity, h, tolerance, near)
-    raise NotImplementedError(f"{len(layers)}-layer soil is not supported by this version")
+    return LayeredSoil([l.resistivity for l in layers], [l.thickness for l in layers[:-1]])
 
 
-__all__ = ["ImageTerms", "RadialTable", "SoilKernel", "TwoLayerSoil", "UniformSoil", "make_kernel"]
+__all__ = ["ImageTerms", "LayeredSoil", "RadialTable", "SoilKernel", "TwoLayerSoil", "UniformSoil", "make_kernel"]

@@ -1,0 +1,81 @@
+"""N-layer kernel (Hankel transform) against the two-layer image series, the uniform closed form and
+the surface-source resistivity transform used for soundings (Koefoed 1979)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from grounding.soil import LayeredSoil, TwoLayerSoil, UniformSoil
+from grounding.sounding.forward import point_source_kernel
+from tests.helpers import resistance
+
+R = np.array([0.05, 0.5, 2.0, 7.0, 30.0, 200.0, 3000.0])
+PAIRS = [(0.6, 0.6), (0.6, 2.0), (3.0, 1.0), (6.0, 0.6), (0.6, 6.0), (6.0, 8.0), (3.9, 4.1)]
+
+
+@pytest.mark.parametrize("z,zp", PAIRS)
+def test_two_layers_match_image_series(z, zp):
+    """Image series of Sunde (1949) / Tagg (1964), itself checked against a direct Hankel quadrature."""
+    two = TwoLayerSoil(300.0, 60.0, 4.0, tolerance=1e-10)
+    lay = LayeredSoil([300.0, 60.0], [4.0])
+    assert np.allclose(lay.radial(z, zp)(R), two.series(R, z, zp), rtol=1e-5)
+
+
+def test_three_layers_with_equal_lower_layers_collapse_to_two():
+    lay = LayeredSoil([300.0, 60.0, 60.0], [4.0, 3.0])
+    two = TwoLayerSoil(300.0, 60.0, 4.0, tolerance=1e-10)
+    for z, zp in [(0.6, 0.6), (0.6, 5.0), (5.0, 8.0), (9.0, 0.6)]:
+        assert np.allclose(lay.radial(z, zp)(R), two.series(R, z, zp), rtol=1e-5)
+
+
+def test_all_layers_equal_collapse_to_uniform():
+    lay = LayeredSoil([120.0, 120.0, 120.0], [1.0, 2.0])
+    uni = UniformSoil(120.0)
+    for z, zp in [(0.5, 0.5), (0.5, 2.5), (4.0, 1.5)]:
+        assert np.allclose(lay.radial(z, zp)(R), uni.radial(z, zp)(R), rtol=1e-5)   # table accuracy
+
+
+def test_surface_source_matches_resistivity_transform():
+    """A source just below the surface seen at the surface: G = F(r)/(2π), F the Hankel transform of the
+    resistivity transform T1 (Koefoed 1979), computed by an independent recursion."""
+    rho, h = [500.0, 40.0, 900.0], [1.5, 6.0]
+    lay = LayeredSoil(rho, h)
+    r = np.array([0.5, 3.0, 15.0, 80.0, 600.0])
+    assert np.allclose(lay.radial(0.0, 1e-6)(r), point_source_kernel(r, rho, h) / (2 * np.pi), rtol=1e-4)
+
+
+def test_remainder_table_matches_direct_quadrature():
+    lay = LayeredSoil([500.0, 40.0, 900.0], [1.5, 6.0])
+    r = np.array([0.0, 0.2, 1.0, 3.0])
+    for z, zp in [(0.6, 0.6), (0.6, 4.0), (8.0, 5.0)]:
+        assert np.allclose(lay.remainder(r, z, zp), lay.remainder_exact(r, z, zp), rtol=1e-5, atol=1e-9)
+
+
+def test_interface_continuity():
+    lay = LayeredSoil([500.0, 40.0, 900.0], [1.5, 6.0])
+    r = np.array([0.7, 4.0, 20.0])
+    for d in (1.5, 7.5):
+        eps = 1e-7
+        assert np.allclose(lay.radial(d - eps, 3.0)(r), lay.radial(d + eps, 3.0)(r), rtol=1e-5)
+
+
+GRID = ("grids: [{origin: [0, 0], size: [30, 20], meshes: [3, 2], depth: 0.6, diameter: 0.012}]\n"
+        "rods: [{top: [0, 0, 0.6], length: 6, diameter: 0.016}, {top: [30, 20, 0.6], length: 6, diameter: 0.016}]\n")
+
+
+def test_grid_resistance_three_layer_collapses_to_two_layer_solver():
+    two = resistance(GRID, 1.0, soil="{layers: [{resistivity: 300, thickness: 2.6}, {resistivity: 60}]}")
+    three = resistance(GRID, 1.0, soil="{layers: [{resistivity: 300, thickness: 2.6}, {resistivity: 60, "
+                                       "thickness: 2.0}, {resistivity: 60}]}")
+    # the 3-layer model also cuts the rods at the (inactive) second interface at 4.6 m, which is a node
+    # of the 1 m segmentation, so both have the same segments
+    assert three == pytest.approx(two, rel=2e-5)
+
+
+def test_grid_resistance_three_layers_between_bounds():
+    three = resistance(GRID, 1.0, soil="{layers: [{resistivity: 300, thickness: 2.6}, {resistivity: 60, "
+                                       "thickness: 2.0}, {resistivity: 600}]}")
+    upper = resistance(GRID, 1.0, soil="{layers: [{resistivity: 300, thickness: 2.6}, {resistivity: 600}]}")
+    lower = resistance(GRID, 1.0, soil="{layers: [{resistivity: 300, thickness: 2.6}, {resistivity: 60}]}")
+    assert lower < three < upper
