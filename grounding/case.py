@@ -202,6 +202,31 @@ class SurfaceMap:
 
 
 @dataclass(frozen=True)
+class Costs:
+    """Unit prices for comparing layouts (any one currency).
+
+    Attributes
+    ----------
+    conductor_per_m : float
+        Buried horizontal conductor, installed, per m.
+    rod_per_m : float
+        Rod, per m of length.
+    rod_each : float
+        Per rod (driving, connection).
+    surface_layer_per_m2 : float
+        Surface layer over the touch area, per m² and per 0.1 m of thickness.
+    currency : str
+        Label printed with costs.
+    """
+
+    conductor_per_m: float = 0.0
+    rod_per_m: float = 0.0
+    rod_each: float = 0.0
+    surface_layer_per_m2: float = 0.0
+    currency: str = ""
+
+
+@dataclass(frozen=True)
 class Case:
     """A whole study case, as validated from a case file."""
 
@@ -215,6 +240,7 @@ class Case:
     surface: SurfaceMap = field(default_factory=SurfaceMap)
     probes: tuple[Point2, ...] = ()
     soil_fit: SoilFit | None = None
+    costs: Costs | None = None
     site: str = ""
     source: str = ""
     sha256: str = ""

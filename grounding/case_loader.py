@@ -6,9 +6,12 @@ the key path, what is wrong and what would be right.
 
 from __future__ import annotations
 
+import copy
 import difflib
 import hashlib
+import itertools
 import math
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -18,6 +21,7 @@ import yaml
 from .case import (
     Case,
     Conductor,
+    Costs,
     Criteria,
     Discretization,
     Electrodes,
@@ -218,7 +222,7 @@ class _CaseReader:
         if data is None:
             raise self.doc.fail("", "is empty; a case needs at least format, soil, fault and electrodes")
         top = self.mapping("", data, ("format", "title", "site", "soil", "surface_layer", "fault", "criteria",
-                                       "electrodes", "discretization", "surface", "probes"),
+                                       "electrodes", "discretization", "surface", "probes", "costs", "sweep"),
                            ("format", "soil", "fault", "electrodes"))
         fmt = top["format"]
         if fmt not in SUPPORTED_FORMATS:
@@ -237,9 +241,21 @@ class _CaseReader:
         surface = self.surface(top.get("surface", {}))
         probes = tuple(self.vector(f"probes[{i}]", p, 2, "m", "x, y")
                        for i, p in enumerate(self.sequence("probes", top.get("probes"))))
+        costs = self.costs(top.get("costs"))
+        if "sweep" in top:
+            sweep_settings(self.doc)                      # validated here; expanded by load_variants
         return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
                     surface_layer=surface_layer, discretization=discretization, surface=surface,
-                    probes=probes, soil_fit=soil_fit, site=site, source=self.doc.file, sha256=sha256)
+                    probes=probes, soil_fit=soil_fit, costs=costs, site=site, source=self.doc.file, sha256=sha256)
+
+    def costs(self, value: Any) -> Costs | None:
+        if value is None:
+            return None
+        p = "costs"
+        m = self.mapping(p, value, ("conductor_per_m", "rod_per_m", "rod_each", "surface_layer_per_m2", "currency"))
+        nums = {k: self.number(f"{p}.{k}", m.get(k, 0.0), "", ge=0) for k in
+                ("conductor_per_m", "rod_per_m", "rod_each", "surface_layer_per_m2")}
+        return Costs(**nums, currency=str(m.get("currency", "")))
 
     def soil(self, value: Any):
         m = self.mapping("soil", value, ("resistivity", "layers", "readings", "array", "traverse"))
@@ -431,3 +447,207 @@ class _CaseReader:
                 raise self.doc.fail(f"{p}.profile", "has zero length; give two different points")
         return SurfaceMap(margin=margin, resolution=res, touch_reach=reach, touch_area=area, step_distance=step,
                           profile=profile)
+
+
+# ---- sweeps ---------------------------------------------------------------------------------------
+
+#: Shorthand sweep names and the case key paths they stand for.
+SWEEP_SHORTHANDS = {
+    "grid.meshes": "electrodes.grids[*].meshes",
+    "grid.depth": "electrodes.grids[*].depth",
+    "grid.diameter": "electrodes.grids[*].diameter",
+    "rods.length": "electrodes.rods[*].length",
+    "rods.diameter": "electrodes.rods[*].diameter",
+}
+#: Sweep names computed rather than set: mesh spacing (m) of every grid, rod layout on the first grid.
+SWEEP_SPECIAL = ("grid.spacing", "rods.layout")
+ROD_LAYOUTS = ("none", "corners", "perimeter")
+#: Rod length and diameter used by rods.layout when the case has no rods, m.
+DEFAULT_ROD = (3.0, 0.016)
+
+
+@dataclass(frozen=True)
+class Variant:
+    """One option of a sweep: its settings, the validated case and the case document it came from."""
+
+    label: str
+    settings: tuple[tuple[str, Any], ...]
+    case: Case
+    data: dict
+
+
+def sweep_settings(doc: "_Document") -> list[tuple[str, list[tuple[str, Any]]]]:
+    """The sweep block as (name, [(label, value), ...]) in file order, validated."""
+    data = doc.data.get("sweep")
+    if not isinstance(data, dict) or not data:
+        raise doc.fail("sweep", "must map parameter names to lists or ranges of values")
+    out = []
+    for name, values in data.items():
+        path = f"sweep.{name}"
+        if name == "soil":
+            if not isinstance(values, dict) or not values:
+                raise doc.fail(path, "must map scenario names to soil blocks, e.g. {dry: {resistivity: 400}}")
+            out.append((name, [(str(k), v) for k, v in values.items()]))
+            continue
+        if isinstance(values, dict):
+            allowed = {"from", "to", "step", "count"}
+            extra = set(values) - allowed
+            if extra or not {"from", "to"} <= set(values) or ("step" in values) == ("count" in values):
+                raise doc.fail(path, "a range needs from, to and either step or count")
+            a, b = values["from"], values["to"]
+            if not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in (a, b)):
+                raise doc.fail(path, "range bounds must be numbers")
+            if "step" in values:
+                step = values["step"]
+                if not isinstance(step, (int, float)) or step <= 0:
+                    raise doc.fail(f"{path}.step", f"must be > 0, got {_fmt(step)}")
+                n = int(math.floor((b - a) / step + 1e-9)) + 1
+                if n < 1:
+                    raise doc.fail(path, "is empty: 'to' is below 'from'")
+                vals = [round(a + i * step, 12) for i in range(n)]
+            else:
+                n = values["count"]
+                if not isinstance(n, int) or n < 1:
+                    raise doc.fail(f"{path}.count", f"must be a whole number >= 1, got {_fmt(n)}")
+                vals = [a] if n == 1 else [round(a + (b - a) * i / (n - 1), 12) for i in range(n)]
+        elif isinstance(values, list) and values:
+            vals = values
+        else:
+            raise doc.fail(path, "must be a non-empty list of values or a range {from, to, step|count}")
+        if name == "rods.layout":
+            for v in vals:
+                if v not in ROD_LAYOUTS:
+                    raise doc.fail(path, f"values must be one of {', '.join(ROD_LAYOUTS)}, got {_fmt(v)}")
+        out.append((str(name), [(_label(v), v) for v in vals]))
+    if math.prod(len(v) for _, v in out) > MAX_VARIANTS:
+        raise doc.fail("sweep", f"gives {math.prod(len(v) for _, v in out)} combinations; at most {MAX_VARIANTS}")
+    return out
+
+
+#: Most combinations a sweep may give.
+MAX_VARIANTS = 2000
+
+
+def _label(v: Any) -> str:
+    if isinstance(v, float):
+        return f"{v:g}"
+    return str(v).replace("'", "")
+
+
+def _path_parts(path: str) -> list:
+    parts = []
+    for token in path.split("."):
+        while "[" in token:
+            head, rest = token.split("[", 1)
+            if head:
+                parts.append(head)
+            idx, token = rest.split("]", 1)
+            parts.append("*" if idx == "*" else int(idx))
+        if token:
+            parts.append(token)
+    return parts
+
+
+def _assign(node: Any, parts: list, value: Any, where: str) -> None:
+    head, rest = parts[0], parts[1:]
+    if head == "*":
+        if not isinstance(node, list) or not node:
+            raise ValueError(f"{where}: there is no list to apply [*] to")
+        for i in range(len(node)):
+            if rest:
+                _assign(node[i], rest, value, where)
+            else:
+                node[i] = copy.deepcopy(value)
+        return
+    if isinstance(head, int):
+        if not isinstance(node, list) or head >= len(node):
+            raise ValueError(f"{where}: index [{head}] is not in the case")
+        if rest:
+            _assign(node[head], rest, value, where)
+        else:
+            node[head] = copy.deepcopy(value)
+        return
+    if not isinstance(node, dict):
+        raise ValueError(f"{where}: '{head}' is not in the case")
+    if rest:
+        if head not in node or node[head] is None:
+            raise ValueError(f"{where}: the case has no '{head}' to vary")
+        _assign(node[head], rest, value, where)
+    else:
+        node[head] = copy.deepcopy(value)
+
+
+def _rod_layout(data: dict, layout: str, where: str) -> None:
+    el = data.get("electrodes") or {}
+    grids = el.get("grids") or []
+    if not grids:
+        raise ValueError(f"{where}: rods.layout places rods on the first grid; the case has no grid")
+    rods = el.get("rods") or []
+    length, diameter = (rods[0].get("length", DEFAULT_ROD[0]), rods[0].get("diameter", DEFAULT_ROD[1])) \
+        if rods and isinstance(rods[0], dict) else DEFAULT_ROD
+    g = grids[0]
+    (ox, oy), (lx, ly), (nx, ny), depth = g["origin"], g["size"], g["meshes"], g["depth"]
+    if layout == "none":
+        tops = []
+    elif layout == "corners":
+        tops = [(ox, oy), (ox + lx, oy), (ox, oy + ly), (ox + lx, oy + ly)]
+    else:
+        xs = [ox + lx * i / nx for i in range(nx + 1)]
+        ys = [oy + ly * j / ny for j in range(ny + 1)]
+        tops = sorted({(x, y) for x in xs for y in ys if x in (xs[0], xs[-1]) or y in (ys[0], ys[-1])})
+    el["rods"] = [{"top": [float(x), float(y), float(depth)], "length": length, "diameter": diameter}
+                  for x, y in tops]
+    data["electrodes"] = el
+
+
+def _apply(data: dict, name: str, value: Any, where: str) -> None:
+    if name == "grid.spacing":
+        for g in (data.get("electrodes") or {}).get("grids") or []:
+            g["meshes"] = [max(1, math.ceil(g["size"][0] / value - 1e-9)), max(1, math.ceil(g["size"][1] / value - 1e-9))]
+        return
+    if name == "rods.layout":
+        _rod_layout(data, value, where)
+        return
+    _assign(data, _path_parts(SWEEP_SHORTHANDS.get(name, name)), value, where)
+
+
+def _order(name: str) -> int:
+    return {"grid.spacing": 0, "rods.layout": 2, "rods.length": 3, "rods.diameter": 3}.get(
+        name, 0 if name.startswith("grid.") else 1)
+
+
+def load_variants(path: str | Path) -> list[Variant]:
+    """Every combination of a case file's ``sweep`` block, each validated as a case.
+
+    Raises
+    ------
+    CaseError
+        When the case has no sweep block, or an option is not a valid case (the message names it).
+    """
+    path = Path(path)
+    base = load_case(path)                   # validates the file itself, sweep block included
+    text = path.read_text(encoding="utf-8")
+    doc = _Document.parse(text, str(path))
+    if "sweep" not in doc.data:
+        raise CaseError(str(path), None, "sweep", "is missing; add a sweep block to vary parameters")
+    settings = sweep_settings(doc)
+    names = [n for n, _ in settings]
+    variants = []
+    for combo in itertools.product(*[vals for _, vals in settings]):
+        label = " · ".join(f"{n}={lab}" for n, (lab, _) in zip(names, combo))
+        data = copy.deepcopy(doc.data)
+        del data["sweep"]
+        for n, (lab, value) in sorted(zip(names, combo), key=lambda t: _order(t[0])):
+            try:
+                _apply(data, n, value, f"sweep.{n}")
+            except (ValueError, KeyError, TypeError) as exc:
+                msg = str(exc) if isinstance(exc, ValueError) else f"cannot be applied ({exc})"
+                raise CaseError(str(path), doc.line(f"sweep.{n}"), f"sweep.{n}", msg.split(": ", 1)[-1]) from None
+        try:
+            case = _CaseReader(_Document(str(path), data, doc.lines)).read(
+                hashlib.sha256((base.sha256 + label).encode()).hexdigest())
+        except CaseError as exc:
+            raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in sweep option {label})") from None
+        case = replace(case, title=f"{base.title} [{label}]")
+        variants.append(Variant(label, tuple((n, v) for n, (_, v) in zip(names, combo)), case, data))
+    return variants

@@ -150,6 +150,161 @@ def soil(readings_file, array, layers, traverses, json_file, plot_file):
         click.echo(f"Written: {path}")
 
 
+def _parallel_options(f):
+    f = click.option("--cluster", help="Address of a Dask scheduler to run the options on (tcp://host:port).")(f)
+    f = click.option("--workers", type=click.IntRange(1, 256), default=1, show_default=True,
+                     help="Local worker processes.")(f)
+    f = click.option("--quiet", is_flag=True, help="No progress bar.")(f)
+    return f
+
+
+def _option_bar(quiet: bool, total: int):
+    from tqdm import tqdm
+
+    bar = tqdm(total=total, desc="options", unit="opt", file=sys.stderr,
+               disable=quiet or not sys.stderr.isatty(), leave=False)
+
+    def update(done, total_):
+        bar.n = done
+        bar.refresh()
+
+    return bar, update
+
+
+@main.command()
+@click.argument("case_files", metavar="CASE...", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option("--by", type=click.Choice(["cost", "margin", "resistance", "material"]), default="margin",
+              show_default=True, help="How the winner is chosen.")
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), help="Also write the comparison as JSON.")
+@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write one CSV row per option.")
+@click.option("--report", "report_file", type=click.Path(dir_okay=False), help="Also write a comparison report (PDF).")
+@_parallel_options
+def compare(case_files, by, json_file, csv_file, report_file, quiet, workers, cluster):
+    """Compare layout options side by side: one column per CASE."""
+    from .options.compare import best_option, make_options
+    from .options.runner import run_options
+    from .outputs.options_outputs import compare_table, comparison_report, options_csv, options_json
+    from .outputs.summary_text import caution_box
+
+    try:
+        cases = [load_case(f) for f in case_files]
+        bar, update = _option_bar(quiet, len(cases))
+        results = run_options(cases, workers=workers, cluster=cluster, progress=update)
+        bar.close()
+        options = make_options([c.title for c in cases], results)
+        best, reason = best_option(options, by)
+        files = []
+        if json_file:
+            files.append((json_file, options_json(options, best, reason, by)))
+        if csv_file:
+            files.append((csv_file, options_csv(options)))
+        if report_file:
+            files.append((report_file, comparison_report(options, best, reason)))
+        _write_all(files)
+    except GroundingError as exc:
+        _fail(exc)
+    click.echo(caution_box())
+    click.echo(compare_table(options, best, reason))
+    for path, _ in files:
+        click.echo(f"Written: {path}")
+
+
+@main.command()
+@click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
+@click.option("--by", type=click.Choice(["cost", "margin", "resistance", "material"]), default="material",
+              show_default=True, help="How the best option is chosen.")
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), help="Also write every option as JSON.")
+@click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write one CSV row per option.")
+@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), help="Also write the trade-off plot (PNG).")
+@_parallel_options
+def sweep(case_file, by, json_file, csv_file, plot_file, quiet, workers, cluster):
+    """Run every combination of the CASE's sweep block and tabulate the options."""
+    from .case_loader import load_variants
+    from .options.compare import best_option, make_options
+    from .options.runner import run_options
+    from .outputs.figures import png_bytes
+    from .outputs.options_outputs import options_csv, options_json, sweep_table, tradeoff_figure
+    from .outputs.summary_text import caution_box
+
+    try:
+        variants = load_variants(case_file)
+        bar, update = _option_bar(quiet, len(variants))
+        results = run_options([v.case for v in variants], workers=workers, cluster=cluster, progress=update)
+        bar.close()
+        options = make_options([v.label for v in variants], results)
+        best, reason = best_option(options, by)
+        files = []
+        if json_file:
+            files.append((json_file, options_json(options, best, reason, by,
+                                                  {"settings": [dict(v.settings) for v in variants]})))
+        if csv_file:
+            files.append((csv_file, options_csv(options)))
+        if plot_file:
+            files.append((plot_file, png_bytes(tradeoff_figure(options, best))))
+        _write_all(files)
+    except GroundingError as exc:
+        _fail(exc)
+    click.echo(caution_box())
+    click.echo(sweep_table(options))
+    click.echo(f"Best by {by}: option {best + 1} ({options[best].label}): {reason}." if best is not None
+               else f"Best by {by}: none; {reason}.")
+    for path, _ in files:
+        click.echo(f"Written: {path}")
+
+
+@main.command()
+@click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
+@click.option("--by", type=click.Choice(["material", "cost"]), default="material", show_default=True,
+              help="What to minimise.")
+@click.option("--out", "out_file", type=click.Path(dir_okay=False),
+              help="Where to write the chosen layout's case file (default CASE-design.yaml beside CASE).")
+@_parallel_options
+def design(case_file, by, out_file, quiet, workers, cluster):
+    """Search CASE's sweep space for the least material (or cost) that passes every criterion."""
+    from pathlib import Path
+
+    from .case_loader import load_variants
+    from .options.design import search
+    from .outputs.design_case import design_case_yaml
+    from .outputs.options_outputs import sweep_table
+    from .outputs.summary_text import caution_box
+
+    try:
+        variants = load_variants(case_file)
+        bar, update = _option_bar(quiet, len(variants))
+        found = search(variants, by=by, workers=workers, cluster=cluster, progress=update)
+        bar.close()
+        files = []
+        if found.best is not None:
+            chosen = next(v for v in variants if v.label == found.best.label)
+            out = out_file or str(Path(case_file).with_name(Path(case_file).stem + "-design.yaml"))
+            files.append((out, design_case_yaml(chosen, case_file, out)))
+        _write_all(files)
+    except GroundingError as exc:
+        _fail(exc)
+    click.echo(caution_box())
+    click.echo(f"Studied {len(found.studied)} of {len(variants)} options, cheapest first by {by}:")
+    click.echo(sweep_table(found.studied))
+    if found.best is None:
+        click.echo("No option in the sweep space passes every criterion.")
+    else:
+        b = found.best
+        q = b.quantities
+        click.echo(f"Least {by} that passes: {b.label}: {q.mass_kg:,.0f} kg of metal"
+                   + (f", cost {q.cost:,.0f} {q.currency}" if q.cost is not None else "")
+                   + f"; touch margin {b.touch_margin * 100:+.0f} %, step margin {b.step_margin * 100:+.0f} %.")
+        click.echo(f"Every cheaper option ({len(found.studied) - 1}) was studied and fails.")
+    for path, _ in files:
+        click.echo(f"Written: {path}")
+
+
+def _write_all(files) -> None:
+    from .outputs.atomic import write_atomic
+
+    for path, data in files:
+        write_atomic(path, data)
+
+
 @main.command()
 @click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
 def check(case_file):

@@ -31,6 +31,8 @@ class Material:
         Resistivity at 20 °C, µΩ·cm.
     tcap : float
         Thermal capacity per unit volume, J/(cm³·°C).
+    density : float
+        Mass density, kg/m³ (typical handbook values, common practice; for quantity estimates only).
     """
 
     name: str
@@ -41,18 +43,19 @@ class Material:
     fusing_temperature: float
     rho_r: float
     tcap: float
+    density: float = 8960.0
 
 
 MATERIALS: dict[str, Material] = {
     m.name: m
     for m in (
-        Material("copper-annealed", "copper, annealed soft-drawn", 100.0, 0.00393, 234.0, 1083.0, 1.72, 3.42),
-        Material("copper-hard-drawn", "copper, commercial hard-drawn", 97.0, 0.00381, 242.0, 1084.0, 1.78, 3.42),
-        Material("copper-clad-steel-40", "copper-clad steel wire, 40 %", 40.0, 0.00378, 245.0, 1084.0, 4.40, 3.85),
-        Material("copper-clad-steel-30", "copper-clad steel wire, 30 %", 30.0, 0.00378, 245.0, 1084.0, 5.86, 3.85),
-        Material("aluminium-ec", "aluminium, EC grade", 61.0, 0.00403, 228.0, 657.0, 2.86, 2.56),
-        Material("steel-1020", "steel 1020", 10.8, 0.00160, 605.0, 1510.0, 15.90, 3.28),
-        Material("zinc-coated-steel", "zinc-coated steel rod", 8.6, 0.00320, 293.0, 419.0, 20.10, 3.93),
-        Material("stainless-304", "stainless steel 304", 2.4, 0.00130, 749.0, 1400.0, 72.00, 4.03),
+        Material("copper-annealed", "copper, annealed soft-drawn", 100.0, 0.00393, 234.0, 1083.0, 1.72, 3.42, 8960.0),
+        Material("copper-hard-drawn", "copper, commercial hard-drawn", 97.0, 0.00381, 242.0, 1084.0, 1.78, 3.42, 8960.0),
+        Material("copper-clad-steel-40", "copper-clad steel wire, 40 %", 40.0, 0.00378, 245.0, 1084.0, 4.40, 3.85, 8150.0),
+        Material("copper-clad-steel-30", "copper-clad steel wire, 30 %", 30.0, 0.00378, 245.0, 1084.0, 5.86, 3.85, 8100.0),
+        Material("aluminium-ec", "aluminium, EC grade", 61.0, 0.00403, 228.0, 657.0, 2.86, 2.56, 2700.0),
+        Material("steel-1020", "steel 1020", 10.8, 0.00160, 605.0, 1510.0, 15.90, 3.28, 7850.0),
+        Material("zinc-coated-steel", "zinc-coated steel rod", 8.6, 0.00320, 293.0, 419.0, 20.10, 3.93, 7850.0),
+        Material("stainless-304", "stainless steel 304", 2.4, 0.00130, 749.0, 1400.0, 72.00, 4.03, 8000.0),
     )
 }

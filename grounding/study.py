@@ -166,7 +166,62 @@ def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int
     return DiscretizationError(coarse.resistance, est, est / fine.resistance)
 
 
-def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True) -> StudyResult:
+@dataclass(frozen=True)
+class UnitStudy:
+    """What depends only on soil, geometry, discretisation and map: the solution and the surface fields
+    at a GPR of 1 V. Studies that differ only in fault data, criteria or surface layer share one.
+
+    Attributes
+    ----------
+    segments, kernel, solution
+        The discretisation, soil kernel and solution at 1 V.
+    surface : SurfaceResult
+        Surface fields at a GPR of 1 V (scale by the GPR).
+    error : DiscretizationError
+        The discretisation-error estimate of Rg.
+    timings : dict
+        Stage timings of the solve, s.
+    """
+
+    segments: Segments
+    kernel: SoilKernel
+    solution: Solution
+    surface: SurfaceResult
+    error: DiscretizationError
+    timings: dict
+
+
+def geometry_key(case: Case) -> str:
+    """A key equal for cases whose :class:`UnitStudy` is the same (soil, electrode geometry,
+    discretisation, surface map and probes); fault, criteria, surface layer and material do not enter."""
+    el = case.electrodes
+    parts = (case.soil.layers, el.grids, el.conductors, el.rods, case.discretization, case.surface, case.probes)
+    return repr(tuple(_strip_keys(p) for p in parts))
+
+
+def _strip_keys(part):
+    """Drop the case-file key paths, which name but do not change the electrodes."""
+    if isinstance(part, tuple):
+        return tuple(replace(x, key="") if hasattr(x, "key") else x for x in part)
+    return part
+
+
+def solve_geometry(case: Case, progress: Progress | None = None, estimate_error: bool = True) -> UnitStudy:
+    """Solve the electrodes at 1 V and map the surface; see :class:`UnitStudy`."""
+    segments, kernel, solution, timings = _solve(case, progress)
+    t0 = time.perf_counter()
+    surface = surface_fields(segments, solution.currents_per_volt, 1.0, kernel, case.surface, case.probes,
+                             progress=progress)
+    timings["surface_s"] = time.perf_counter() - t0
+    if estimate_error:
+        error = estimate_discretization_error(case, solution, len(segments))
+    else:
+        error = DiscretizationError(None, None, None, "not requested")
+    return UnitStudy(segments, kernel, solution, surface, error, timings)
+
+
+def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True,
+              unit: UnitStudy | None = None) -> StudyResult:
     """Run a whole study.
 
     Parameters
@@ -177,32 +232,29 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
         Called as progress(stage, fraction) during long stages.
     estimate_error : bool
         Also solve at twice the segment length to estimate the discretisation error of Rg.
+    unit : UnitStudy, optional
+        A solution of the same geometry (``geometry_key`` equal) to re-use instead of solving again.
 
     Returns
     -------
     StudyResult
     """
-    segments, kernel, solution, timings = _solve(case, progress)
+    if unit is None:
+        unit = solve_geometry(case, progress, estimate_error)
+    segments, solution = unit.segments, unit.solution
     fault = case.fault
     df = decrement_factor(fault.x_over_r, fault.frequency, fault.clearing_time)
     ig = df * fault.split_factor * fault.current
     gpr = ig * solution.resistance
     currents = solution.currents(ig)
-    t0 = time.perf_counter()
-    surface = surface_fields(segments, currents, gpr, kernel, case.surface, case.probes,
-                             progress=progress)
-    timings["surface_s"] = time.perf_counter() - t0
+    surface = unit.surface.scaled(gpr)
     limits = tolerable_limits(case.soil.top_resistivity, case.surface_layer, fault.shock_duration)
     el = case.electrodes
     horizontal = [g.diameter for g in el.grids] + [c.diameter for c in el.conductors]
     conductor = check_conductor(df * fault.current, fault.clearing_time, MATERIALS[el.material],
                                 el.ambient_temperature, el.max_temperature,
                                 min(horizontal) if horizontal else min(r.diameter for r in el.rods))
-    if estimate_error:
-        error = estimate_discretization_error(case, solution, len(segments))
-    else:
-        error = DiscretizationError(None, None, None, "not requested")
-    return StudyResult(case=case, segments=segments, kernel=kernel, solution=solution, decrement_factor=df,
+    return StudyResult(case=case, segments=segments, kernel=unit.kernel, solution=solution, decrement_factor=df,
                        grid_current=ig, ground_potential_rise=gpr, segment_currents=currents, surface=surface,
                        limits=limits, simplified=simplified_method(case, ig), conductor=conductor,
-                       discretization_error=error, timings=timings, warnings=segments.warnings)
+                       discretization_error=unit.error, timings=dict(unit.timings), warnings=segments.warnings)

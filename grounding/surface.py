@@ -172,6 +172,10 @@ class Extreme:
     x: float
     y: float
 
+    def scaled(self, factor: float) -> "Extreme":
+        """The same point with the value multiplied by ``factor``."""
+        return Extreme(self.value * factor, self.x, self.y)
+
 
 @dataclass(frozen=True)
 class SurfaceResult:
@@ -211,6 +215,14 @@ class SurfaceResult:
     max_mesh: Extreme | None
     probe_potential: np.ndarray
     profile: "Profile"
+
+    def scaled(self, factor: float) -> "SurfaceResult":
+        """Every voltage multiplied by ``factor`` (fields are linear in the GPR; locations are unchanged)."""
+        p = self.profile
+        return SurfaceResult(self.x, self.y, self.potential * factor, self.touch * factor, self.step * factor,
+                             self.touch_area, self.meshes, self.max_touch.scaled(factor),
+                             self.max_step.scaled(factor), self.max_mesh.scaled(factor) if self.max_mesh else None,
+                             self.probe_potential * factor, Profile(p.distance, p.x, p.y, p.potential * factor))
 
 
 @dataclass(frozen=True)

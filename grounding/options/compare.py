@@ -1,0 +1,74 @@
+"""Comparison of layout options: one row of figures per option and the winner by a chosen criterion."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from ..study import StudyResult
+from .quantities import Quantities, quantities
+
+CRITERIA = ("cost", "margin", "resistance", "material")
+
+
+@dataclass(frozen=True)
+class Option:
+    """A studied option with its quantities and margins."""
+
+    label: str
+    result: StudyResult
+    quantities: Quantities
+
+    @property
+    def touch_margin(self) -> float:
+        """(tolerable − worst) / tolerable for touch voltage (negative: fails)."""
+        r = self.result
+        return (r.tolerable_touch - r.surface.max_touch.value) / r.tolerable_touch
+
+    @property
+    def step_margin(self) -> float:
+        """(tolerable − worst) / tolerable for step voltage."""
+        r = self.result
+        return (r.tolerable_step - r.surface.max_step.value) / r.tolerable_step
+
+    @property
+    def worst_margin(self) -> float:
+        """The smaller of the touch and step margins."""
+        return min(self.touch_margin, self.step_margin)
+
+    @property
+    def passes(self) -> bool:
+        """True when touch, step, mesh and conductor size all pass."""
+        r = self.result
+        return bool(r.touch_ok and r.step_ok and r.mesh_ok is not False and r.conductor.ok)
+
+
+def make_options(labels, results) -> list[Option]:
+    """Options from labels and study results."""
+    return [Option(label, r, quantities(r)) for label, r in zip(labels, results)]
+
+
+def best_option(options: list[Option], by: str) -> tuple[int | None, str]:
+    """Index of the winner and why.
+
+    ``cost`` and ``material``: the cheapest (or lightest) option that passes every criterion (None
+    when none passes); ``margin``: the largest worst-case margin; ``resistance``: the lowest Rg.
+    """
+    if by not in CRITERIA:
+        raise ValueError(by)
+    idx = list(range(len(options)))
+    if by in ("cost", "material"):
+        if by == "cost" and any(o.quantities.cost is None for o in options):
+            return None, "no winner by cost: not every case gives unit prices (costs block)"
+        passing = [i for i in idx if options[i].passes]
+        if not passing:
+            return None, "no option passes every criterion"
+        key = (lambda i: options[i].quantities.cost) if by == "cost" else (lambda i: options[i].quantities.mass_kg)
+        best = min(passing, key=key)
+        return best, f"the {'cheapest' if by == 'cost' else 'least material'} of the {len(passing)} option(s) that pass"
+    n_pass = sum(o.passes for o in options)
+    note = f"; {n_pass} of {len(options)} option(s) pass every criterion" if n_pass else "; NONE passes every criterion"
+    if by == "margin":
+        best = max(idx, key=lambda i: options[i].worst_margin)
+        return best, "the largest worst-case margin to the touch and step limits" + note
+    best = min(idx, key=lambda i: options[i].result.grid_resistance)
+    return best, "the lowest grid resistance" + note

@@ -1,0 +1,166 @@
+"""Layout options: compare, sweep and design; serial, process-pool and Dask runs agree exactly."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from click.testing import CliRunner
+
+from grounding.case_loader import load_case, load_variants
+from grounding.errors import CaseError
+from grounding.cli import main
+from grounding.options.compare import best_option, make_options
+from grounding.options.design import search
+from grounding.options.runner import group_by_geometry, run_options
+from grounding.study import run_study
+
+SWEEP = """\
+format: 1
+title: options test
+soil: {resistivity: 150}
+surface_layer: {resistivity: 3000, thickness: 0.1}
+fault: {current: 2500, split_factor: 0.5, clearing_time: 0.3}
+costs: {conductor_per_m: 40, rod_per_m: 30, rod_each: 100, surface_layer_per_m2: 5, currency: EUR}
+electrodes:
+  grids: [{origin: [0, 0], size: [20, 16], meshes: [2, 2], depth: 0.5, diameter: 0.01}]
+  rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}]
+discretization: {max_segment: 2.0}
+surface: {margin: 2, resolution: 2.0}
+sweep:
+  grid.spacing: [10, 5]
+  rods.layout: [none, perimeter]
+  surface_layer.thickness: [0.1, 0.2]
+"""
+
+
+@pytest.fixture(scope="module")
+def sweep_file(tmp_path_factory):
+    path = tmp_path_factory.mktemp("sweep") / "sweep.yaml"
+    path.write_text(SWEEP)
+    return path
+
+
+@pytest.fixture(scope="module")
+def variants(sweep_file):
+    return load_variants(sweep_file)
+
+
+@pytest.fixture(scope="module")
+def serial(variants):
+    return run_options([v.case for v in variants], estimate_error=False)
+
+
+def summary(r):
+    s = r.surface
+    return (r.grid_resistance, r.ground_potential_rise, s.max_touch.value, s.max_touch.x, s.max_touch.y,
+            s.max_step.value, s.max_mesh.value if s.max_mesh else None, r.tolerable_touch, r.tolerable_step)
+
+
+def test_sweep_expands_every_combination(variants):
+    assert len(variants) == 8
+    first = variants[0].case
+    assert first.electrodes.grids[0].meshes == (2, 2) and first.electrodes.rods == ()
+    dense = [v for v in variants if dict(v.settings)["grid.spacing"] == 5][0].case
+    assert dense.electrodes.grids[0].meshes == (4, 4)
+    perim = [v for v in variants if dict(v.settings)["rods.layout"] == "perimeter"][0].case
+    assert len(perim.electrodes.rods) == 8                       # 2 × 2 meshes: 8 perimeter nodes
+
+
+def test_options_sharing_geometry_share_one_solve(variants):
+    groups = group_by_geometry([v.case for v in variants])
+    assert len(groups) == 4                                       # surface-layer thickness does not change geometry
+    assert all(len(g) == 2 for g in groups)
+
+
+def test_sweep_results_match_individual_studies(variants, serial):
+    for v, r in zip(variants, serial):
+        alone = run_study(v.case, estimate_error=False)
+        assert summary(alone) == pytest.approx(summary(r), rel=1e-12)
+
+
+def test_process_pool_identical_to_serial(variants, serial):
+    pooled = run_options([v.case for v in variants], workers=2, estimate_error=False)
+    assert [summary(r) for r in pooled] == [summary(r) for r in serial]
+
+
+def test_dask_local_cluster_identical_to_serial(variants, serial):
+    """Same numbers to rounding: Dask's workers run BLAS single-threaded, which changes the order of
+    floating-point sums in matrix products (seen: 1 unit in the last place of one step voltage)."""
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as lc:
+        on_dask = run_options([v.case for v in variants], cluster=lc.scheduler_address, estimate_error=False)
+    for a, b in zip(on_dask, serial):
+        assert summary(a) == pytest.approx(summary(b), rel=1e-12, abs=1e-12)
+
+
+def test_design_answer_passes_and_nothing_cheaper_does(variants, serial):
+    found = search(variants, by="cost")
+    options = make_options([v.label for v in variants], serial)
+    assert found.best is not None and found.best.passes
+    cheaper = [o for o in options if o.quantities.cost < found.best.quantities.cost - 1e-9]
+    assert cheaper and not any(o.passes for o in cheaper)
+    assert found.best.quantities.cost == pytest.approx(min(o.quantities.cost for o in options if o.passes))
+
+
+def test_best_option_criteria(variants, serial):
+    options = make_options([v.label for v in variants], serial)
+    i, _ = best_option(options, "resistance")
+    assert options[i].result.grid_resistance == min(o.result.grid_resistance for o in options)
+    i, _ = best_option(options, "margin")
+    assert options[i].worst_margin == max(o.worst_margin for o in options)
+    i, _ = best_option(options, "cost")
+    assert options[i].passes
+
+
+def test_compare_command_json(tmp_path, variants):
+    files = []
+    for k, v in enumerate(variants[:2]):
+        p = tmp_path / f"o{k}.yaml"
+        import yaml
+        p.write_text(yaml.safe_dump(v.data))
+        files.append(str(p))
+    out = tmp_path / "cmp.json"
+    res = CliRunner().invoke(main, ["compare", *files, "--json", str(out), "--by", "resistance", "--quiet"])
+    assert res.exit_code == 0, res.output
+    doc = json.loads(out.read_text())
+    assert [o["case"] for o in doc["options"]] == files
+    assert doc["best"] in (0, 1) and doc["criterion"] == "resistance"
+    alone = run_study(load_case(files[1]))
+    assert doc["options"][1]["summary"]["grid_resistance_ohm"] == pytest.approx(alone.grid_resistance, rel=1e-5)
+    assert {"conductor_length_m", "rod_count", "rod_length_m", "mass_kg", "cost"} <= set(doc["options"][0]["quantities"])
+    assert "licensed professional engineer" in " ".join(doc["cautions"])
+
+
+def test_design_command_writes_a_case_that_studies(tmp_path, sweep_file):
+    out = tmp_path / "chosen.yaml"
+    res = CliRunner().invoke(main, ["design", str(sweep_file), "--by", "cost", "--out", str(out), "--quiet"])
+    assert res.exit_code == 0, res.output
+    case = load_case(out)
+    r = run_study(case, estimate_error=False)
+    assert r.touch_ok and r.step_ok
+
+
+def test_sweep_command_plot_and_csv(tmp_path, sweep_file):
+    res = CliRunner().invoke(main, ["sweep", str(sweep_file), "--plot", str(tmp_path / "t.png"),
+                                    "--csv", str(tmp_path / "t.csv"), "--quiet"])
+    assert res.exit_code == 0, res.output
+    assert "options pass every criterion" in res.output
+    rows = [r for r in (tmp_path / "t.csv").read_text().splitlines() if not r.startswith("#")]
+    assert len(rows) == 1 + 8
+
+
+@pytest.mark.parametrize("block,message", [
+    ("sweep:\n  grid.spacing: []\n", "sweep.grid.spacing must be a non-empty list"),
+    ("sweep:\n  rods.layout: [zigzag]\n", "values must be one of none, corners, perimeter"),
+    ("sweep:\n  grid.depth: {from: 1, to: 0.5, step: 0.1}\n", "is empty"),
+    ("sweep:\n  electrodes.grid[0].depth: [1]\n", "sweep.electrodes.grid[0].depth"),
+    ("sweep:\n  grid.depth: [-1]\n", "depth must be > 0 m"),
+])
+def test_bad_sweeps_are_located(tmp_path, block, message):
+    path = tmp_path / "bad.yaml"
+    path.write_text(SWEEP.split("sweep:")[0] + block)
+    with pytest.raises(CaseError) as info:
+        load_variants(path)
+    assert message in str(info.value)
+    assert str(info.value).startswith(f"{path}:")
