@@ -12,7 +12,6 @@ from __future__ import annotations
 import argparse
 import time
 
-import numpy as np
 import scipy.linalg
 
 from grounding.assembly import assemble

@@ -35,6 +35,7 @@ from .case import (
 )
 from .errors import CaseError
 from .materials import MATERIALS
+from .textfile import read_user_text
 
 SUPPORTED_FORMATS = (1,)
 #: Most soil layers a case may give.
@@ -61,18 +62,8 @@ def load_case(path: str | Path) -> Case:
     CaseError
         On any problem with the file, located by line and key path.
     """
-    path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise CaseError(str(path), None, "", "file not found; give the path of a YAML case file") from None
-    except OSError as exc:
-        raise CaseError(str(path), None, "", f"cannot be read ({exc.strerror}); check the path and permissions") from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError:
-        raise CaseError(str(path), None, "", "is not UTF-8 text; save the case file as UTF-8 YAML") from None
-    return parse_case(text, file=str(path), sha256=hashlib.sha256(raw).hexdigest())
+    text, sha = read_user_text(path, "a YAML case file")
+    return parse_case(text, file=str(path), sha256=sha)
 
 
 def parse_case(text: str, file: str = "<case>", sha256: str = "") -> Case:

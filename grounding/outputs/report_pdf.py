@@ -197,8 +197,8 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     story.append(P("1.1  Soil and surface layer", "h2"))
     soil_rows = [["Layer", "Resistivity", "Thickness"]]
     for i, layer in enumerate(c.soil.layers, start=1):
-        soil_rows.append([str(i), f"{layer.resistivity:g} Ω·m",
-                          f"{layer.thickness:g} m" if layer.thickness else "to infinite depth"])
+        soil_rows.append([str(i), f"{layer.resistivity:.4g} Ω·m",
+                          f"{layer.thickness:.3g} m" if layer.thickness else "to infinite depth"])
     story.append(_table(soil_rows, [20 * mm, 40 * mm, 50 * mm], st))
     story.append(P(f"Model: {soil_text(c)}."))
     if c.soil_fit is not None:

@@ -9,7 +9,6 @@ A header row names the columns; lines starting with '#' are comments. Wenner: `s
 from __future__ import annotations
 
 import csv
-import hashlib
 import io
 import math
 from dataclasses import dataclass, field
@@ -18,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import CaseError
+from ..textfile import read_user_text
 from .forward import schlumberger_geometric_factor, wenner_geometric_factor
 
 WENNER, SCHLUMBERGER = "wenner", "schlumberger"
@@ -93,18 +93,8 @@ def load_readings(path: str | Path, array: str | None = None) -> Readings:
     CaseError
         Naming the file, the row and the column of the problem.
     """
-    path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise CaseError(str(path), None, "", "readings file not found; give the path of a CSV file") from None
-    except OSError as exc:
-        raise CaseError(str(path), None, "", f"cannot be read ({exc.strerror})") from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise CaseError(str(path), None, "", "is not UTF-8 text; save the readings as UTF-8 CSV") from None
-    return parse_readings(text, str(path), array, hashlib.sha256(raw).hexdigest())
+    text, sha = read_user_text(path, "a readings CSV file", encoding="utf-8-sig")
+    return parse_readings(text, str(path), array, sha)
 
 
 def parse_readings(text: str, file: str = "<readings>", array: str | None = None, sha256: str = "") -> Readings:
