@@ -171,6 +171,32 @@ def _option_bar(quiet: bool, total: int):
     return bar, update
 
 
+def _study_options(cases, labels, by, quiet, workers, cluster):
+    """Run the options with a progress bar; return them with the winner and the reason."""
+    from .options.compare import best_option, make_options
+    from .options.runner import run_options
+
+    bar, update = _option_bar(quiet, len(cases))
+    try:
+        results = run_options(cases, workers=workers, cluster=cluster, progress=update)
+    finally:
+        bar.close()
+    options = make_options(labels, results)
+    return (options, *best_option(options, by))
+
+
+def _table_files(options, best, reason, by, json_file, csv_file, extra=None):
+    """The JSON and CSV outputs both option commands share, as (path, bytes) pairs."""
+    from .outputs.options_outputs import options_csv, options_json
+
+    files = []
+    if json_file:
+        files.append((json_file, options_json(options, best, reason, by, extra)))
+    if csv_file:
+        files.append((csv_file, options_csv(options)))
+    return files
+
+
 @main.command()
 @click.argument("case_files", metavar="CASE...", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("--by", type=click.Choice(["cost", "margin", "resistance", "material"]), default="margin",
@@ -181,23 +207,13 @@ def _option_bar(quiet: bool, total: int):
 @_parallel_options
 def compare(case_files, by, json_file, csv_file, report_file, quiet, workers, cluster):
     """Compare layout options side by side: one column per CASE."""
-    from .options.compare import best_option, make_options
-    from .options.runner import run_options
-    from .outputs.options_outputs import compare_table, comparison_report, options_csv, options_json
+    from .outputs.options_outputs import compare_table, comparison_report
     from .outputs.summary_text import caution_box
 
     try:
         cases = [load_case(f) for f in case_files]
-        bar, update = _option_bar(quiet, len(cases))
-        results = run_options(cases, workers=workers, cluster=cluster, progress=update)
-        bar.close()
-        options = make_options([c.title for c in cases], results)
-        best, reason = best_option(options, by)
-        files = []
-        if json_file:
-            files.append((json_file, options_json(options, best, reason, by)))
-        if csv_file:
-            files.append((csv_file, options_csv(options)))
+        options, best, reason = _study_options(cases, [c.title for c in cases], by, quiet, workers, cluster)
+        files = _table_files(options, best, reason, by, json_file, csv_file)
         if report_file:
             files.append((report_file, comparison_report(options, best, reason)))
         _write_all(files)
@@ -220,25 +236,16 @@ def compare(case_files, by, json_file, csv_file, report_file, quiet, workers, cl
 def sweep(case_file, by, json_file, csv_file, plot_file, quiet, workers, cluster):
     """Run every combination of the CASE's sweep block and tabulate the options."""
     from .case_loader import load_variants
-    from .options.compare import best_option, make_options
-    from .options.runner import run_options
     from .outputs.figures import png_bytes
-    from .outputs.options_outputs import options_csv, options_json, sweep_table, tradeoff_figure
+    from .outputs.options_outputs import sweep_table, tradeoff_figure
     from .outputs.summary_text import caution_box
 
     try:
         variants = load_variants(case_file)
-        bar, update = _option_bar(quiet, len(variants))
-        results = run_options([v.case for v in variants], workers=workers, cluster=cluster, progress=update)
-        bar.close()
-        options = make_options([v.label for v in variants], results)
-        best, reason = best_option(options, by)
-        files = []
-        if json_file:
-            files.append((json_file, options_json(options, best, reason, by,
-                                                  {"settings": [dict(v.settings) for v in variants]})))
-        if csv_file:
-            files.append((csv_file, options_csv(options)))
+        options, best, reason = _study_options([v.case for v in variants], [v.label for v in variants], by,
+                                               quiet, workers, cluster)
+        files = _table_files(options, best, reason, by, json_file, csv_file,
+                             {"settings": [dict(v.settings) for v in variants]})
         if plot_file:
             files.append((plot_file, png_bytes(tradeoff_figure(options, best))))
         _write_all(files)
