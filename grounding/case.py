@@ -241,6 +241,7 @@ class Case:
     probes: tuple[Point2, ...] = ()
     soil_fit: SoilFit | None = None
     costs: Costs | None = None
+    notes: tuple[str, ...] = ()
     site: str = ""
     source: str = ""
     sha256: str = ""

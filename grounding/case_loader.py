@@ -233,11 +233,15 @@ class _CaseReader:
         probes = tuple(self.vector(f"probes[{i}]", p, 2, "m", "x, y")
                        for i, p in enumerate(self.sequence("probes", top.get("probes"))))
         costs = self.costs(top.get("costs"))
+        notes = list(soil_fit.readings.notes) if soil_fit else []
         if "sweep" in top:
             sweep_settings(self.doc)                      # validated here; expanded by load_variants
+            notes.append("the sweep block is not used by a single study (the case is studied as written); "
+                         "run grounding sweep or grounding design for the options")
         return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
                     surface_layer=surface_layer, discretization=discretization, surface=surface,
-                    probes=probes, soil_fit=soil_fit, costs=costs, site=site, source=self.doc.file, sha256=sha256)
+                    probes=probes, soil_fit=soil_fit, costs=costs, notes=tuple(notes), site=site,
+                    source=self.doc.file, sha256=sha256)
 
     def costs(self, value: Any) -> Costs | None:
         if value is None:
@@ -639,6 +643,7 @@ def load_variants(path: str | Path) -> list[Variant]:
                 hashlib.sha256((base.sha256 + label).encode()).hexdigest())
         except CaseError as exc:
             raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in sweep option {label})") from None
-        case = replace(case, title=f"{base.title} [{label}]")
+        case = replace(case, title=f"{base.title} [{label}]",
+                       notes=tuple(n for n in case.notes if not n.startswith("the sweep block")))
         variants.append(Variant(label, tuple((n, v) for n, (_, v) in zip(names, combo)), case, data))
     return variants

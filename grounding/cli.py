@@ -274,7 +274,7 @@ def design(case_file, by, out_file, quiet, workers, cluster):
     from .options.design import search
     from .outputs.design_case import design_case_yaml
     from .outputs.options_outputs import sweep_table
-    from .outputs.summary_text import caution_box
+    from .outputs.summary_text import MARGINAL, caution_box
 
     try:
         variants = load_variants(case_file)
@@ -301,6 +301,9 @@ def design(case_file, by, out_file, quiet, workers, cluster):
                    + (f", cost {q.cost:,.0f} {q.currency}" if q.cost is not None else "")
                    + f"; touch margin {b.touch_margin * 100:+.0f} %, step margin {b.step_margin * 100:+.0f} %.")
         click.echo(f"Every cheaper option ({len(found.studied) - 1}) was studied and fails.")
+        if min(b.touch_margin, b.step_margin) < MARGINAL:
+            click.echo(f"!! Its margin is below {MARGINAL * 100:.0f} % of the limit: marginal. Study the written case "
+                       "with a finer discretisation and check the soil and fault data before relying on it.")
     for path, _ in files:
         click.echo(f"Written: {path}")
 

@@ -25,7 +25,7 @@ from .safety.ieee80 import Limits, decrement_factor, tolerable_limits
 from .safety.simplified import SimplifiedResult, simplified_method
 from .soil import SoilKernel, make_kernel
 from .solve import Solution, solve_equipotential
-from .surface import SurfaceResult, surface_fields
+from .surface import SurfaceResult, map_axes, surface_fields
 
 Progress = Callable[[str, float], None]
 
@@ -33,6 +33,8 @@ Progress = Callable[[str, float], None]
 CONVERGENCE_ORDER = 1.0
 #: Share of physical memory a study may plan to use for its dense matrices.
 MEMORY_SHARE = 0.5
+#: Most surface-map points a study evaluates.
+MAX_MAP_POINTS = 1_000_000
 
 
 @dataclass(frozen=True)
@@ -139,6 +141,12 @@ def check_model_size(case: Case, segments: Segments) -> None:
             f"{case.source}: discretization.max_segment = {case.discretization.max_segment:g} m gives {n:,} "
             f"segments; the dense matrix and its factor would need {need / 2 ** 30:.1f} GiB, more than the "
             f"{limit / 2 ** 30:.1f} GiB this machine can spare; use max_segment of at least {suggest:.2g} m")
+    x, y = map_axes(segments, case.surface)
+    if len(x) * len(y) > MAX_MAP_POINTS:
+        raise ModelTooLargeError(
+            f"{case.source}: surface.resolution = {case.surface.resolution:g} m gives a map of {len(x)} × {len(y)} = "
+            f"{len(x) * len(y):,} points (at most {MAX_MAP_POINTS:,}); use a resolution of at least "
+            f"{case.surface.resolution * np.sqrt(len(x) * len(y) / MAX_MAP_POINTS):.2g} m or a smaller margin")
 
 
 def _solve(case: Case, progress: Progress | None = None):
@@ -257,4 +265,5 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
     return StudyResult(case=case, segments=segments, kernel=unit.kernel, solution=solution, decrement_factor=df,
                        grid_current=ig, ground_potential_rise=gpr, segment_currents=currents, surface=surface,
                        limits=limits, simplified=simplified_method(case, ig), conductor=conductor,
-                       discretization_error=unit.error, timings=dict(unit.timings), warnings=segments.warnings)
+                       discretization_error=unit.error, timings=dict(unit.timings),
+                       warnings=case.notes + segments.warnings)

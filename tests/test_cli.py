@@ -117,3 +117,32 @@ def test_unwritable_json_path_is_a_clean_error(small_case, tmp_path):
 def test_demo_cases_are_valid(name):
     res = run("check", ROOT / "cases" / name)
     assert res.exit_code == 0, res.output
+
+
+def test_oversized_map_refused(tmp_path):
+    big = tmp_path / "map.yaml"
+    big.write_text(SMALL.replace("surface: {margin: 2, resolution: 1.0}", "surface: {margin: 500, resolution: 0.2}"))
+    res = run("check", big)
+    assert res.exit_code == 2 and "points" in res.output and "resolution of at least" in res.output
+
+
+@pytest.mark.parametrize("name", ["kestrel-bend-uniform.yaml", "kestrel-bend-fitted.yaml"])
+def test_demo_studies_run(name, tmp_path):
+    """The README's demo command (and the fitted-soil demo) run end to end."""
+    res = run("study", ROOT / "cases" / name, "--quiet", "--json", tmp_path / "r.json")
+    assert res.exit_code == 0, res.output
+    doc = json.loads((tmp_path / "r.json").read_text())
+    assert doc["summary"]["grid_resistance_ohm"] > 0
+
+
+def test_profile_and_site_from_case(tmp_path):
+    from grounding.case_loader import parse_case
+    from grounding.study import run_study
+
+    text = SMALL.replace("surface: {margin: 2, resolution: 1.0}",
+                         "surface: {margin: 2, resolution: 1.0, profile: [[0, 7.5], [20, 7.5]]}") + "site: Testfield\n"
+    r = run_study(parse_case(text), estimate_error=False)
+    assert r.case.site == "Testfield"
+    p = r.surface.profile
+    assert (p.x[0], p.y[0], p.x[-1], p.y[-1]) == (0.0, 7.5, 20.0, 7.5)
+    assert p.distance[-1] == pytest.approx(20.0)

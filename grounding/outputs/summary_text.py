@@ -9,6 +9,8 @@ from ..cautions import CAUTIONS
 from ..study import StudyResult
 
 WIDTH = 78
+#: Margins smaller than this share of the limit are reported as marginal.
+MARGINAL = 0.05
 
 
 def caution_box(cautions=CAUTIONS) -> str:
@@ -111,6 +113,11 @@ def study_summary(r: StudyResult) -> str:
     out.append(f"  Limits for {other} kg: touch {_volts(r.limits.touch[other])}, step {_volts(r.limits.step[other])}")
     if not (r.touch_ok and r.step_ok):
         out.append("  !! At least one criterion FAILS: the layout is not safe as modelled.")
+    thin = [name for name, ext, limit in (("touch", s.max_touch, r.tolerable_touch), ("step", s.max_step, r.tolerable_step))
+            if abs(limit - ext.value) / limit < MARGINAL]
+    if thin:
+        out.append(f"  !! The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat the "
+                   "verdict as marginal (soil data, fault data and discretisation are all less certain than that).")
 
     out.append(_heading("Simplified method (IEEE Std 80) beside the numerical result"))
     simp = r.simplified
