@@ -278,6 +278,9 @@ def design(case_file, by, out_file, quiet, workers, cluster):
 
     try:
         variants = load_variants(case_file)
+        if by == "cost" and variants[0].case.costs is None:
+            raise GroundingError(f"{case_file}: --by cost needs unit prices; add a costs block (see docs/options.md) "
+                                 "or use --by material")
         bar, update = _option_bar(quiet, len(variants))
         found = search(variants, by=by, workers=workers, cluster=cluster, progress=update)
         bar.close()

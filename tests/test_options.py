@@ -164,3 +164,24 @@ def test_bad_sweeps_are_located(tmp_path, block, message):
         load_variants(path)
     assert message in str(info.value)
     assert str(info.value).startswith(f"{path}:")
+
+
+def test_soil_scenarios_sweep(tmp_path):
+    """Named soil scenarios: each option gets its soil block; wetter soil gives lower Rg."""
+    text = SWEEP.split("sweep:")[0] + ("sweep:\n  soil:\n    dry: {resistivity: 400}\n"
+                                       "    wet: {layers: [{resistivity: 80, thickness: 1.0}, {resistivity: 150}]}\n")
+    path = tmp_path / "soil.yaml"
+    path.write_text(text)
+    v = load_variants(path)
+    assert [x.label for x in v] == ["soil=dry", "soil=wet"]
+    assert v[0].case.soil.layers[0].resistivity == 400 and len(v[1].case.soil.layers) == 2
+    r = run_options([x.case for x in v], estimate_error=False)
+    assert r[1].grid_resistance < r[0].grid_resistance
+
+
+def test_design_by_cost_needs_prices(tmp_path):
+    path = tmp_path / "nocost.yaml"
+    path.write_text(SWEEP.replace("costs: {conductor_per_m: 40, rod_per_m: 30, rod_each: 100, surface_layer_per_m2: 5, "
+                                  "currency: EUR}\n", ""))
+    res = CliRunner().invoke(main, ["design", str(path), "--by", "cost", "--quiet"])
+    assert res.exit_code == 2 and "needs unit prices" in res.output
