@@ -27,7 +27,7 @@ from .soil.base import DEPTH_QUANTUM, SoilKernel
 Progress = Callable[[str, float], None]
 
 #: Above this many distinct segment depths the far field is evaluated point-pair-wise.
-MAX_DEPTH_CLASSES = 64
+MAX_DEPTH_CLASSES = 16
 #: Rows per chunk of the far-field evaluation.
 ROW_CHUNK = 128
 #: Pairs per chunk of the near-field evaluation.

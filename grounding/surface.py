@@ -20,7 +20,7 @@ from scipy.spatial.distance import cdist
 from shapely.geometry import LineString, MultiLineString, MultiPoint, Point, Polygon
 from shapely.ops import polygonize, unary_union
 
-from .assembly import AssemblyOptions
+from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions
 from .case import SurfaceMap
 from .geometry import Segments
 from .integrals import GAUSS2, line_integral
@@ -56,8 +56,10 @@ class SurfacePotential:
         self.L = segments.length
         depth = np.round(self.mid[:, 2] / DEPTH_QUANTUM).astype(np.int64)
         classes, cls = np.unique(depth, return_inverse=True)
-        self.members = [(kernel.radial(0.0, classes[k] * DEPTH_QUANTUM), np.flatnonzero(cls.ravel() == k))
-                        for k in range(len(classes))]
+        # few burial depths: one radial function per depth; very many (sloping conductors): point pairs
+        self.members = None if len(classes) > MAX_DEPTH_CLASSES else \
+            [(kernel.radial(0.0, classes[k] * DEPTH_QUANTUM), np.flatnonzero(cls.ravel() == k))
+             for k in range(len(classes))]
         self.tree = cKDTree(self.mid)
 
     def __call__(self, xy: np.ndarray, progress: Progress | None = None) -> np.ndarray:
@@ -68,7 +70,9 @@ class SurfacePotential:
         out = np.zeros(m)
         for start in range(0, m, POINT_CHUNK):
             rows = slice(start, min(m, start + POINT_CHUNK))
-            for radial, cols in self.members:
+            if self.members is None:
+                out[rows] += kernel.potential(cdist(xy[rows], mid[:, :2]), 0.0, mid[None, :, 2]) @ currents
+            for radial, cols in self.members or ():
                 out[rows] += radial(cdist(xy[rows], mid[cols, :2])) @ currents[cols]
             if progress:
                 progress("surface", 0.8 * rows.stop / m)

@@ -20,6 +20,8 @@ Radial = Callable[[np.ndarray], np.ndarray]
 DEPTH_QUANTUM = 1e-9
 #: Node spacing of the radial tables in u = asinh(r / r_c).
 TABLE_STEP = 0.005
+#: Above this many distinct (z, z') pairs, kernels that can sum their terms directly do so.
+MAX_TABLE_PAIRS = 256
 #: Radial tables reach this horizontal distance; beyond it G·√(r²+r_c²) is held constant, m.
 TABLE_REACH = 1e5
 
@@ -117,12 +119,55 @@ class SoilKernel(ABC):
         """G(r) minus the near terms at fixed depths, or None when the near terms are all of G."""
 
     def potential(self, r: np.ndarray, z: np.ndarray, zp: np.ndarray) -> np.ndarray:
-        """Full G at arbitrary point pairs (r, z, z' in m, broadcast), Ω."""
+        """Full G at arbitrary point pairs (r, z, z' in m, broadcast), Ω.
+
+        Pairs are grouped by depth and evaluated with the radial tables; when the depths take so many
+        values that tables per pair of depths would cost more than they save, kernels that can sum
+        their terms directly do so (see ``direct_potential``)."""
+        if self._many_depth_pairs(z, zp):
+            direct = self.direct_potential(r, z, zp)
+            if direct is not None:
+                return direct
         return self._by_depth(self.radial, r, z, zp)
 
     def remainder(self, r: np.ndarray, z: np.ndarray, zp: np.ndarray) -> np.ndarray:
         """G minus the near terms at arbitrary point pairs, Ω (zeros when there is no remainder)."""
+        if self._many_depth_pairs(z, zp):
+            direct = self.direct_remainder(r, z, zp)
+            if direct is not None:
+                return direct
         return self._by_depth(self.remainder_radial, r, z, zp)
+
+    def direct_potential(self, r, z, zp) -> np.ndarray | None:
+        """Full G summed term by term at arbitrary point pairs, or None when the kernel has no such sum."""
+        return None
+
+    def direct_remainder(self, r, z, zp) -> np.ndarray | None:
+        """Remainder summed term by term at arbitrary point pairs, or None."""
+        return None
+
+    @staticmethod
+    def _many_depth_pairs(z, zp) -> bool:
+        z, zp = np.asarray(z), np.asarray(zp)
+        if z.size <= 1 and zp.size <= 1:
+            return False
+        return len(_levels(np.ravel(z))[0]) * len(_levels(np.ravel(zp))[0]) > MAX_TABLE_PAIRS
+
+    def sum_by_layers(self, terms_of, r, z, zp) -> np.ndarray:
+        """Σ of ``terms_of(obs_layer, src_layer)`` image terms at arbitrary point pairs, Ω."""
+        r, z, zp = np.broadcast_arrays(np.asarray(r, float), np.asarray(z, float), np.asarray(zp, float))
+        out = np.zeros(r.shape)
+        lo, ls = self.layer_of(z), self.layer_of(zp)
+        n = len(self.resistivities)
+        for a in range(n):
+            ma = lo == a
+            if not ma.any():
+                continue
+            for b in range(n):
+                m = ma & (ls == b)
+                if m.any():
+                    out[m] = terms_of(a, b).evaluate(r[m], z[m], zp[m])
+        return out
 
     @staticmethod
     def _by_depth(factory, r, z, zp) -> np.ndarray:

@@ -104,6 +104,16 @@ class TwoLayerSoil(SoilKernel):
     def near_terms(self, obs_layer: int, src_layer: int) -> ImageTerms:
         return self._split(obs_layer, src_layer, near=True)
 
+    def direct_potential(self, r, z, zp):
+        return self.sum_by_layers(lambda a, b: self._all[(a, b)][0], r, z, zp)
+
+    def direct_remainder(self, r, z, zp):
+        return self.sum_by_layers(lambda a, b: self._far_terms(a, b), r, z, zp)
+
+    @lru_cache(maxsize=None)
+    def _far_terms(self, obs: int, src: int) -> ImageTerms:
+        return self._split(obs, src, near=False)
+
     def _layers(self, z: float, zp: float) -> tuple[int, int]:
         return int(z >= self.h), int(zp >= self.h)
 

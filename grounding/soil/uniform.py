@@ -49,3 +49,9 @@ class UniformSoil(SoilKernel):
 
     def remainder_radial(self, z: float, zp: float) -> Radial | None:
         return None
+
+    def direct_potential(self, r, z, zp):
+        return self._terms.evaluate(r, z, zp)
+
+    def direct_remainder(self, r, z, zp):
+        return np.zeros(np.broadcast_shapes(np.shape(r), np.shape(z), np.shape(zp)))
