@@ -433,6 +433,13 @@ class _CaseReader:
             if len(pts) < 3:
                 raise self.doc.fail(f"{p}.touch_area", "must be a polygon of at least 3 [x, y] corners in m")
             area = tuple(self.vector(f"{p}.touch_area[{i}]", q, 2, "m", "x, y") for i, q in enumerate(pts))
+            from shapely.geometry import Polygon
+            from shapely.validation import explain_validity
+
+            poly = Polygon(area)
+            if not poly.is_valid or poly.area <= 0:
+                raise self.doc.fail(f"{p}.touch_area", f"is not a simple polygon ({explain_validity(poly)}); "
+                                                      "list the corners in order around the area without crossings")
         profile = m.get("profile")
         if profile is not None:
             if not isinstance(profile, list) or len(profile) != 2:

@@ -130,3 +130,8 @@ def test_missing_file(tmp_path):
     with pytest.raises(CaseError) as info:
         load_case(tmp_path / "nope.yaml")
     assert "file not found" in str(info.value)
+
+
+def test_self_crossing_touch_area_refused():
+    msg = error_of(case_text(ROD, extra="surface: {touch_area: [[0, 0], [10, 10], [10, 0], [0, 10]]}\n"))
+    assert "surface.touch_area is not a simple polygon" in msg
