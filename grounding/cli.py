@@ -27,7 +27,7 @@ class _Bar:
         bar = self.bars.get(stage)
         if bar is None:
             bar = self.bars[stage] = tqdm(total=100, desc=f"{stage:<9}", unit="%", leave=False, file=sys.stderr,
-                                          bar_format="{desc} {bar} {percentage:3.0f}%")
+                                          bar_format="{desc} {bar} {percentage:3.0f}%", ncols=_columns())
         bar.n = int(round(100 * min(1.0, fraction)))
         bar.refresh()
         if fraction >= 1.0:
@@ -36,6 +36,14 @@ class _Bar:
     def close(self):
         for bar in self.bars.values():
             bar.close()
+
+
+def _columns() -> int:
+    """Terminal width for progress bars (80 when the terminal does not say)."""
+    import shutil
+
+    width = shutil.get_terminal_size((80, 24)).columns
+    return max(40, min(width or 80, 120))
 
 
 def _fail(exc: Exception) -> None:
@@ -161,7 +169,7 @@ def _parallel_options(f):
 def _option_bar(quiet: bool, total: int):
     from tqdm import tqdm
 
-    bar = tqdm(total=total, desc="options", unit="opt", file=sys.stderr,
+    bar = tqdm(total=total, desc="options", unit="opt", file=sys.stderr, ncols=_columns(),
                disable=quiet or not sys.stderr.isatty(), leave=False)
 
     def update(done, total_):
