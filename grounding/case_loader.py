@@ -462,7 +462,7 @@ SWEEP_SHORTHANDS = {
     "rods.diameter": "electrodes.rods[*].diameter",
 }
 #: Sweep names computed rather than set: mesh spacing (m) of every grid, rod layout on the first grid.
-SWEEP_SPECIAL = ("grid.spacing", "rods.layout")
+SWEEP_SPECIAL = ("grid.spacing", "rods.layout", "rods.count")
 ROD_LAYOUTS = ("none", "corners", "perimeter")
 #: Rod length and diameter used by rods.layout when the case has no rods, m.
 DEFAULT_ROD = (3.0, 0.016)
@@ -520,6 +520,10 @@ def sweep_settings(doc: "_Document") -> list[tuple[str, list[tuple[str, Any]]]]:
             for v in vals:
                 if v not in ROD_LAYOUTS:
                     raise doc.fail(path, f"values must be one of {', '.join(ROD_LAYOUTS)}, got {_fmt(v)}")
+        if name == "rods.count":
+            for v in vals:
+                if isinstance(v, bool) or not isinstance(v, int) or v < 0:
+                    raise doc.fail(path, f"values must be whole numbers >= 0, got {_fmt(v)}")
         out.append((str(name), [(_label(v), v) for v in vals]))
     if math.prod(len(v) for _, v in out) > MAX_VARIANTS:
         raise doc.fail("sweep", f"gives {math.prod(len(v) for _, v in out)} combinations; at most {MAX_VARIANTS}")
@@ -579,7 +583,17 @@ def _assign(node: Any, parts: list, value: Any, where: str) -> None:
         node[head] = copy.deepcopy(value)
 
 
-def _rod_layout(data: dict, layout: str, where: str) -> None:
+def _perimeter_nodes(g: dict) -> list[tuple[float, float]]:
+    """Nodes on a grid's perimeter in order around it, starting at the origin corner."""
+    (ox, oy), (lx, ly), (nx, ny) = g["origin"], g["size"], g["meshes"]
+    xs = [ox + lx * i / nx for i in range(nx + 1)]
+    ys = [oy + ly * j / ny for j in range(ny + 1)]
+    ring = [(x, ys[0]) for x in xs] + [(xs[-1], y) for y in ys[1:]] + \
+        [(x, ys[-1]) for x in reversed(xs[:-1])] + [(xs[0], y) for y in reversed(ys[1:-1])]
+    return ring
+
+
+def _rod_layout(data: dict, layout, where: str) -> None:
     el = data.get("electrodes") or {}
     grids = el.get("grids") or []
     if not grids:
@@ -589,14 +603,24 @@ def _rod_layout(data: dict, layout: str, where: str) -> None:
         if rods and isinstance(rods[0], dict) else DEFAULT_ROD
     g = grids[0]
     (ox, oy), (lx, ly), (nx, ny), depth = g["origin"], g["size"], g["meshes"], g["depth"]
-    if layout == "none":
+    corners = [(ox, oy), (ox + lx, oy), (ox + lx, oy + ly), (ox, oy + ly)]
+    if isinstance(layout, int):                    # rods.count: corners first, then evenly round the perimeter
+        ring = _perimeter_nodes(g)
+        if layout > len(ring):
+            raise ValueError(f"{where}: {layout} rods do not fit on the {len(ring)} perimeter nodes of the grid")
+        if layout <= 4:
+            tops = corners[:layout] if layout != 2 else [corners[0], corners[2]]
+        else:
+            rest = [p for p in ring if p not in corners]
+            extra = layout - 4
+            picks = [rest[int(round((k + 0.5) * len(rest) / extra - 0.5))] for k in range(extra)]
+            tops = corners + picks
+    elif layout == "none":
         tops = []
     elif layout == "corners":
-        tops = [(ox, oy), (ox + lx, oy), (ox, oy + ly), (ox + lx, oy + ly)]
+        tops = corners
     else:
-        xs = [ox + lx * i / nx for i in range(nx + 1)]
-        ys = [oy + ly * j / ny for j in range(ny + 1)]
-        tops = sorted({(x, y) for x in xs for y in ys if x in (xs[0], xs[-1]) or y in (ys[0], ys[-1])})
+        tops = _perimeter_nodes(g)
     el["rods"] = [{"top": [float(x), float(y), float(depth)], "length": length, "diameter": diameter}
                   for x, y in tops]
     data["electrodes"] = el
@@ -607,14 +631,14 @@ def _apply(data: dict, name: str, value: Any, where: str) -> None:
         for g in (data.get("electrodes") or {}).get("grids") or []:
             g["meshes"] = [max(1, math.ceil(g["size"][0] / value - 1e-9)), max(1, math.ceil(g["size"][1] / value - 1e-9))]
         return
-    if name == "rods.layout":
+    if name in ("rods.layout", "rods.count"):
         _rod_layout(data, value, where)
         return
     _assign(data, _path_parts(SWEEP_SHORTHANDS.get(name, name)), value, where)
 
 
 def _order(name: str) -> int:
-    return {"grid.spacing": 0, "rods.layout": 2, "rods.length": 3, "rods.diameter": 3}.get(
+    return {"grid.spacing": 0, "rods.layout": 2, "rods.count": 2, "rods.length": 3, "rods.diameter": 3}.get(
         name, 0 if name.startswith("grid.") else 1)
 
 

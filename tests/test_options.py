@@ -185,3 +185,18 @@ def test_design_by_cost_needs_prices(tmp_path):
                                   "currency: EUR}\n", ""))
     res = CliRunner().invoke(main, ["design", str(path), "--by", "cost", "--quiet"])
     assert res.exit_code == 2 and "needs unit prices" in res.output
+
+
+def test_rod_count_sweep(tmp_path):
+    """rods.count: corners first, then spread evenly round the perimeter nodes of the first grid."""
+    path = tmp_path / "rods.yaml"
+    path.write_text(SWEEP.split("sweep:")[0] + "sweep:\n  grid.meshes: [[4, 4]]\n  rods.count: [0, 2, 4, 8]\n")
+    v = load_variants(path)
+    counts = [len(x.case.electrodes.rods) for x in v]
+    assert counts == [0, 2, 4, 8]
+    tops = {(r.top[0], r.top[1]) for r in v[3].case.electrodes.rods}
+    assert {(0, 0), (20, 0), (20, 16), (0, 16)} <= tops and len(tops) == 8
+    bad = tmp_path / "bad.yaml"
+    bad.write_text(SWEEP.split("sweep:")[0] + "sweep:\n  rods.count: [99]\n")
+    with pytest.raises(CaseError, match="do not fit on the 8 perimeter nodes"):
+        load_variants(bad)
