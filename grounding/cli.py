@@ -340,8 +340,16 @@ def check(case_file):
     except GroundingError as exc:
         _fail(exc)
     click.echo(f"{case_file}: valid; {len(segments)} segments, {segments.total_length:.1f} m of electrode")
-    for w in segments.warnings:
+    for w in case.notes + segments.warnings:
         click.echo(f"  note: {w}")
+    if any(n.startswith("the sweep block") for n in case.notes):
+        from .case_loader import load_variants
+
+        try:
+            variants = load_variants(case_file)
+        except GroundingError as exc:
+            _fail(exc)
+        click.echo(f"  sweep: {len(variants)} options, each valid")
 
 
 if __name__ == "__main__":
