@@ -87,6 +87,10 @@ def _table(rows, widths, st, header=True, verdict_col=None, row_heights=None):
                 style.append(("BACKGROUND", (verdict_col, i), (verdict_col, i), FAIL_BG))
             elif cell.startswith("PASS"):
                 style.append(("BACKGROUND", (verdict_col, i), (verdict_col, i), PASS_BG))
+    # long text wraps inside its column instead of running past the margin
+    cell_style = ParagraphStyle("cell", fontName=st["reg"], fontSize=8.5, leading=10.5, textColor=INK)
+    rows = [[Paragraph(c, cell_style) if isinstance(c, str) and len(c) * 1.55 * mm > w else c
+             for c, w in zip(row, widths)] for row in rows]
     t = Table(rows, colWidths=widths, rowHeights=row_heights, hAlign="LEFT", repeatRows=1 if header else 0)
     t.setStyle(TableStyle(style))
     return t
