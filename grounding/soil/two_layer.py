@@ -20,6 +20,9 @@ import numpy as np
 
 from .base import ImageTerms, Radial, RadialTable, SoilKernel
 
+#: Nodes of a radial table (about ln(reach / r_c) / step), for the table-or-direct choice.
+TABLE_NODES = 5000
+
 
 def series_order(k: float, tolerance: float) -> int:
     """Number of image orders N for which the neglected tail is below ``tolerance`` (relative)."""
@@ -103,6 +106,10 @@ class TwoLayerSoil(SoilKernel):
     @lru_cache(maxsize=None)
     def near_terms(self, obs_layer: int, src_layer: int) -> ImageTerms:
         return self._split(obs_layer, src_layer, near=True)
+
+    def prefer_direct(self, depth_pairs: int, elements: int) -> bool:
+        # a table costs about its node count in term sums; the direct sum costs one per element
+        return depth_pairs > 16 and depth_pairs * TABLE_NODES > elements
 
     def direct_potential(self, r, z, zp):
         return self.sum_by_layers(lambda a, b: self._all[(a, b)][0], r, z, zp)

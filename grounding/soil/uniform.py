@@ -50,6 +50,9 @@ class UniformSoil(SoilKernel):
     def remainder_radial(self, z: float, zp: float) -> Radial | None:
         return None
 
+    def prefer_direct(self, depth_pairs: int, elements: int) -> bool:
+        return depth_pairs > 16                     # two terms: direct is always cheap
+
     def direct_potential(self, r, z, zp):
         return self._terms.evaluate(r, z, zp)
 
