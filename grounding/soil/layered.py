@@ -23,7 +23,7 @@ import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.special import j0
 
-from .base import ImageTerms, Radial, RadialTable, SoilKernel, TABLE_REACH
+from .base import DEPTH_QUANTUM, ImageTerms, Radial, RadialTable, SoilKernel, TABLE_REACH
 
 #: Sub-grids per filter spacing on the logarithmic r nodes (lagged convolution).
 SUBGRIDS = 4
@@ -221,6 +221,21 @@ class LayeredSoil(SoilKernel):
         r_c = max(dz, 1e-3)
         r_min = 1e-4 if dz < 1e-6 else 0.0
         return RadialTable(lambda r: near.evaluate(r, z, zp) + rem(r), r_c, r_min, weight_scale=dz)
+
+    def _go_direct(self, r, z, zp) -> bool:
+        """Interpolate between depth nodes only when that needs fewer tables than the exact depths."""
+        from .base import _levels
+
+        z, zp = np.asarray(z, float), np.asarray(zp, float)
+        if z.size <= 1 and zp.size <= 1:
+            return False
+        lz, lp = _levels(np.ravel(z))[0] * DEPTH_QUANTUM, _levels(np.ravel(zp))[0] * DEPTH_QUANTUM
+        exact = len(lz) * len(lp)
+        if exact <= 16:
+            return False
+        nz = len(np.unique(np.concatenate(self._depth_nodes(lz)[:2])))
+        npp = len(np.unique(np.concatenate(self._depth_nodes(lp)[:2])))
+        return nz * npp < exact
 
     def direct_potential(self, r, z, zp):
         """Near terms at the exact depths plus the remainder interpolated between depth nodes."""
