@@ -219,8 +219,9 @@ class _CaseReader:
         if fmt not in SUPPORTED_FORMATS:
             raise self.doc.fail("format", f"must be 1 (the only case-file format), got {_fmt(fmt)}")
         title = top.get("title", Path(self.doc.file).stem)
-        if not isinstance(title, str):
-            title = str(title)
+        if isinstance(title, (list, dict)) or title is None:
+            raise self.doc.fail("title", "must be one line of text")
+        title = str(title)
         site = top.get("site", "")
         site = "" if site is None else str(site)
         soil, soil_fit = self.soil(top["soil"])
@@ -520,6 +521,10 @@ def sweep_settings(doc: "_Document") -> list[tuple[str, list[tuple[str, Any]]]]:
             for v in vals:
                 if v not in ROD_LAYOUTS:
                     raise doc.fail(path, f"values must be one of {', '.join(ROD_LAYOUTS)}, got {_fmt(v)}")
+        if name in ("grid.spacing", "grid.depth", "grid.diameter", "rods.length", "rods.diameter"):
+            for v in vals:
+                if isinstance(v, bool) or not isinstance(v, (int, float)) or v <= 0:
+                    raise doc.fail(path, f"values must be numbers > 0 (m), got {_fmt(v)}")
         if name == "rods.count":
             for v in vals:
                 if isinstance(v, bool) or not isinstance(v, int) or v < 0:
@@ -666,7 +671,7 @@ def load_variants(path: str | Path) -> list[Variant]:
         for n, (lab, value) in sorted(zip(names, combo), key=lambda t: _order(t[0])):
             try:
                 _apply(data, n, value, f"sweep.{n}")
-            except (ValueError, KeyError, TypeError) as exc:
+            except (ValueError, KeyError, TypeError, ArithmeticError) as exc:
                 msg = str(exc) if isinstance(exc, ValueError) else f"cannot be applied ({exc})"
                 raise CaseError(str(path), doc.line(f"sweep.{n}"), f"sweep.{n}", msg.split(": ", 1)[-1]) from None
         try:

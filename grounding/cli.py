@@ -352,5 +352,23 @@ def check(case_file):
         click.echo(f"  sweep: {len(variants)} options, each valid")
 
 
+def run() -> None:
+    """Console entry point: the command line, with a last safety net. A user's mistake is a
+    GroundingError (one line, exit 2); anything else is a defect of this program and is reported in
+    one line with exit 1 (set GROUNDING_DEBUG=1 for the traceback)."""
+    import os
+
+    try:
+        main(standalone_mode=True)
+    except SystemExit:
+        raise
+    except Exception as exc:  # noqa: BLE001 - the safety net is the point
+        if os.environ.get("GROUNDING_DEBUG"):
+            raise
+        click.echo(f"internal error: {type(exc).__name__}: {exc}; this is a defect of grounding, not of your "
+                   "input: please report it with the case file (GROUNDING_DEBUG=1 shows the traceback)", err=True)
+        sys.exit(1)
+
+
 if __name__ == "__main__":
-    main()
+    run()

@@ -12,9 +12,12 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .case import Case
+from .errors import ModelTooLargeError
 
 #: Distance below which two points are the same node, m.
 NODE_TOLERANCE = 1e-6
+#: Most straight conductors a case may make (junction finding compares every pair of them).
+MAX_CONDUCTORS = 2000
 
 
 @dataclass(frozen=True)
@@ -239,7 +242,12 @@ def segment(case: Case) -> Segments:
     Cuts every conductor at junctions and crossings with other conductors, at soil-layer
     interfaces, and into equal parts no longer than ``case.discretization.max_segment``.
     """
-    conductors, warnings = merge_collinear(*electrode_lines(case))
+    lines = electrode_lines(case)
+    if len(lines[0]) > MAX_CONDUCTORS:
+        raise ModelTooLargeError(
+            f"{case.source}: the electrodes make {len(lines[0]):,} straight conductors (grid lines, conductors and "
+            f"rods), more than {MAX_CONDUCTORS:,}; check the grids' meshes (a mesh count, not a spacing in mm?)")
+    conductors, warnings = merge_collinear(*lines)
     cuts, touching = junction_parameters(conductors)
     groups = bonded_groups(touching)
     if len(np.unique(groups)) > 1:

@@ -135,3 +135,19 @@ def test_missing_file(tmp_path):
 def test_self_crossing_touch_area_refused():
     msg = error_of(case_text(ROD, extra="surface: {touch_area: [[0, 0], [10, 10], [10, 0], [0, 10]]}\n"))
     assert "surface.touch_area is not a simple polygon" in msg
+
+
+def test_absurd_mesh_count_refused_before_geometry():
+    """A mesh count that looks like a spacing in mm would make 200 002 grid lines: refused at once."""
+    from grounding.errors import ModelTooLargeError
+    from grounding.geometry import segment
+
+    case = parse_case(case_text("grids: [{origin: [0, 0], size: [20, 15], meshes: [100000, 100000], depth: 0.6, "
+                                "diameter: 0.01}]\n"), file="case.yaml")
+    with pytest.raises(ModelTooLargeError, match="200,002 straight conductors"):
+        segment(case)
+
+
+def test_title_must_be_text():
+    assert "title must be one line of text" in error_of(case_text(ROD, extra="title2: x\n").replace(
+        "title: test", "title: [a, b]").replace("title2: x\n", ""))

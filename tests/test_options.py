@@ -155,7 +155,10 @@ def test_sweep_command_plot_and_csv(tmp_path, sweep_file):
     ("sweep:\n  rods.layout: [zigzag]\n", "values must be one of none, corners, perimeter"),
     ("sweep:\n  grid.depth: {from: 1, to: 0.5, step: 0.1}\n", "is empty"),
     ("sweep:\n  electrodes.grid[0].depth: [1]\n", "sweep.electrodes.grid[0].depth"),
-    ("sweep:\n  grid.depth: [-1]\n", "depth must be > 0 m"),
+    ("sweep:\n  grid.depth: [-1]\n", "sweep.grid.depth values must be numbers > 0 (m), got -1"),
+    ("sweep:\n  grid.spacing: [0]\n", "sweep.grid.spacing values must be numbers > 0 (m), got 0"),
+    ("sweep:\n  surface_layer.thickness: [5]\n", "model it as a soil layer (in sweep option "
+                                                    "surface_layer.thickness=5)"),
 ])
 def test_bad_sweeps_are_located(tmp_path, block, message):
     path = tmp_path / "bad.yaml"

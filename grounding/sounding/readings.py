@@ -105,6 +105,8 @@ def parse_readings(text: str, file: str = "<readings>", array: str | None = None
         raise CaseError(file, None, "", "has no header row and no readings")
     head_line, head = lines[0]
     columns = [c.strip().lower() for c in next(csv.reader([head]))]
+    if len(columns) == 1 and any(sep in head for sep in ";\t"):
+        raise CaseError(file, head_line, "header", "is not comma-separated; save the readings as CSV with commas")
     for c in columns:
         if c not in KNOWN_COLUMNS:
             import difflib
