@@ -227,6 +227,25 @@ def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
     return cuts, touching
 
 
+def close_parallel_pairs(c: Conductors) -> list[tuple[int, int, float]]:
+    """Parallel conductors that run side by side closer than the sum of their radii (their metal
+    overlaps), as (i, j, gap in m). The thin-wire model treats them as two separate wires."""
+    a, b = c.start, c.end
+    L = c.length
+    u = (b - a) / L[:, None]
+    dot = np.abs(u @ u.T)
+    w = a[None, :, :] - a[:, None, :]                        # a_j − a_i
+    along = np.einsum("ijk,ik->ij", w, u)
+    perp = np.linalg.norm(w - along[..., None] * u[:, None, :], axis=2)
+    tj = along + np.einsum("ijk,ik->ij", (b - a)[None, :, :], u)      # b_j along u_i
+    lo, hi = np.minimum(along, tj), np.maximum(along, tj)
+    overlap = np.minimum(hi, L[:, None]) - np.maximum(lo, 0.0)
+    close = (dot > 1 - 1e-9) & (perp > NODE_TOLERANCE) & (perp < c.radius[:, None] + c.radius[None, :]) & \
+        (overlap > 1e-3)
+    i, j = np.nonzero(np.triu(close, 1))
+    return [(int(p), int(q), float(perp[p, q])) for p, q in zip(i, j)]
+
+
 def bonded_groups(touching: np.ndarray) -> np.ndarray:
     """Label of the galvanically connected group of each conductor."""
     from scipy.sparse import csr_matrix
@@ -249,6 +268,10 @@ def segment(case: Case) -> Segments:
             f"rods), more than {MAX_CONDUCTORS:,}; check the grids' meshes (a mesh count, not a spacing in mm?)")
     conductors, warnings = merge_collinear(*lines)
     cuts, touching = junction_parameters(conductors)
+    for i, j, gap in close_parallel_pairs(conductors)[:5]:
+        warnings.append(f"{conductors.keys[i]} and {conductors.keys[j]} run side by side {gap * 1000:.1f} mm apart, "
+                        "closer than their diameters: the thin-wire model treats them as two wires; merge them "
+                        "into one conductor if they are one")
     groups = bonded_groups(touching)
     if len(np.unique(groups)) > 1:
         sizes = np.bincount(groups)

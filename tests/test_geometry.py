@@ -76,3 +76,15 @@ def test_oblique_crossing_found(make_case):
     s = segment(case)
     assert len(s) == 4
     assert np.allclose(s.length, np.sqrt(50))
+
+
+def test_side_by_side_conductors_closer_than_their_diameters_warned(make_case):
+    case = make_case("conductors:\n  - {start: [0, 0, 0.5], end: [10, 0, 0.5], diameter: 0.01}\n"
+                     "  - {start: [2, 0.004, 0.5], end: [8, 0.004, 0.5], diameter: 0.01}\n")
+    s = segment(case)
+    assert any("side by side 4.0 mm apart" in w for w in s.warnings)
+
+
+def test_ordinary_grid_has_no_proximity_warning(make_case):
+    case = make_case("grids: [{origin: [0, 0], size: [10, 10], meshes: [5, 5], depth: 0.5, diameter: 0.01}]\n")
+    assert not any("side by side" in w for w in segment(case).warnings)
