@@ -607,7 +607,7 @@ def _rod_layout(data: dict, layout, where: str) -> None:
     length, diameter = (rods[0].get("length", DEFAULT_ROD[0]), rods[0].get("diameter", DEFAULT_ROD[1])) \
         if rods and isinstance(rods[0], dict) else DEFAULT_ROD
     g = grids[0]
-    (ox, oy), (lx, ly), (nx, ny), depth = g["origin"], g["size"], g["meshes"], g["depth"]
+    (ox, oy), (lx, ly), depth = g["origin"], g["size"], g["depth"]
     corners = [(ox, oy), (ox + lx, oy), (ox + lx, oy + ly), (ox, oy + ly)]
     if isinstance(layout, int):                    # rods.count: corners first, then evenly round the perimeter
         ring = _perimeter_nodes(g)

@@ -9,7 +9,6 @@ A header row names the columns; lines starting with '#' are comments. Wenner: `s
 from __future__ import annotations
 
 import csv
-import io
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -197,17 +196,3 @@ def readings_from_arrays(array: str, spacing, apparent_resistivity, potential_ha
     return Readings(array, spacing, None if potential_half is None else np.asarray(potential_half, float),
                     np.asarray(apparent_resistivity, float), ("",) * len(spacing),
                     tuple(range(1, len(spacing) + 1)), "given")
-
-
-def to_csv(r: Readings) -> str:
-    """CSV text of readings (apparent resistivity form)."""
-    buf = io.StringIO()
-    if r.array == WENNER:
-        buf.write("spacing,apparent_resistivity\n")
-        for a, p in zip(r.spacing, r.apparent_resistivity):
-            buf.write(f"{a:g},{p:.6g}\n")
-    else:
-        buf.write("current_half_spacing,potential_half_spacing,apparent_resistivity\n")
-        for a, b, p in zip(r.spacing, r.potential_half, r.apparent_resistivity):
-            buf.write(f"{a:g},{b:g},{p:.6g}\n")
-    return buf.getvalue()
