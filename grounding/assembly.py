@@ -81,30 +81,42 @@ def near_pairs(segments: Segments, options: AssemblyOptions) -> tuple[np.ndarray
     return np.vstack([own, pairs[near]]), pairs[middle]
 
 
+def near_term_sum(kernel: SoilKernel, obs_z: np.ndarray, src_a: np.ndarray, src_b: np.ndarray,
+                  integral) -> np.ndarray:
+    """Σ_k c_k · integral(mask, c, d) over the kernel's near terms, for many observation–source pairs.
+
+    The pairs are grouped by (observation layer, source layer); for each near term, c and d are the
+    end points of the source segment's image (depth mapped to s·z' + t) for the pairs in ``mask``.
+    Shared by the matrix (segment observers) and the surface stage (point observers).
+    """
+    lo = kernel.layer_of(obs_z)
+    ls = kernel.layer_of(0.5 * (src_a[:, 2] + src_b[:, 2]))
+    out = np.zeros(len(obs_z))
+    for o in np.unique(lo):
+        for sl in np.unique(ls):
+            m = (lo == o) & (ls == sl)
+            if not m.any():
+                continue
+            c, d = src_a[m].copy(), src_b[m].copy()
+            acc = np.zeros(int(m.sum()))
+            terms = kernel.near_terms(int(o), int(sl))
+            for coef, s, t in zip(terms.coefficient, terms.sign, terms.shift):
+                c[:, 2] = s * src_a[m, 2] + t
+                d[:, 2] = s * src_b[m, 2] + t
+                acc += coef * integral(m, c, d)
+            out[m] = acc
+    return out
+
+
 def near_values(segments: Segments, kernel: SoilKernel, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     """Galerkin R_ij (Ω) for near pairs: exact near terms plus 2 × 2 Gauss remainder."""
     a, b = segments.start, segments.end
     L = segments.length
     radius = 0.5 * (segments.radius[i] + segments.radius[j])
-    zi, zj = segments.midpoint[i, 2], segments.midpoint[j, 2]
-    li, lj = kernel.layer_of(zi), kernel.layer_of(zj)
-    out = np.zeros(len(i))
-    for lo in np.unique(li):
-        for ls in np.unique(lj):
-            m = (li == lo) & (lj == ls)
-            if not m.any():
-                continue
-            ii, jj = i[m], j[m]
-            terms = kernel.near_terms(int(lo), int(ls))
-            acc = np.zeros(len(ii))
-            c, d = a[jj].copy(), b[jj].copy()
-            for coef, s, t in zip(terms.coefficient, terms.sign, terms.shift):
-                c[:, 2] = s * a[jj, 2] + t
-                d[:, 2] = s * b[jj, 2] + t
-                acc += coef * segment_pair_integral(a[ii], b[ii], c, d, radius[m])
-            out[m] = acc / (L[ii] * L[jj])
-    out += _gauss2x2(kernel.remainder, a[i], b[i], a[j], b[j])
-    return out
+    ai, bi = a[i], b[i]
+    exact = near_term_sum(kernel, segments.midpoint[i, 2], a[j], b[j],
+                          lambda m, c, d: segment_pair_integral(ai[m], bi[m], c, d, radius[m]))
+    return exact / (L[i] * L[j]) + _gauss2x2(kernel.remainder, ai, bi, a[j], b[j])
 
 
 def far_matrix(segments: Segments, kernel: SoilKernel, progress: Progress | None = None) -> np.ndarray:

@@ -133,8 +133,10 @@ def _fmt(value: Any) -> str:
 class _CaseReader:
     """Walks the document section by section; validation happens here once, then data is trusted."""
 
-    def __init__(self, doc: _Document):
+    def __init__(self, doc: _Document, fits: dict | None = None):
         self.doc = doc
+        # soil fits by (readings file, array, layers, traverse): the options of one sweep share them
+        self.fits = {} if fits is None else fits
 
     # ---- generic checks -------------------------------------------------------------------
     def mapping(self, path: str, value: Any, allowed: tuple[str, ...], required: tuple[str, ...] = ()) -> dict:
@@ -289,9 +291,6 @@ class _CaseReader:
         return Soil(tuple(layers)), None
 
     def fitted_soil(self, m: dict):
-        from .sounding.fit import fit_soil
-        from .sounding.readings import load_readings
-
         path = m["readings"]
         if not isinstance(path, str) or not path:
             raise self.doc.fail("soil.readings", "must be the path of a readings CSV file (relative to the case file)")
@@ -305,18 +304,27 @@ class _CaseReader:
                                                f"'auto', got {_fmt(count)}")
         if not full.is_file():
             raise self.doc.fail("soil.readings", f"file '{full}' not found (the path is relative to the case file)")
+        key = (str(full.resolve()), array, count, m.get("traverse"))
+        if key not in self.fits:
+            self.fits[key] = self._fit(full, array, count, m.get("traverse"))
+        fit = self.fits[key]
+        best = fit.best
+        layers = tuple(Layer(l.resistivity, l.thickness) for l in best.layers)
+        return Soil(layers), fit
+
+    def _fit(self, full: Path, array, count, traverse):
+        """Read a sounding, pick the traverse and fit it (the slow part of loading such a case)."""
+        from .sounding.fit import fit_soil
+        from .sounding.readings import load_readings
+
         readings = load_readings(full, array)
-        traverse = m.get("traverse")
         if traverse is not None:
             mask = np.array([t == str(traverse) for t in readings.traverse])
             if not mask.any():
                 names = sorted(set(readings.traverse))
                 raise self.doc.fail("soil.traverse", f"'{traverse}' is not in {full}; traverses: {', '.join(names)}")
             readings = readings.subset(mask)
-        fit = fit_soil(readings, count)
-        best = fit.best
-        layers = tuple(Layer(l.resistivity, l.thickness) for l in best.layers)
-        return Soil(layers), fit
+        return fit_soil(readings, count)
 
     def surface_layer(self, value: Any) -> SurfaceLayer | None:
         if value is None:
@@ -334,7 +342,7 @@ class _CaseReader:
                                           "shock_duration"), ("current", "clearing_time"))
         current = self.number("fault.current", m["current"], "A", gt=0)
         tf = self.number("fault.clearing_time", m["clearing_time"], "s", gt=0, le=30)
-        ts = self.number("fault.shock_duration", m.get("shock_duration", tf), "s", ge=0.03, le=3.0) \
+        ts = self.number("fault.shock_duration", m["shock_duration"], "s", ge=0.03, le=3.0) \
             if "shock_duration" in m else tf
         if not 0.03 <= ts <= 3.0:
             raise self.doc.fail("fault.clearing_time", f"= {ts:g} s is outside 0.03 s to 3 s, where Dalziel's "
@@ -656,9 +664,10 @@ def load_variants(path: str | Path) -> list[Variant]:
         When the case has no sweep block, or an option is not a valid case (the message names it).
     """
     path = Path(path)
-    base = load_case(path)                   # validates the file itself, sweep block included
-    text = path.read_text(encoding="utf-8")
+    text, sha = read_user_text(path, "a YAML case file")
     doc = _Document.parse(text, str(path))
+    fits: dict = {}
+    base = _CaseReader(doc, fits).read(sha)           # validates the file itself, sweep block included
     if "sweep" not in doc.data:
         raise CaseError(str(path), None, "sweep", "is missing; add a sweep block to vary parameters")
     settings = sweep_settings(doc)
@@ -675,7 +684,7 @@ def load_variants(path: str | Path) -> list[Variant]:
                 msg = str(exc) if isinstance(exc, ValueError) else f"cannot be applied ({exc})"
                 raise CaseError(str(path), doc.line(f"sweep.{n}"), f"sweep.{n}", msg.split(": ", 1)[-1]) from None
         try:
-            case = _CaseReader(_Document(str(path), data, doc.lines)).read(
+            case = _CaseReader(_Document(str(path), data, doc.lines), fits).read(
                 hashlib.sha256((base.sha256 + label).encode()).hexdigest())
         except CaseError as exc:
             raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in sweep option {label})") from None

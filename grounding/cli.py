@@ -91,8 +91,6 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file) -> list[
     """Build every requested output in memory first, then write each atomically."""
     from pathlib import Path
 
-    from .outputs.atomic import write_atomic
-
     files: list[tuple[str, bytes]] = []
     if json_file:
         from .outputs.results_json import results_json
@@ -110,8 +108,7 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file) -> list[
     if report_file:
         from .outputs.report_pdf import build_report
         files.append((report_file, build_report(result)))
-    for path, data in files:
-        write_atomic(path, data)
+    _write_all(files)
     return [p for p, _ in files]
 
 

@@ -20,7 +20,7 @@ from scipy.spatial.distance import cdist
 from shapely.geometry import LineString, MultiLineString, MultiPoint, Point, Polygon
 from shapely.ops import polygonize, unary_union
 
-from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions
+from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, near_term_sum
 from .case import SurfaceMap
 from .geometry import Segments
 from .integrals import GAUSS2, line_integral
@@ -126,23 +126,8 @@ def _near_point_values(p, segments: Segments, kernel: SoilKernel, j) -> np.ndarr
     t = np.clip(np.einsum("ij,ij->i", p - a, b - a) / (L * L), 0.0, 1.0)
     inside = np.linalg.norm(p - (a + t[:, None] * (b - a)), axis=1) < segments.radius[j]
     offset = np.where(inside, segments.radius[j], 0.0)
-    lo = kernel.layer_of(p[:, 2])
-    ls = kernel.layer_of(segments.midpoint[j, 2])
-    out = np.zeros(len(j))
-    for o in np.unique(lo):
-        for s_layer in np.unique(ls):
-            m = (lo == o) & (ls == s_layer)
-            if not m.any():
-                continue
-            terms = kernel.near_terms(int(o), int(s_layer))
-            c, d = a[m].copy(), b[m].copy()
-            acc = np.zeros(int(m.sum()))
-            for coef, s, t in zip(terms.coefficient, terms.sign, terms.shift):
-                c[:, 2] = s * a[m, 2] + t
-                d[:, 2] = s * b[m, 2] + t
-                acc += coef * line_integral(p[m], c, d, offset[m])
-            out[m] = acc / L[m]
-    return out + _gauss_point_values(kernel.remainder, p, a, b)
+    exact = near_term_sum(kernel, p[:, 2], a, b, lambda m, c, d: line_integral(p[m], c, d, offset[m]))
+    return exact / L + _gauss_point_values(kernel.remainder, p, a, b)
 
 
 def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geometry, shapely.Geometry]:

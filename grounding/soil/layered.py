@@ -23,7 +23,7 @@ import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.special import j0
 
-from .base import DEPTH_QUANTUM, ImageTerms, Radial, RadialTable, SoilKernel, TABLE_REACH
+from .base import DEPTH_QUANTUM, ImageTerms, Radial, RadialTable, SoilKernel, TABLE_REACH, _levels
 
 #: Sub-grids per filter spacing on the logarithmic r nodes (lagged convolution).
 SUBGRIDS = 4
@@ -224,8 +224,6 @@ class LayeredSoil(SoilKernel):
 
     def _go_direct(self, r, z, zp) -> bool:
         """Interpolate between depth nodes only when that needs fewer tables than the exact depths."""
-        from .base import _levels
-
         z, zp = np.asarray(z, float), np.asarray(zp, float)
         if z.size <= 1 and zp.size <= 1:
             return False
