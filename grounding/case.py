@@ -61,6 +61,48 @@ class SurfaceLayer:
 
 
 @dataclass(frozen=True)
+class Area:
+    """A plane polygon with optional holes, corners in m.
+
+    Attributes
+    ----------
+    shell : tuple of (x, y)
+        Outer boundary, in order around the area.
+    holes : tuple of tuple of (x, y)
+        Boundaries of holes inside the shell.
+    """
+
+    shell: tuple[Point2, ...]
+    holes: tuple[tuple[Point2, ...], ...] = ()
+
+
+#: Name of the zone of native soil outside every listed surface zone.
+NATIVE_ZONE = "native"
+
+
+@dataclass(frozen=True)
+class SurfaceZone:
+    """Part of the site surface with its own covering (crushed rock, asphalt, concrete) or none.
+
+    Attributes
+    ----------
+    name : str
+        Zone name as printed.
+    area : Area or None
+        Where the zone lies; None means everywhere (the whole-map ``surface_layer`` of a case).
+    layer : SurfaceLayer or None
+        The covering; None means people stand on the native soil (Cs = 1).
+    key : str
+        Key path in the case file, for messages.
+    """
+
+    name: str
+    area: Area | None
+    layer: SurfaceLayer | None
+    key: str = ""
+
+
+@dataclass(frozen=True)
 class Fault:
     """Earth-fault data.
 
@@ -121,26 +163,30 @@ class Grid:
     depth: float
     diameter: float
     key: str = ""
+    name: str = ""
 
 
 @dataclass(frozen=True)
 class Conductor:
-    """A straight buried conductor from ``start`` to ``end`` (x, y, depth in m), diameter in m."""
+    """A straight buried conductor from ``start`` to ``end`` (x, y, depth in m), diameter in m;
+    ``name`` is optional (touch areas may refer to it)."""
 
     start: Point3
     end: Point3
     diameter: float
     key: str = ""
+    name: str = ""
 
 
 @dataclass(frozen=True)
 class Rod:
-    """A vertical rod: ``top`` (x, y, depth in m), length and diameter in m."""
+    """A vertical rod: ``top`` (x, y, depth in m), length and diameter in m; ``name`` optional."""
 
     top: Point3
     length: float
     diameter: float
     key: str = ""
+    name: str = ""
 
 
 @dataclass(frozen=True)
@@ -165,6 +211,60 @@ class Electrodes:
     max_temperature: float | None = None
 
 
+#: How a separate electrode is connected: not at all, to remote earth, or to the main system.
+CONNECTIONS = ("floating", "remote", "bonded")
+
+
+@dataclass(frozen=True)
+class SeparateElectrode:
+    """Buried metal that is not (necessarily) part of the energised system: an isolated fence, a pipe,
+    a cable screen earthed far away.
+
+    Attributes
+    ----------
+    name : str
+        As printed.
+    connection : str
+        ``floating`` (potential unknown, net current zero), ``remote`` (tied to remote earth, 0 V) or
+        ``bonded`` (part of the main system).
+    grids, conductors, rods
+        Its metal, as for :class:`Electrodes`.
+    key : str
+        Key path in the case file.
+    line : int or None
+        Line of its entry in the case file, for messages.
+    """
+
+    name: str
+    connection: str
+    grids: tuple[Grid, ...] = ()
+    conductors: tuple[Conductor, ...] = ()
+    rods: tuple[Rod, ...] = ()
+    key: str = ""
+    line: int | None = None
+
+
+@dataclass(frozen=True)
+class TouchArea:
+    """Where a person can touch the main system's metal: an explicit area, or everything within
+    ``reach`` (m) of named metal together with the meshes that metal forms.
+
+    Attributes
+    ----------
+    area : Area or None
+        Explicit area.
+    reach : float or None
+        Reach around the metal, m (when ``area`` is None).
+    metal : tuple of str
+        Key-path prefixes of the metal (e.g. ``electrodes.conductors[2]``, ``separate_electrodes[0]``);
+        empty means all metal of the main system.
+    """
+
+    area: Area | None = None
+    reach: float | None = None
+    metal: tuple[str, ...] = ()
+
+
 @dataclass(frozen=True)
 class Discretization:
     """Segmentation control: longest segment, m."""
@@ -184,21 +284,25 @@ class SurfaceMap:
         Map point spacing, m.
     touch_reach : float
         A person can touch grounded metal from the grid meshes and from up to this distance
-        outside any conductor, m (the default touch area).
-    touch_area : tuple of (x, y) or None
-        Explicit touch-area polygon, m; replaces the default when given.
+        outside any conductor, m (the default touch area; also the reach around separate electrodes).
+    touch_areas : tuple of TouchArea
+        Where touch voltages of the main system count; empty means the default (meshes of the
+        ``electrodes`` grids and conductors plus ``touch_reach`` around all main-system metal).
     step_distance : float
         Step length, m.
     profile : ((x, y), (x, y)) or None
         Line along which the potential profile is reported, m; None means the map's diagonal.
+    contours : tuple of float
+        Surface-potential levels (V) whose contour lines are drawn and written out.
     """
 
     margin: float = 3.0
     resolution: float = 0.5
     touch_reach: float = 1.0
-    touch_area: tuple[Point2, ...] | None = None
+    touch_areas: tuple[TouchArea, ...] = ()
     step_distance: float = 1.0
     profile: tuple[Point2, Point2] | None = None
+    contours: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -236,6 +340,8 @@ class Case:
     electrodes: Electrodes
     criteria: Criteria = field(default_factory=Criteria)
     surface_layer: SurfaceLayer | None = None
+    surface_zones: tuple[SurfaceZone, ...] = ()
+    separate_electrodes: tuple[SeparateElectrode, ...] = ()
     discretization: Discretization = field(default_factory=Discretization)
     surface: SurfaceMap = field(default_factory=SurfaceMap)
     probes: tuple[Point2, ...] = ()
@@ -245,3 +351,16 @@ class Case:
     site: str = ""
     source: str = ""
     sha256: str = ""
+
+    @property
+    def zones(self) -> tuple[SurfaceZone, ...]:
+        """Every surface zone a verdict is evaluated in, the native soil last.
+
+        Without ``surface_zones`` the whole map is one zone: the ``surface_layer`` (everywhere) or the
+        native soil. With zones, the native soil outside all of them is the zone named ``native``.
+        """
+        if not self.surface_zones:
+            if self.surface_layer is not None:
+                return (SurfaceZone("surface layer (whole map)", None, self.surface_layer, "surface_layer"),)
+            return (SurfaceZone(NATIVE_ZONE, None, None),)
+        return self.surface_zones + (SurfaceZone(NATIVE_ZONE, None, None),)

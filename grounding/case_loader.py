@@ -7,7 +7,6 @@ the key path, what is wrong and what would be right.
 from __future__ import annotations
 
 import copy
-import difflib
 import hashlib
 import itertools
 import math
@@ -16,32 +15,18 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-import yaml
 
-from .case import (
-    Case,
-    Conductor,
-    Costs,
-    Criteria,
-    Discretization,
-    Electrodes,
-    Fault,
-    Grid,
-    Layer,
-    Rod,
-    Soil,
-    SurfaceLayer,
-    SurfaceMap,
-)
+from .case import Case, Costs, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
+    TouchArea
+from .case_checks import Document, fmt
+from .case_electrodes import ElectrodeSections
+from .case_site import SiteSections
 from .errors import CaseError
-from .materials import MATERIALS
 from .textfile import read_user_text
 
 SUPPORTED_FORMATS = (1,)
 #: Most soil layers a case may give.
 MAX_LAYERS = 6
-#: A diameter at or above this (m) is taken for millimetres given as metres.
-MM_SUSPECT_DIAMETER = 0.25
 
 
 def load_case(path: str | Path) -> Case:
@@ -68,158 +53,30 @@ def load_case(path: str | Path) -> Case:
 
 def parse_case(text: str, file: str = "<case>", sha256: str = "") -> Case:
     """Validate case-file text (YAML) into a :class:`Case`; ``file`` is used in messages only."""
-    doc = _Document.parse(text, file)
+    doc = Document.parse(text, file)
     return _CaseReader(doc).read(sha256 or hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
-class _Document:
-    """Parsed YAML with the line of every key path."""
-
-    def __init__(self, file: str, data: Any, lines: dict[str, int]):
-        self.file = file
-        self.data = data
-        self.lines = lines
-
-    @classmethod
-    def parse(cls, text: str, file: str) -> "_Document":
-        try:
-            node = yaml.compose(text, Loader=yaml.SafeLoader)
-            data = yaml.safe_load(text)
-        except yaml.MarkedYAMLError as exc:
-            mark = exc.problem_mark or exc.context_mark
-            line = mark.line + 1 if mark else None
-            problem = exc.problem or "is not valid YAML"
-            raise CaseError(file, line, "", f"YAML syntax error: {problem}; check indentation, colons and brackets") from None
-        except yaml.YAMLError as exc:
-            raise CaseError(file, None, "", f"YAML error: {exc}") from None
-        lines: dict[str, int] = {}
-        if node is not None:
-            cls._index(node, "", lines)
-        return cls(file, data, lines)
-
-    @classmethod
-    def _index(cls, node: yaml.Node, path: str, lines: dict[str, int]) -> None:
-        lines.setdefault(path, node.start_mark.line + 1)
-        if isinstance(node, yaml.MappingNode):
-            for key_node, value_node in node.value:
-                child = f"{path}.{key_node.value}" if path else str(key_node.value)
-                lines[child] = key_node.start_mark.line + 1
-                cls._index(value_node, child, lines)
-                lines[child] = key_node.start_mark.line + 1
-        elif isinstance(node, yaml.SequenceNode):
-            for i, item in enumerate(node.value):
-                cls._index(item, f"{path}[{i}]", lines)
-
-    def line(self, path: str) -> int | None:
-        """Line of ``path``, or of its nearest ancestor that has one."""
-        while True:
-            if path in self.lines:
-                return self.lines[path]
-            if not path:
-                return None
-            cut = max(path.rfind("."), path.rfind("["))
-            path = path[:cut] if cut > 0 else ""
-
-    def fail(self, path: str, problem: str) -> CaseError:
-        return CaseError(self.file, self.line(path), path, problem)
-
-
-def _fmt(value: Any) -> str:
-    if isinstance(value, float):
-        return f"{value:g}"
-    return repr(value) if isinstance(value, str) else str(value)
-
-
-class _CaseReader:
+class _CaseReader(ElectrodeSections, SiteSections):
     """Walks the document section by section; validation happens here once, then data is trusted."""
 
-    def __init__(self, doc: _Document, fits: dict | None = None):
-        self.doc = doc
+    def __init__(self, doc: Document, fits: dict | None = None):
+        super().__init__(doc)
         # soil fits by (readings file, array, layers, traverse): the options of one sweep share them
         self.fits = {} if fits is None else fits
-
-    # ---- generic checks -------------------------------------------------------------------
-    def mapping(self, path: str, value: Any, allowed: tuple[str, ...], required: tuple[str, ...] = ()) -> dict:
-        if not isinstance(value, dict):
-            what = "a mapping of keys" if path else "a YAML mapping (key: value lines)"
-            raise self.doc.fail(path, f"must be {what}, got {type(value).__name__}")
-        for key in value:
-            if key not in allowed:
-                key_path = f"{path}.{key}" if path else str(key)
-                near = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.5)
-                hint = f"did you mean '{near[0]}'?" if near else f"known keys: {', '.join(allowed)}"
-                raise self.doc.fail(key_path, f"is not a known key; {hint}")
-        for key in required:
-            if key not in value:
-                where = f"{path}.{key}" if path else key
-                raise CaseError(self.doc.file, self.doc.line(path) if path else None, where,
-                                "is missing; it is required")
-        return value
-
-    def number(self, path: str, value: Any, unit: str, *, gt: float | None = None, ge: float | None = None,
-               lt: float | None = None, le: float | None = None) -> float:
-        u = f" {unit}" if unit else ""
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise self.doc.fail(path, f"must be a number{(' in' + u) if unit else ''}, got {_fmt(value)}")
-        x = float(value)
-        if not math.isfinite(x):
-            raise self.doc.fail(path, f"must be a finite number, got {_fmt(value)}")
-        if gt is not None and not x > gt:
-            raise self.doc.fail(path, f"must be > {gt:g}{u}, got {_fmt(value)}")
-        if ge is not None and not x >= ge:
-            raise self.doc.fail(path, f"must be >= {ge:g}{u}, got {_fmt(value)}")
-        if lt is not None and not x < lt:
-            raise self.doc.fail(path, f"must be < {lt:g}{u}, got {_fmt(value)}")
-        if le is not None and not x <= le:
-            raise self.doc.fail(path, f"must be <= {le:g}{u}, got {_fmt(value)}")
-        return x
-
-    def integer(self, path: str, value: Any, *, ge: int = 1) -> int:
-        if isinstance(value, bool) or not isinstance(value, int):
-            if isinstance(value, float) and value.is_integer():
-                value = int(value)
-            else:
-                raise self.doc.fail(path, f"must be a whole number, got {_fmt(value)}")
-        if value < ge:
-            raise self.doc.fail(path, f"must be >= {ge}, got {value}")
-        return int(value)
-
-    def vector(self, path: str, value: Any, n: int, unit: str, what: str) -> tuple[float, ...]:
-        if not isinstance(value, (list, tuple)) or len(value) != n:
-            raise self.doc.fail(path, f"must be a list of {n} numbers ({what}) in {unit}, got {_fmt(value)}")
-        return tuple(self.number(f"{path}[{i}]", v, unit) for i, v in enumerate(value))
-
-    def sequence(self, path: str, value: Any) -> list:
-        if value is None:
-            return []
-        if not isinstance(value, list):
-            raise self.doc.fail(path, f"must be a list, got {type(value).__name__}")
-        return value
-
-    def diameter(self, path: str, value: Any) -> float:
-        d = self.number(path, value, "m", gt=0)
-        if d >= MM_SUSPECT_DIAMETER:
-            raise self.doc.fail(
-                path, f"= {d:g} m looks like millimetres given as metres; give metres, e.g. {d / 1000:g} for {d:g} mm")
-        return d
-
-    def depth(self, path: str, value: float) -> float:
-        if value <= 0:
-            raise self.doc.fail(path, f"depth must be > 0 m (below the ground surface; z is positive downward), "
-                                      f"got {value:g}; conductors above ground are not electrodes")
-        return value
 
     # ---- sections -------------------------------------------------------------------------
     def read(self, sha256: str) -> Case:
         data = self.doc.data
         if data is None:
             raise self.doc.fail("", "is empty; a case needs at least format, soil, fault and electrodes")
-        top = self.mapping("", data, ("format", "title", "site", "soil", "surface_layer", "fault", "criteria",
-                                       "electrodes", "discretization", "surface", "probes", "costs", "sweep"),
+        top = self.mapping("", data, ("format", "title", "site", "soil", "surface_layer", "surface_zones", "fault",
+                                       "criteria", "electrodes", "separate_electrodes", "discretization", "surface",
+                                       "probes", "costs", "sweep"),
                            ("format", "soil", "fault", "electrodes"))
         fmt = top["format"]
         if fmt not in SUPPORTED_FORMATS:
-            raise self.doc.fail("format", f"must be 1 (the only case-file format), got {_fmt(fmt)}")
+            raise self.doc.fail("format", f"must be 1 (the only case-file format), got {fmt(fmt)}")
         title = top.get("title", Path(self.doc.file).stem)
         if isinstance(title, (list, dict)) or title is None:
             raise self.doc.fail("title", "must be one line of text")
@@ -228,21 +85,30 @@ class _CaseReader:
         site = "" if site is None else str(site)
         soil, soil_fit = self.soil(top["soil"])
         surface_layer = self.surface_layer(top.get("surface_layer"))
+        zones = self.surface_zones(top.get("surface_zones"))
+        if zones and surface_layer is not None:
+            raise self.doc.fail("surface_layer", "cannot stand beside surface_zones: surface_layer covers the whole "
+                                                 "map; give the covering as a zone instead")
         fault = self.fault(top["fault"])
         criteria = self.criteria(top.get("criteria", {}))
         electrodes = self.electrodes(top["electrodes"], soil)
-        discretization = self.discretization(top.get("discretization", {}), electrodes)
-        surface = self.surface(top.get("surface", {}))
+        separate = self.separate_electrodes(top.get("separate_electrodes"), electrodes)
+        discretization = self.discretization(top.get("discretization", {}), electrodes, separate)
+        surface = self.surface(top.get("surface", {}), electrodes, separate)
         probes = tuple(self.vector(f"probes[{i}]", p, 2, "m", "x, y")
                        for i, p in enumerate(self.sequence("probes", top.get("probes"))))
         costs = self.costs(top.get("costs"))
         notes = list(soil_fit.readings.notes) if soil_fit else []
+        if surface_layer is not None:
+            notes.insert(0, f"the surface layer ({surface_layer.resistivity:g} Ω·m, {surface_layer.thickness * 1000:.0f} "
+                            "mm) is assumed to cover the whole map, also outside the fence; where people stand on "
+                            "native soil the limits are lower: describe the site with surface_zones")
         if "sweep" in top:
             sweep_settings(self.doc)                      # validated here; expanded by load_variants
             notes.append("the sweep block is not used by a single study (the case is studied as written); "
                          "run grounding sweep or grounding design for the options")
         return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
-                    surface_layer=surface_layer, discretization=discretization, surface=surface,
+                    surface_layer=surface_layer, surface_zones=zones, separate_electrodes=separate, discretization=discretization, surface=surface,
                     probes=probes, soil_fit=soil_fit, costs=costs, notes=tuple(notes), site=site,
                     source=self.doc.file, sha256=sha256)
 
@@ -297,11 +163,11 @@ class _CaseReader:
         full = Path(self.doc.file).parent / path
         array = m.get("array")
         if array is not None and array not in ("wenner", "schlumberger"):
-            raise self.doc.fail("soil.array", f"must be 'wenner' or 'schlumberger', got {_fmt(array)}")
+            raise self.doc.fail("soil.array", f"must be 'wenner' or 'schlumberger', got {fmt(array)}")
         count = m.get("layers", "auto")
         if count not in (1, 2, 3, "auto") or isinstance(count, bool):
             raise self.doc.fail("soil.layers", f"with soil.readings must be the layer count to fit: 1, 2, 3 or "
-                                               f"'auto', got {_fmt(count)}")
+                                               f"'auto', got {fmt(count)}")
         if not full.is_file():
             raise self.doc.fail("soil.readings", f"file '{full}' not found (the path is relative to the case file)")
         key = (str(full.resolve()), array, count, m.get("traverse"))
@@ -357,98 +223,33 @@ class _CaseReader:
         m = self.mapping("criteria", value or {}, ("body_weight",))
         w = m.get("body_weight", 70)
         if w not in (50, 70) or isinstance(w, bool):
-            raise self.doc.fail("criteria.body_weight", f"must be 50 or 70 (kg, IEEE Std 80), got {_fmt(w)}")
+            raise self.doc.fail("criteria.body_weight", f"must be 50 or 70 (kg, IEEE Std 80), got {fmt(w)}")
         return Criteria(int(w))
 
-    def electrodes(self, value: Any, soil: Soil) -> Electrodes:
-        m = self.mapping("electrodes", value, ("material", "grids", "conductors", "rods", "ambient_temperature",
-                                               "max_temperature"))
-        material = m.get("material", "copper-annealed")
-        if material not in MATERIALS:
-            near = difflib.get_close_matches(str(material), list(MATERIALS), n=1, cutoff=0.4)
-            hint = f"did you mean '{near[0]}'?" if near else f"choose one of {', '.join(MATERIALS)}"
-            raise self.doc.fail("electrodes.material", f"'{material}' is not in the material table; {hint}")
-        grids = tuple(self.grid(f"electrodes.grids[{i}]", g)
-                      for i, g in enumerate(self.sequence("electrodes.grids", m.get("grids"))))
-        conductors = tuple(self.conductor(f"electrodes.conductors[{i}]", c)
-                           for i, c in enumerate(self.sequence("electrodes.conductors", m.get("conductors"))))
-        rods = tuple(self.rod(f"electrodes.rods[{i}]", r)
-                     for i, r in enumerate(self.sequence("electrodes.rods", m.get("rods"))))
-        if not (grids or conductors or rods):
-            raise self.doc.fail("electrodes", "has no electrodes; give at least one of grids, conductors or rods")
-        ta = self.number("electrodes.ambient_temperature", m.get("ambient_temperature", 40.0), "°C", gt=-60, lt=80)
-        tm = m.get("max_temperature")
-        if tm is not None:
-            tm = self.number("electrodes.max_temperature", tm, "°C", gt=ta,
-                             le=MATERIALS[material].fusing_temperature)
-        return Electrodes(material=material, grids=grids, conductors=conductors, rods=rods,
-                          ambient_temperature=ta, max_temperature=tm)
-
-    def grid(self, p: str, value: Any) -> Grid:
-        m = self.mapping(p, value, ("origin", "size", "meshes", "depth", "diameter"),
-                         ("origin", "size", "meshes", "depth", "diameter"))
-        origin = self.vector(f"{p}.origin", m["origin"], 2, "m", "x, y")
-        size = self.vector(f"{p}.size", m["size"], 2, "m", "along x, along y")
-        for i in range(2):
-            if size[i] <= 0:
-                raise self.doc.fail(f"{p}.size[{i}]", f"must be > 0 m, got {size[i]:g}")
-        meshes = m["meshes"]
-        if not isinstance(meshes, list) or len(meshes) != 2:
-            raise self.doc.fail(f"{p}.meshes", f"must be a list of 2 whole numbers (along x, along y), got {_fmt(meshes)}")
-        meshes = tuple(self.integer(f"{p}.meshes[{i}]", v) for i, v in enumerate(meshes))
-        depth = self.depth(f"{p}.depth", self.number(f"{p}.depth", m["depth"], "m"))
-        d = self.diameter(f"{p}.diameter", m["diameter"])
-        return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p)
-
-    def conductor(self, p: str, value: Any) -> Conductor:
-        m = self.mapping(p, value, ("start", "end", "diameter"), ("start", "end", "diameter"))
-        a = self.vector(f"{p}.start", m["start"], 3, "m", "x, y, depth")
-        b = self.vector(f"{p}.end", m["end"], 3, "m", "x, y, depth")
-        self.depth(f"{p}.start[2]", a[2])
-        self.depth(f"{p}.end[2]", b[2])
-        if math.dist(a, b) <= 1e-6:
-            raise self.doc.fail(p, "has zero length (start = end); give two different points")
-        return Conductor(a, b, self.diameter(f"{p}.diameter", m["diameter"]), key=p)
-
-    def rod(self, p: str, value: Any) -> Rod:
-        m = self.mapping(p, value, ("top", "length", "diameter"), ("top", "length", "diameter"))
-        top = self.vector(f"{p}.top", m["top"], 3, "m", "x, y, depth")
-        if top[2] < 0:
-            raise self.doc.fail(f"{p}.top[2]", f"depth must be >= 0 m (z is positive downward), got {top[2]:g}")
-        length = self.number(f"{p}.length", m["length"], "m", gt=0)
-        return Rod(top, length, self.diameter(f"{p}.diameter", m["diameter"]), key=p)
-
-    def discretization(self, value: Any, electrodes: Electrodes) -> Discretization:
+    def discretization(self, value: Any, electrodes: Electrodes, separate=()) -> Discretization:
         m = self.mapping("discretization", value or {}, ("max_segment",))
         s = self.number("discretization.max_segment", m.get("max_segment", 1.0), "m", gt=0)
-        diameters = [g.diameter for g in electrodes.grids] + [c.diameter for c in electrodes.conductors] + \
-                    [r.diameter for r in electrodes.rods]
+        diameters = [x.diameter for e in (electrodes, *separate) for x in e.grids + e.conductors + e.rods]
         if s < 4 * max(diameters):
             raise self.doc.fail("discretization.max_segment", f"= {s:g} m is shorter than 4 conductor diameters "
                                 f"({4 * max(diameters):g} m); the thin-wire kernel needs longer segments")
         return Discretization(s)
 
-    def surface(self, value: Any) -> SurfaceMap:
+    def surface(self, value: Any, electrodes: Electrodes, separate=()) -> SurfaceMap:
         p = "surface"
-        m = self.mapping(p, value or {}, ("margin", "resolution", "touch_reach", "touch_area", "step_distance",
-                                          "profile"))
+        m = self.mapping(p, value or {}, ("margin", "resolution", "touch_reach", "touch_area", "touch_areas",
+                                          "step_distance", "profile", "contours"))
         margin = self.number(f"{p}.margin", m.get("margin", 3.0), "m", ge=0)
         res = self.number(f"{p}.resolution", m.get("resolution", 0.5), "m", gt=0)
         reach = self.number(f"{p}.touch_reach", m.get("touch_reach", 1.0), "m", ge=0)
         step = self.number(f"{p}.step_distance", m.get("step_distance", 1.0), "m", gt=0)
-        area = m.get("touch_area")
-        if area is not None:
-            pts = self.sequence(f"{p}.touch_area", area)
-            if len(pts) < 3:
-                raise self.doc.fail(f"{p}.touch_area", "must be a polygon of at least 3 [x, y] corners in m")
-            area = tuple(self.vector(f"{p}.touch_area[{i}]", q, 2, "m", "x, y") for i, q in enumerate(pts))
-            from shapely.geometry import Polygon
-            from shapely.validation import explain_validity
-
-            poly = Polygon(area)
-            if not poly.is_valid or poly.area <= 0:
-                raise self.doc.fail(f"{p}.touch_area", f"is not a simple polygon ({explain_validity(poly)}); "
-                                                      "list the corners in order around the area without crossings")
+        if "touch_area" in m and "touch_areas" in m:
+            raise self.doc.fail(f"{p}.touch_area", "cannot stand beside touch_areas; list the polygon there")
+        areas: tuple[TouchArea, ...] = ()
+        if m.get("touch_area") is not None:                 # one polygon: the original form of the key
+            areas = (TouchArea(area=self.area(p, m, "touch_area")),)
+        elif "touch_areas" in m:
+            areas = self.touch_areas(f"{p}.touch_areas", m["touch_areas"], electrodes, separate)
         profile = m.get("profile")
         if profile is not None:
             if not isinstance(profile, list) or len(profile) != 2:
@@ -456,8 +257,9 @@ class _CaseReader:
             profile = tuple(self.vector(f"{p}.profile[{i}]", q, 2, "m", "x, y") for i, q in enumerate(profile))
             if math.dist(*profile) < 1e-6:
                 raise self.doc.fail(f"{p}.profile", "has zero length; give two different points")
-        return SurfaceMap(margin=margin, resolution=res, touch_reach=reach, touch_area=area, step_distance=step,
-                          profile=profile)
+        contours = self.contours(f"{p}.contours", m.get("contours"))
+        return SurfaceMap(margin=margin, resolution=res, touch_reach=reach, touch_areas=areas, step_distance=step,
+                          profile=profile, contours=contours)
 
 
 # ---- sweeps ---------------------------------------------------------------------------------------
@@ -487,7 +289,7 @@ class Variant:
     data: dict
 
 
-def sweep_settings(doc: "_Document") -> list[tuple[str, list[tuple[str, Any]]]]:
+def sweep_settings(doc: "Document") -> list[tuple[str, list[tuple[str, Any]]]]:
     """The sweep block as (name, [(label, value), ...]) in file order, validated."""
     data = doc.data.get("sweep")
     if not isinstance(data, dict) or not data:
@@ -511,7 +313,7 @@ def sweep_settings(doc: "_Document") -> list[tuple[str, list[tuple[str, Any]]]]:
             if "step" in values:
                 step = values["step"]
                 if not isinstance(step, (int, float)) or step <= 0:
-                    raise doc.fail(f"{path}.step", f"must be > 0, got {_fmt(step)}")
+                    raise doc.fail(f"{path}.step", f"must be > 0, got {fmt(step)}")
                 n = int(math.floor((b - a) / step + 1e-9)) + 1
                 if n < 1:
                     raise doc.fail(path, "is empty: 'to' is below 'from'")
@@ -519,7 +321,7 @@ def sweep_settings(doc: "_Document") -> list[tuple[str, list[tuple[str, Any]]]]:
             else:
                 n = values["count"]
                 if not isinstance(n, int) or n < 1:
-                    raise doc.fail(f"{path}.count", f"must be a whole number >= 1, got {_fmt(n)}")
+                    raise doc.fail(f"{path}.count", f"must be a whole number >= 1, got {fmt(n)}")
                 vals = [a] if n == 1 else [round(a + (b - a) * i / (n - 1), 12) for i in range(n)]
         elif isinstance(values, list) and values:
             vals = values
@@ -528,15 +330,15 @@ def sweep_settings(doc: "_Document") -> list[tuple[str, list[tuple[str, Any]]]]:
         if name == "rods.layout":
             for v in vals:
                 if v not in ROD_LAYOUTS:
-                    raise doc.fail(path, f"values must be one of {', '.join(ROD_LAYOUTS)}, got {_fmt(v)}")
+                    raise doc.fail(path, f"values must be one of {', '.join(ROD_LAYOUTS)}, got {fmt(v)}")
         if name in ("grid.spacing", "grid.depth", "grid.diameter", "rods.length", "rods.diameter"):
             for v in vals:
                 if isinstance(v, bool) or not isinstance(v, (int, float)) or v <= 0:
-                    raise doc.fail(path, f"values must be numbers > 0 (m), got {_fmt(v)}")
+                    raise doc.fail(path, f"values must be numbers > 0 (m), got {fmt(v)}")
         if name == "rods.count":
             for v in vals:
                 if isinstance(v, bool) or not isinstance(v, int) or v < 0:
-                    raise doc.fail(path, f"values must be whole numbers >= 0, got {_fmt(v)}")
+                    raise doc.fail(path, f"values must be whole numbers >= 0, got {fmt(v)}")
         out.append((str(name), [(_label(v), v) for v in vals]))
     if math.prod(len(v) for _, v in out) > MAX_VARIANTS:
         raise doc.fail("sweep", f"gives {math.prod(len(v) for _, v in out)} combinations; at most {MAX_VARIANTS}")
@@ -665,7 +467,7 @@ def load_variants(path: str | Path) -> list[Variant]:
     """
     path = Path(path)
     text, sha = read_user_text(path, "a YAML case file")
-    doc = _Document.parse(text, str(path))
+    doc = Document.parse(text, str(path))
     fits: dict = {}
     base = _CaseReader(doc, fits).read(sha)           # validates the file itself, sweep block included
     if "sweep" not in doc.data:
@@ -684,7 +486,7 @@ def load_variants(path: str | Path) -> list[Variant]:
                 msg = str(exc) if isinstance(exc, ValueError) else f"cannot be applied ({exc})"
                 raise CaseError(str(path), doc.line(f"sweep.{n}"), f"sweep.{n}", msg.split(": ", 1)[-1]) from None
         try:
-            case = _CaseReader(_Document(str(path), data, doc.lines), fits).read(
+            case = _CaseReader(Document(str(path), data, doc.lines), fits).read(
                 hashlib.sha256((base.sha256 + label).encode()).hexdigest())
         except CaseError as exc:
             raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in sweep option {label})") from None

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .case import Case
-from .errors import ModelTooLargeError
+from .errors import CaseError, ModelTooLargeError
 
 #: Distance below which two points are the same node, m.
 NODE_TOLERANCE = 1e-6
@@ -34,6 +34,9 @@ class Conductors:
         Case-file key path(s) each conductor came from.
     is_rod : ndarray of bool, shape (M,)
         True for vertical rods.
+    group : ndarray of int, shape (M,)
+        Potential group: 0 for the energised system (``electrodes`` and bonded separate electrodes),
+        g ≥ 1 for ``case.separate_electrodes[g − 1]`` when it floats or is tied to remote earth.
     """
 
     start: np.ndarray
@@ -41,11 +44,19 @@ class Conductors:
     radius: np.ndarray
     keys: tuple[str, ...]
     is_rod: np.ndarray
+    group: np.ndarray = None
 
     @property
     def length(self) -> np.ndarray:
         """Conductor lengths, m."""
         return np.linalg.norm(self.end - self.start, axis=1)
+
+    def matching(self, prefixes) -> np.ndarray:
+        """Which conductors came (wholly or partly) from case-file key paths starting with one of
+        ``prefixes`` (e.g. ``separate_electrodes[0]``, ``electrodes.conductors[2]``); bool, shape (M,)."""
+        def hit(key: str) -> bool:
+            return any(part == p or part.startswith(p + ".") for part in key.split(" + ") for p in prefixes)
+        return np.array([hit(k) for k in self.keys], bool)
 
 
 @dataclass(frozen=True)
@@ -96,37 +107,46 @@ class Segments:
         """True for segments of vertical rods."""
         return self.conductors.is_rod[self.conductor]
 
+    @property
+    def group(self) -> np.ndarray:
+        """Potential group of each segment (see :class:`Conductors`)."""
+        return self.conductors.group[self.conductor]
 
-def electrode_lines(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str], np.ndarray]:
-    """All electrodes of a case as straight lines: (start, end, radius, key, is_rod)."""
-    starts, ends, radii, keys, rods = [], [], [], [], []
-    el = case.electrodes
-    for g in el.grids:
-        (ox, oy), (lx, ly), (nx, ny) = g.origin, g.size, g.meshes
-        for j in range(ny + 1):
-            y = oy + ly * j / ny
-            starts.append((ox, y, g.depth)); ends.append((ox + lx, y, g.depth))
-        for i in range(nx + 1):
-            x = ox + lx * i / nx
-            starts.append((x, oy, g.depth)); ends.append((x, oy + ly, g.depth))
-        n = nx + ny + 2
-        radii += [g.diameter / 2] * n; keys += [g.key] * n; rods += [False] * n
-    for c in el.conductors:
-        starts.append(c.start); ends.append(c.end); radii.append(c.diameter / 2); keys.append(c.key)
-        rods.append(False)
-    for r in el.rods:
-        starts.append(r.top); ends.append((r.top[0], r.top[1], r.top[2] + r.length))
-        radii.append(r.diameter / 2); keys.append(r.key); rods.append(True)
+
+def electrode_lines(case: Case) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str], np.ndarray, np.ndarray]:
+    """All electrodes of a case as straight lines: (start, end, radius, key, is_rod, group)."""
+    starts, ends, radii, keys, rods, groups = [], [], [], [], [], []
+    systems = [(case.electrodes, 0)] + [(e, 0 if e.connection == "bonded" else k)
+                                        for k, e in enumerate(case.separate_electrodes, start=1)]
+    for el, group in systems:
+        for g in el.grids:
+            (ox, oy), (lx, ly), (nx, ny) = g.origin, g.size, g.meshes
+            for j in range(ny + 1):
+                y = oy + ly * j / ny
+                starts.append((ox, y, g.depth)); ends.append((ox + lx, y, g.depth))
+            for i in range(nx + 1):
+                x = ox + lx * i / nx
+                starts.append((x, oy, g.depth)); ends.append((x, oy + ly, g.depth))
+            n = nx + ny + 2
+            radii += [g.diameter / 2] * n; keys += [g.key] * n; rods += [False] * n; groups += [group] * n
+        for c in el.conductors:
+            starts.append(c.start); ends.append(c.end); radii.append(c.diameter / 2); keys.append(c.key)
+            rods.append(False); groups.append(group)
+        for r in el.rods:
+            starts.append(r.top); ends.append((r.top[0], r.top[1], r.top[2] + r.length))
+            radii.append(r.diameter / 2); keys.append(r.key); rods.append(True); groups.append(group)
     return (np.array(starts, float), np.array(ends, float), np.array(radii, float), keys,
-            np.array(rods, bool))
+            np.array(rods, bool), np.array(groups, int))
 
 
-def merge_collinear(start, end, radius, keys, is_rod) -> tuple[Conductors, list[str]]:
-    """Merge conductors that lie on one line and overlap, so that no metal is counted twice.
+def merge_collinear(start, end, radius, keys, is_rod, group=None) -> tuple[Conductors, list[str]]:
+    """Merge conductors of one potential group that lie on one line and overlap, so that no metal is
+    counted twice.
 
     Returns the merged conductors and a warning per merge. The merged conductor takes the larger
     radius of the two.
     """
+    group_in = np.zeros(len(start), int) if group is None else np.asarray(group, int)
     direction = end - start
     length = np.linalg.norm(direction, axis=1)
     u = direction / length[:, None]
@@ -138,10 +158,10 @@ def merge_collinear(start, end, radius, keys, is_rod) -> tuple[Conductors, list[
     t1 = np.einsum("ij,ij->i", end, u)
     foot = start - t0[:, None] * u
     lo, hi = np.minimum(t0, t1), np.maximum(t0, t1)
-    key = np.round(np.hstack([u, foot]) / 1e-6).astype(np.int64)
+    key = np.column_stack([np.round(np.hstack([u, foot]) / 1e-6).astype(np.int64), group_in])
     _, group = np.unique(key, axis=0, return_inverse=True)
     group = group.ravel()
-    out_s, out_e, out_r, out_k, out_rod, warnings = [], [], [], [], [], []
+    out_s, out_e, out_r, out_k, out_rod, out_g, warnings = [], [], [], [], [], [], []
     for g in np.unique(group):
         members = np.flatnonzero(group == g)
         members = members[np.argsort(lo[members], kind="stable")]
@@ -154,6 +174,7 @@ def merge_collinear(start, end, radius, keys, is_rod) -> tuple[Conductors, list[
             out_r.append(max(radius[i] for i in cur))
             ks = list(dict.fromkeys(keys[i] for i in cur))
             out_k.append(" + ".join(ks)); out_rod.append(bool(all(is_rod[i] for i in cur)))
+            out_g.append(int(group_in[m0]))
             if len(cur) > 1:
                 warnings.append(f"{' and '.join(ks)} overlap along a shared line ({b - a:.2f} m); "
                                 "merged into one conductor so no metal is counted twice")
@@ -170,7 +191,7 @@ def merge_collinear(start, end, radius, keys, is_rod) -> tuple[Conductors, list[
     s, e = np.array(out_s), np.array(out_e)
     swap = s[:, 2] > e[:, 2] + NODE_TOLERANCE
     s[swap], e[swap] = e[swap].copy(), s[swap].copy()
-    return Conductors(s, e, np.array(out_r), tuple(out_k), np.array(out_rod, bool)), warnings
+    return Conductors(s, e, np.array(out_r), tuple(out_k), np.array(out_rod, bool), np.array(out_g, int)), warnings
 
 
 def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
@@ -183,6 +204,8 @@ def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
         conductor touches or crosses it.
     touching : ndarray of bool, shape (M, M)
         Which conductors touch.
+    contact : ndarray, shape (M, M, 3)
+        Closest point on conductor i to conductor j, m (the contact point where they touch).
     """
     a, b = c.start, c.end
     d = b - a
@@ -218,13 +241,15 @@ def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
     on_i = np.linalg.norm(ends[None] - foot, axis=3) < 1e-4   # (M, M, 2)
     np.fill_diagonal(on_i[..., 0], False); np.fill_diagonal(on_i[..., 1], False)
     touching |= on_i.any(axis=2) | on_i.any(axis=2).T
+    # where each touching pair meets: (i, j) → point on i
+    contact = pi
     cuts = []
     for i in range(m):
         ci = [s[i, touching[i]]]
         ci.append(np.clip(proj[i][on_i[i]], 0, L[i]))
         ci.append(t[touching[:, i], i])
         cuts.append(np.concatenate(ci))
-    return cuts, touching
+    return cuts, touching, contact
 
 
 def close_parallel_pairs(c: Conductors) -> list[tuple[int, int, float]]:
@@ -255,6 +280,22 @@ def bonded_groups(touching: np.ndarray) -> np.ndarray:
     return labels
 
 
+def _refuse_contacts(case: Case, c: Conductors, touching: np.ndarray, contact: np.ndarray) -> None:
+    """Metal of different potential groups (main system, each floating or remote electrode) must not touch."""
+    cross = touching & (c.group[:, None] != c.group[None, :])
+    if not cross.any():
+        return
+    i, j = map(int, np.argwhere(cross)[0])
+    if c.group[i] == 0 or (c.group[j] != 0 and c.group[j] < c.group[i]):
+        i, j = j, i                                        # name the separate electrode
+    e = case.separate_electrodes[c.group[i] - 1]
+    other = "the main system" if c.group[j] == 0 else f"separate electrode '{case.separate_electrodes[c.group[j] - 1].name}'"
+    x, y, z = contact[i, j]
+    raise CaseError(case.source, e.line, e.key,
+                    f"'{e.name}' ({c.keys[i]}) touches {other} ({c.keys[j]}) at ({x:.2f}, {y:.2f}, {z:.2f}) m; "
+                    "metal that touches is one electrode: mark it bonded or move it")
+
+
 def segment(case: Case) -> Segments:
     """Discretise the case's electrodes into straight segments.
 
@@ -267,19 +308,24 @@ def segment(case: Case) -> Segments:
             f"{case.source}: the electrodes make {len(lines[0]):,} straight conductors (grid lines, conductors and "
             f"rods), more than {MAX_CONDUCTORS:,}; check the grids' meshes (a mesh count, not a spacing in mm?)")
     conductors, warnings = merge_collinear(*lines)
-    cuts, touching = junction_parameters(conductors)
+    cuts, touching, contact = junction_parameters(conductors)
+    _refuse_contacts(case, conductors, touching, contact)
     for i, j, gap in close_parallel_pairs(conductors)[:5]:
         warnings.append(f"{conductors.keys[i]} and {conductors.keys[j]} run side by side {gap * 1000:.1f} mm apart, "
                         "closer than their diameters: the thin-wire model treats them as two wires; merge them "
                         "into one conductor if they are one")
-    groups = bonded_groups(touching)
-    if len(np.unique(groups)) > 1:
-        sizes = np.bincount(groups)
-        loose = [conductors.keys[i] for i in range(len(groups)) if sizes[groups[i]] < sizes.max()]
-        loose = list(dict.fromkeys(loose))
-        warnings.append(f"{len(np.unique(groups))} electrode groups do not touch each other "
-                        f"({', '.join(loose[:4])}{' ...' if len(loose) > 4 else ''}); they are taken as "
-                        "bonded by above-ground leads into one equipotential system")
+    for g in np.unique(conductors.group):
+        members = np.flatnonzero(conductors.group == g)
+        groups = bonded_groups(touching[np.ix_(members, members)])
+        if len(np.unique(groups)) > 1:
+            sizes = np.bincount(groups)
+            loose = [conductors.keys[members[i]] for i in range(len(groups)) if sizes[groups[i]] < sizes.max()]
+            loose = list(dict.fromkeys(loose))
+            what = "electrode groups" if g == 0 else f"pieces of separate electrode " \
+                f"'{case.separate_electrodes[g - 1].name}'"
+            warnings.append(f"{len(np.unique(groups))} {what} do not touch each other "
+                            f"({', '.join(loose[:4])}{' ...' if len(loose) > 4 else ''}); they are taken as "
+                            "bonded by above-ground leads into one equipotential system")
     interfaces = np.array(case.soil.interface_depths)
     max_seg = case.discretization.max_segment
     a, b = conductors.start, conductors.end

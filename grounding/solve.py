@@ -1,4 +1,16 @@
-"""Solve R i = V for the segment leakage currents by Cholesky factorisation, and check the residual."""
+"""Solve R i = V for the segment leakage currents by Cholesky factorisation, and check the residual.
+
+The energised system is at 1 V. Separate electrodes tied to remote earth are at 0 V. Each floating
+electrode k adds an unknown potential u_k and the condition that its net leakage current is zero,
+which makes the bordered system
+
+    [ R    −B ] [ i ]   [ v0 ]
+    [ −Bᵀ   0 ] [ u ] = [ 0  ]
+
+with B (N × K) the membership of segments in floating electrodes. It is solved through its Schur
+complement with the one Cholesky factor of R: X = R⁻¹ [v0, B], S = Bᵀ R⁻¹ B (K × K, symmetric
+positive definite), S u = −Bᵀ R⁻¹ v0, i = R⁻¹ (v0 + B u).
+"""
 
 from __future__ import annotations
 
@@ -21,25 +33,36 @@ class Solution:
     resistance : float
         Grid resistance to remote earth Rg = 1 / Σ i, Ω.
     relative_residual : float
-        ‖R i − 1‖ / ‖1‖ of the solved system.
+        ‖R i − v‖ / √N of the solved system (v the segment potentials).
+    group_potential : ndarray, shape (G,)
+        Potential of each potential group per volt of GPR (group 0 the energised system, 1; remote 0).
+    group_current : ndarray, shape (G,)
+        Net leakage current of each group into the soil per volt of GPR, A/V (floating: 0).
     """
 
     currents_per_volt: np.ndarray
     resistance: float
     relative_residual: float
+    group_potential: np.ndarray = None
+    group_current: np.ndarray = None
 
     def currents(self, grid_current: float) -> np.ndarray:
         """Segment leakage currents, A, when the grid injects ``grid_current`` (A) into the soil."""
         return self.currents_per_volt * grid_current * self.resistance
 
 
-def solve_equipotential(R: np.ndarray) -> Solution:
-    """Leakage currents of an equipotential electrode system at 1 V.
+def solve_equipotential(R: np.ndarray, group: np.ndarray | None = None,
+                        connections: tuple[str, ...] = ("energised",)) -> Solution:
+    """Leakage currents of an equipotential electrode system at 1 V, with separate electrodes.
 
     Parameters
     ----------
     R : ndarray, shape (N, N)
         Symmetric positive-definite mutual-resistance matrix, Ω.
+    group : ndarray of int, shape (N,), optional
+        Potential group of each segment; 0 (the default for all) is the energised system.
+    connections : tuple of str
+        Per group: ``energised`` (group 0), ``floating`` or ``remote``.
 
     Raises
     ------
@@ -48,16 +71,55 @@ def solve_equipotential(R: np.ndarray) -> Solution:
         check fails.
     """
     n = R.shape[0]
-    ones = np.ones(n)
+    group = np.zeros(n, int) if group is None else np.asarray(group, int)
+    if len(connections) == 1:
+        return _solve_energised_only(R)
+    v0 = (group == 0).astype(float)
+    floating = [g for g, kind in enumerate(connections) if kind == "floating" and (group == g).any()]
+    B = np.zeros((n, len(floating)))
+    for k, g in enumerate(floating):
+        B[group == g, k] = 1.0
+    factor = _factor(R)
+    X = scipy.linalg.cho_solve(factor, np.column_stack([v0, B]), check_finite=False)
+    x0, XB = X[:, 0], X[:, 1:]
+    u = np.zeros(0)
+    if floating:
+        S = B.T @ XB
+        u = np.linalg.solve(0.5 * (S + S.T), -(B.T @ x0))
+    i = x0 + XB @ u
+    v = v0 + B @ u
+    residual = float(np.linalg.norm(R @ i - v) / np.sqrt(n))
+    net_floating = np.abs(B.T @ i).max() if floating else 0.0
+    if not np.isfinite(residual) or residual > 1e-6 or not net_floating <= 1e-9 * np.abs(i).sum():
+        raise GroundingError(f"the solve did not converge (relative residual {residual:.1e}, floating net current "
+                             f"{net_floating:.1e} A/V); check the electrodes for coincident or overlapping conductors")
+    potential = np.array([1.0 if kind == "energised" else 0.0 for kind in connections])
+    potential[floating] = u
+    current = np.bincount(group, i, minlength=len(connections))
+    main = current[0]
+    if not main > 0:
+        raise GroundingError("the energised system sends no current into the soil; check the electrodes")
+    return Solution(i, float(1.0 / main), residual, potential, current)
+
+
+def _factor(R: np.ndarray):
+    n = R.shape[0]
     try:
-        factor = scipy.linalg.cho_factor(R, lower=True, overwrite_a=False, check_finite=True)
+        return scipy.linalg.cho_factor(R, lower=True, overwrite_a=False, check_finite=True)
     except (np.linalg.LinAlgError, ValueError) as exc:
         raise GroundingError(
             f"the {n}×{n} mutual-resistance matrix is not positive definite ({exc}); this happens when "
             "two conductors coincide or nearly coincide; check the electrodes for duplicates") from None
+
+
+def _solve_energised_only(R: np.ndarray) -> Solution:
+    """The plain equipotential system R i = 1."""
+    n = R.shape[0]
+    ones = np.ones(n)
+    factor = _factor(R)
     i = scipy.linalg.cho_solve(factor, ones, check_finite=False)
     residual = float(np.linalg.norm(R @ i - ones) / np.sqrt(n))
     if not np.isfinite(residual) or residual > 1e-6:
         raise GroundingError(f"the solve did not converge (relative residual {residual:.1e}); "
                              "check the electrodes for coincident or overlapping conductors")
-    return Solution(i, float(1.0 / i.sum()), residual)
+    return Solution(i, float(1.0 / i.sum()), residual, np.ones(1), np.array([i.sum()]))

@@ -21,11 +21,13 @@ from .errors import ModelTooLargeError
 from .geometry import Segments, segment
 from .materials import MATERIALS
 from .safety.conductor import ConductorCheck, check_conductor
-from .safety.ieee80 import Limits, decrement_factor, tolerable_limits
+from .case_site import shapely_polygon
+from .safety.ieee80 import Limits, decrement_factor
 from .safety.simplified import SimplifiedResult, simplified_method
+from .safety.site import Check, SeparateResult, ZoneVerdict, governing, separate_result, zone_limits
 from .soil import SoilKernel, make_kernel
 from .solve import Solution, solve_equipotential
-from .surface import SurfaceResult, map_axes, surface_fields
+from .surface import SeparateMetal, SurfaceResult, Zoning, contour_lines, map_axes, surface_fields
 
 Progress = Callable[[str, float], None]
 
@@ -78,6 +80,12 @@ class StudyResult:
     discretization_error: DiscretizationError
     timings: dict
     warnings: tuple[str, ...]
+    zones: tuple[ZoneVerdict, ...] = ()
+    touch_check: Check | None = None
+    step_check: Check | None = None
+    mesh_check: Check | None = None
+    separate: tuple[SeparateResult, ...] = ()
+    contours: tuple[tuple[float, list], ...] = ()
     cautions: tuple[str, ...] = CAUTIONS
 
     @property
@@ -86,35 +94,63 @@ class StudyResult:
         return self.solution.resistance
 
     @property
+    def worst_touch(self) -> float:
+        """Worst touch voltage of the governing zone, V (NaN when evaluated nowhere)."""
+        return self.touch_check.worst.value if self.touch_check.worst else float("nan")
+
+    @property
+    def worst_step(self) -> float:
+        """Worst step voltage of the governing zone, V (NaN when evaluated nowhere)."""
+        return self.step_check.worst.value if self.step_check.worst else float("nan")
+
+    @property
+    def separate_ok(self) -> bool:
+        """True when the touch voltage near every separate electrode is within its zone's limit."""
+        return all(e.touch.ok for e in self.separate)
+
+    @property
+    def passes(self) -> bool:
+        """True when touch, step, mesh (where meshes exist), separate-electrode touch and conductor size all pass."""
+        return bool(self.touch_ok and self.step_ok and self.mesh_ok is not False and self.separate_ok
+                    and self.conductor.ok)
+
+    @property
     def body_weight(self) -> int:
         """Body weight the verdicts use, kg."""
         return self.case.criteria.body_weight
 
     @property
     def tolerable_touch(self) -> float:
-        """Tolerable touch voltage for the case's body weight, V."""
-        return self.limits.touch[self.body_weight]
+        """Tolerable touch voltage in the governing touch zone for the case's body weight, V."""
+        return self.touch_check.limit
 
     @property
     def tolerable_step(self) -> float:
-        """Tolerable step voltage for the case's body weight, V."""
-        return self.limits.step[self.body_weight]
+        """Tolerable step voltage in the governing step zone for the case's body weight, V."""
+        return self.step_check.limit
 
     @property
     def touch_ok(self) -> bool:
-        """True when the worst touch voltage is within the tolerable limit."""
-        return self.surface.max_touch.value <= self.tolerable_touch
+        """True when the worst touch voltage of every zone is within that zone's limit."""
+        return bool(self.touch_check.ok)
 
     @property
     def step_ok(self) -> bool:
-        """True when the worst step voltage is within the tolerable limit."""
-        return self.surface.max_step.value <= self.tolerable_step
+        """True when the worst step voltage of every zone is within that zone's limit."""
+        return bool(self.step_check.ok)
 
     @property
     def mesh_ok(self) -> bool | None:
-        """True when the worst mesh voltage is within the tolerable touch limit; None without meshes."""
-        m = self.surface.max_mesh
-        return None if m is None else m.value <= self.tolerable_touch
+        """True when the worst mesh voltage of every zone is within its touch limit; None without meshes."""
+        return self.mesh_check.ok
+
+    def local_limits(self) -> tuple[np.ndarray, np.ndarray]:
+        """Tolerable touch and step voltage (V) at every map point, from the zone it lies in; shape of the map."""
+        X, Y = np.meshgrid(self.surface.x, self.surface.y)
+        labels = zoning(self.case).label(X, Y)
+        touch = np.array([z.tolerable_touch for z in self.zones])
+        step = np.array([z.tolerable_step for z in self.zones])
+        return touch[labels], step[labels]
 
     def probe_touch_voltages(self) -> np.ndarray:
         """GPR − surface potential at the probes, V."""
@@ -157,9 +193,32 @@ def _solve(case: Case, progress: Progress | None = None):
     t0 = time.perf_counter()
     R = assemble(segments, kernel, AssemblyOptions(), progress)
     t1 = time.perf_counter()
-    solution = solve_equipotential(R)
+    solution = solve_equipotential(R, segments.group, connections(case))
     t2 = time.perf_counter()
     return segments, kernel, solution, {"assemble_s": t1 - t0, "solve_s": t2 - t1}
+
+
+def connections(case: Case) -> tuple[str, ...]:
+    """Connection of each potential group: the energised system, then every separate electrode."""
+    return ("energised",) + tuple("energised" if e.connection == "bonded" else e.connection
+                                  for e in case.separate_electrodes)
+
+
+def zoning(case: Case) -> Zoning:
+    """The surface zones as the surface stage sees them: areas, and severity by Cs·ρs (lower is more severe;
+    the order of the IEEE Std 80 limits does not depend on body weight or shock duration)."""
+    limits = zone_limits(case.soil.top_resistivity, case.zones, 1.0)
+    return Zoning([None if z.area is None else shapely_polygon(z.area) for z in case.zones],
+                  [-lim.cs * lim.surface_resistivity for lim in limits])
+
+
+def separate_metal(case: Case, segments: Segments, solution: Solution) -> tuple[SeparateMetal, ...]:
+    """Each separate electrode's segments and potential per volt of GPR."""
+    out = []
+    for g, e in enumerate(case.separate_electrodes, start=1):
+        mask = segments.conductors.matching((e.key,))
+        out.append(SeparateMetal(mask, 1.0 if e.connection == "bonded" else float(solution.group_potential[g])))
+    return tuple(out)
 
 
 def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int) -> DiscretizationError:
@@ -203,7 +262,10 @@ def geometry_key(case: Case) -> str:
     """A key equal for cases whose :class:`UnitStudy` is the same (soil, electrode geometry,
     discretisation, surface map and probes); fault, criteria, surface layer and material do not enter."""
     el = case.electrodes
-    parts = (case.soil.layers, el.grids, el.conductors, el.rods, case.discretization, case.surface, case.probes)
+    parts = (case.soil.layers, el.grids, el.conductors, el.rods, case.discretization, case.surface, case.probes,
+             tuple(replace(z, key="") for z in case.surface_zones),
+             tuple((e.name, e.connection, _strip_keys(e.grids), _strip_keys(e.conductors), _strip_keys(e.rods))
+                   for e in case.separate_electrodes))
     return repr(tuple(_strip_keys(p) for p in parts))
 
 
@@ -219,7 +281,8 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
     segments, kernel, solution, timings = _solve(case, progress)
     t0 = time.perf_counter()
     surface = surface_fields(segments, solution.currents_per_volt, 1.0, kernel, case.surface, case.probes,
-                             progress=progress)
+                             progress=progress, zoning=zoning(case),
+                             metal=separate_metal(case, segments, solution))
     timings["surface_s"] = time.perf_counter() - t0
     if estimate_error:
         error = estimate_discretization_error(case, solution, len(segments))
@@ -256,7 +319,25 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
     gpr = ig * solution.resistance
     currents = solution.currents(ig)
     surface = unit.surface.scaled(gpr)
-    limits = tolerable_limits(case.soil.top_resistivity, case.surface_layer, fault.shock_duration)
+    limits = zone_limits(case.soil.top_resistivity, case.zones, fault.shock_duration)
+    weight = case.criteria.body_weight
+    zones = tuple(ZoneVerdict(z, lim, weight, ext) for z, lim, ext in zip(case.zones, limits, surface.zones))
+    touch, step, mesh = governing(zones, "touch"), governing(zones, "step"), governing(zones, "mesh", needed=False)
+    governing_limits = limits[[z.name for z in zones].index(touch.zone)]
+    separate = tuple(
+        separate_result(e.name, e.connection, gpr * (1.0 if e.connection == "bonded" else solution.group_potential[g]),
+                        gpr, _separate_current(e, g, segments, solution, ig), m.touch, m.surface_max, zones)
+        for g, (e, m) in enumerate(zip(case.separate_electrodes, surface.metal), start=1))
+    contours = tuple((level, contour_lines(surface.x, surface.y, surface.potential, [level])[0])
+                     for level in case.surface.contours)
+    warnings = list(case.notes + segments.warnings)
+    for z in zones:
+        if z.zone.area is not None and z.extremes.step is None:
+            warnings.append(f"surface zone '{z.name}' holds no point of the surface map; its step voltage was not "
+                            "evaluated: widen surface.margin or refine surface.resolution")
+    for level in case.surface.contours:
+        if level >= gpr:
+            warnings.append(f"surface.contours level {level:,.0f} V is at or above the GPR ({gpr:,.0f} V): no line")
     el = case.electrodes
     horizontal = [g.diameter for g in el.grids] + [c.diameter for c in el.conductors]
     conductor = check_conductor(df * fault.current, fault.clearing_time, MATERIALS[el.material],
@@ -264,6 +345,16 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
                                 min(horizontal) if horizontal else min(r.diameter for r in el.rods))
     return StudyResult(case=case, segments=segments, kernel=unit.kernel, solution=solution, decrement_factor=df,
                        grid_current=ig, ground_potential_rise=gpr, segment_currents=currents, surface=surface,
-                       limits=limits, simplified=simplified_method(case, ig), conductor=conductor,
+                       limits=governing_limits, simplified=simplified_method(case, ig), conductor=conductor,
                        discretization_error=unit.error, timings=dict(unit.timings),
-                       warnings=case.notes + segments.warnings)
+                       warnings=tuple(warnings), zones=zones, touch_check=touch, step_check=step, mesh_check=mesh,
+                       separate=separate, contours=contours)
+
+
+def _separate_current(e, g: int, segments: Segments, solution: Solution, grid_current: float) -> float:
+    """Net current a separate electrode sends into the soil, A, when the grid injects ``grid_current``."""
+    scale = grid_current * solution.resistance
+    if e.connection == "bonded":
+        mask = segments.conductors.matching((e.key,))[segments.conductor]
+        return float(solution.currents_per_volt[mask].sum() * scale)
+    return float(solution.group_current[g] * scale)

@@ -17,7 +17,7 @@ from scipy.interpolate import RectBivariateSpline
 from scipy.optimize import minimize
 from scipy.spatial import cKDTree
 from scipy.spatial.distance import cdist
-from shapely.geometry import LineString, MultiLineString, MultiPoint, Point, Polygon
+from shapely.geometry import LineString, MultiLineString, MultiPoint, Polygon
 from shapely.ops import polygonize, unary_union
 
 from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, near_term_sum
@@ -130,26 +130,52 @@ def _near_point_values(p, segments: Segments, kernel: SoilKernel, j) -> np.ndarr
     return exact / L + _gauss_point_values(kernel.remainder, p, a, b)
 
 
-def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geometry, shapely.Geometry]:
-    """The touch area and the grid meshes, as shapely geometries in the x–y plane (m).
+def _area_polygon(area) -> Polygon:
+    return Polygon(area.shell, [list(h) for h in area.holes])
 
-    The default touch area is the union of the closed meshes the horizontal conductors form and
-    everything within ``touch_reach`` of any conductor or rod; an explicit ``touch_area`` polygon
-    replaces it. The meshes are the faces of the noded horizontal-conductor network.
-    """
-    horizontal = ~segments.conductors.is_rod
+
+def metal_footprint(segments: Segments, mask: np.ndarray, reach: float) -> tuple[shapely.Geometry, shapely.Geometry]:
+    """Plan view of the conductors selected by ``mask``: (meshes they form, everything within ``reach``
+    of them), shapely geometries in the x–y plane (m)."""
     c = segments.conductors
+    horizontal = ~c.is_rod & mask
     lines = [LineString([tuple(c.start[k, :2]), tuple(c.end[k, :2])]) for k in np.flatnonzero(horizontal)
              if np.linalg.norm(c.start[k, :2] - c.end[k, :2]) > 1e-6]
     noded = unary_union(MultiLineString(lines)) if lines else None
     meshes = unary_union(list(polygonize(noded))) if noded is not None else Polygon()
-    if surface.touch_area is not None:
-        return Polygon(surface.touch_area), meshes
-    parts = [meshes]
+    parts = []
     if noded is not None:
-        parts.append(noded.buffer(surface.touch_reach))
-    if (~horizontal).any():
-        parts.append(MultiPoint([tuple(p) for p in c.start[~horizontal, :2]]).buffer(max(surface.touch_reach, 1e-3)))
+        parts.append(noded.buffer(reach))
+    rods = c.is_rod & mask
+    if rods.any():
+        parts.append(MultiPoint([tuple(p) for p in c.start[rods, :2]]).buffer(max(reach, 1e-3)))
+    return meshes, unary_union(parts) if parts else Polygon()
+
+
+def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geometry, shapely.Geometry]:
+    """The touch area of the main (energised) system and its grid meshes, as shapely geometries in the
+    x–y plane (m).
+
+    The default touch area is the union of the closed meshes the horizontal conductors of the
+    ``electrodes`` block form and everything within ``touch_reach`` of any conductor or rod of the main
+    system (bonded separate electrodes included). ``surface.touch_areas`` replaces it with explicit areas
+    and reaches around named metal (each with the meshes that metal forms). The meshes used for the
+    mesh voltage are always those of the ``electrodes`` block.
+    """
+    c = segments.conductors
+    main = c.group == 0
+    block = main & c.matching(("electrodes",))
+    meshes, _ = metal_footprint(segments, block, 0.0)
+    if not surface.touch_areas:
+        _, reach = metal_footprint(segments, main, surface.touch_reach)
+        return unary_union([meshes, reach]), meshes
+    parts = []
+    for t in surface.touch_areas:
+        if t.area is not None:
+            parts.append(_area_polygon(t.area))
+        else:
+            sel = main & (c.matching(t.metal) if t.metal else True)
+            parts.extend(metal_footprint(segments, sel, t.reach))
     return unary_union(parts), meshes
 
 
@@ -190,6 +216,11 @@ class SurfaceResult:
         Surface potential at the case's probe points, V.
     profile : Profile
         Surface potential along the profile line.
+    zones : tuple of ZoneExtremes
+        Worst touch, step and mesh voltages per zone (one zone: the whole map).
+    metal : tuple of MetalTouch
+        Per separate electrode: worst touch voltage per zone within reach of it, and the largest
+        surface potential along it.
     """
 
     x: np.ndarray
@@ -204,14 +235,59 @@ class SurfaceResult:
     max_mesh: Extreme | None
     probe_potential: np.ndarray
     profile: "Profile"
+    zones: tuple["ZoneExtremes", ...] = ()
+    metal: tuple["MetalTouch", ...] = ()
 
     def scaled(self, factor: float) -> "SurfaceResult":
         """Every voltage multiplied by ``factor`` (fields are linear in the GPR; locations are unchanged)."""
         p = self.profile
         return SurfaceResult(self.x, self.y, self.potential * factor, self.touch * factor, self.step * factor,
-                             self.touch_area, self.meshes, self.max_touch.scaled(factor),
-                             self.max_step.scaled(factor), self.max_mesh.scaled(factor) if self.max_mesh else None,
-                             self.probe_potential * factor, Profile(p.distance, p.x, p.y, p.potential * factor))
+                             self.touch_area, self.meshes, _scale(self.max_touch, factor),
+                             _scale(self.max_step, factor), _scale(self.max_mesh, factor),
+                             self.probe_potential * factor, Profile(p.distance, p.x, p.y, p.potential * factor),
+                             tuple(z.scaled(factor) for z in self.zones), tuple(m.scaled(factor) for m in self.metal))
+
+
+def _scale(ext: "Extreme | None", factor: float) -> "Extreme | None":
+    return None if ext is None else ext.scaled(factor)
+
+
+@dataclass(frozen=True)
+class ZoneExtremes:
+    """Worst voltages within one zone (V, at x, y in m); None where the zone holds no such place.
+
+    A step belongs to the zone of the foot with the more severe (lower) limit.
+    """
+
+    touch: Extreme | None
+    step: Extreme | None
+    mesh: Extreme | None
+
+    def scaled(self, factor: float) -> "ZoneExtremes":
+        """The same points with values multiplied by ``factor``."""
+        return ZoneExtremes(_scale(self.touch, factor), _scale(self.step, factor), _scale(self.mesh, factor))
+
+
+@dataclass(frozen=True)
+class MetalTouch:
+    """Touch voltages |V_metal − V_surface| within reach of one separate electrode, per zone (V), and
+    the largest surface potential directly above its metal (V, the transferred potential of metal tied
+    to remote earth)."""
+
+    touch: tuple[Extreme | None, ...]
+    surface_max: Extreme | None
+
+    def scaled(self, factor: float) -> "MetalTouch":
+        """The same points with values multiplied by ``factor``."""
+        return MetalTouch(tuple(_scale(t, factor) for t in self.touch), _scale(self.surface_max, factor))
+
+
+@dataclass(frozen=True)
+class SeparateMetal:
+    """What the surface stage needs of a separate electrode: the segments it owns and its potential (V)."""
+
+    mask: np.ndarray
+    potential: float
 
 
 @dataclass(frozen=True)
@@ -233,20 +309,71 @@ def map_axes(segments: Segments, surface: SurfaceMap) -> tuple[np.ndarray, np.nd
     pts = np.vstack([segments.start[:, :2], segments.end[:, :2]])
     lo = pts.min(axis=0) - surface.margin
     hi = pts.max(axis=0) + surface.margin
-    if surface.touch_area is not None:
-        ta = np.array(surface.touch_area)
-        lo, hi = np.minimum(lo, ta.min(axis=0)), np.maximum(hi, ta.max(axis=0))
+    for t in surface.touch_areas:
+        if t.area is not None:
+            ta = np.array(t.area.shell)
+            lo, hi = np.minimum(lo, ta.min(axis=0)), np.maximum(hi, ta.max(axis=0))
     n = np.maximum(2, np.ceil((hi - lo) / surface.resolution - 1e-9).astype(int) + 1)
     return (lo[0] + surface.resolution * np.arange(n[0]), lo[1] + surface.resolution * np.arange(n[1]))
 
 
-def _refine_minimum(f, x0, y0, half_width, region) -> tuple[float, float, float]:
-    """Local minimum of f(x, y) near (x0, y0) within a box and a region; returns (f, x, y)."""
+class Zoning:
+    """Which zone each surface point stands in.
+
+    Parameters
+    ----------
+    areas : sequence of shapely geometry or None
+        Zone areas in the x–y plane (m); None for the zone of everything no other zone covers (at most one).
+    severity : sequence of float
+        Larger is more severe (a lower limit). A point on a shared edge belongs to the more severe zone;
+        a step belongs to the zone of the foot with the more severe zone.
+    """
+
+    def __init__(self, areas=(None,), severity=(0.0,)):
+        self.areas = list(areas)
+        self.severity = np.asarray(severity, float)
+        self.rest = next((k for k, a in enumerate(self.areas) if a is None), -1)
+        # test the most severe zones first so that shared edges go to them
+        self.order = [k for k in np.argsort(-self.severity, kind="stable") if self.areas[k] is not None]
+        for k in self.order:
+            shapely.prepare(self.areas[k])
+
+    def __len__(self) -> int:
+        return len(self.areas)
+
+    def label(self, x, y) -> np.ndarray:
+        """Zone index of points (x, y), m; −1 for points in no zone."""
+        x, y = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float))
+        out = np.full(x.shape, self.rest, dtype=int)
+        if not self.order:
+            return out
+        done = np.zeros(x.shape, bool)
+        for k in self.order:
+            hit = ~done & shapely.intersects_xy(self.areas[k], x, y)
+            out[hit] = k
+            done |= hit
+        return out
+
+    def worse(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        """Per element, the more severe of zones a and b."""
+        sev = np.append(self.severity, -np.inf)           # −1 (no zone) is the least severe
+        return np.where(sev[b] > sev[a], b, a)
+
+    def part(self, geometry: shapely.Geometry, k: int) -> shapely.Geometry:
+        """The part of ``geometry`` in zone k (approximately, for choosing candidate points)."""
+        if self.areas[k] is not None:
+            return geometry.intersection(self.areas[k])
+        others = [a for a in self.areas if a is not None]
+        return geometry.difference(unary_union(others)) if others else geometry
+
+
+def _refine(f, x0, y0, half_width, accept) -> tuple[float, float, float]:
+    """Local minimum of f(x, y) near (x0, y0) within a box, kept only where ``accept(x, y)``; (f, x, y)."""
     best = (f(x0, y0), x0, y0)
     res = minimize(lambda v: f(v[0], v[1]), np.array([x0, y0]), method="Powell",
                    bounds=[(x0 - half_width, x0 + half_width), (y0 - half_width, y0 + half_width)],
                    options={"xtol": 1e-3, "ftol": 1e-9, "maxfev": 200})
-    if res.fun < best[0] and region.covers(Point(res.x[0], res.x[1])):
+    if res.fun < best[0] and accept(float(res.x[0]), float(res.x[1])):
         best = (float(res.fun), float(res.x[0]), float(res.x[1]))
     return best
 
@@ -254,8 +381,9 @@ def _refine_minimum(f, x0, y0, half_width, region) -> tuple[float, float, float]
 def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel: SoilKernel,
                    surface: SurfaceMap, probes: tuple[tuple[float, float], ...] = (),
                    options: AssemblyOptions = AssemblyOptions(),
-                   progress: Progress | None = None) -> SurfaceResult:
-    """Map the surface and find the worst touch, step and mesh voltages.
+                   progress: Progress | None = None, zoning: Zoning | None = None,
+                   metal: tuple[SeparateMetal, ...] = ()) -> SurfaceResult:
+    """Map the surface and find the worst touch, step and mesh voltages, zone by zone.
 
     Parameters
     ----------
@@ -271,31 +399,121 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
         Map extent, resolution, touch area and step length.
     probes : sequence of (x, y)
         Extra points of interest, m.
+    zoning : Zoning, optional
+        Surface zones; default one zone covering everything.
+    metal : sequence of SeparateMetal
+        Separate electrodes whose touch voltages |V_metal − V_surface| within ``surface.touch_reach``
+        are wanted.
     """
+    zoning = zoning or Zoning()
     x, y = map_axes(segments, surface)
     X, Y = np.meshgrid(x, y)
     pts = np.column_stack([X.ravel(), Y.ravel()])
     potential = SurfacePotential(segments, currents, kernel, options)
     V = potential(pts, progress).reshape(X.shape)
+    labels = zoning.label(X, Y)
 
     def exact(px, py):
         return float(potential(np.array([[px, py]]))[0])
 
     area, meshes = touch_region(segments, surface)
+    shapely.prepare(area)
     in_area = shapely.contains_xy(area, X, Y) | shapely.intersects_xy(area.boundary, X, Y)
     touch = np.where(in_area, gpr - V, np.nan)
-    max_touch = _worst_touch(touch, X, Y, exact, gpr, surface.resolution, area)
     in_mesh = shapely.contains_xy(meshes, X, Y) if not meshes.is_empty else np.zeros_like(in_area)
-    max_mesh = None
-    if in_mesh.any():
-        max_mesh = _worst_touch(np.where(in_mesh, gpr - V, np.nan), X, Y, exact, gpr, surface.resolution, meshes)
-    step, max_step = _step_voltages(x, y, V, surface.step_distance, potential)
+    grid = (X, Y, surface.resolution)
+
+    def worst_main(region, mask, k):
+        return _worst_place(lambda px, py: exact(px, py) - gpr, gpr - V, mask & (labels == k), grid, region, zoning, k)
+
+    zone_touch = [worst_main(area, in_area, k) for k in range(len(zoning))]
+    zone_mesh = [worst_main(meshes, in_mesh, k) if in_mesh.any() else None for k in range(len(zoning))]
+    step, zone_step = _step_voltages(x, y, V, surface.step_distance, potential, zoning, labels)
+    zones = tuple(ZoneExtremes(t, st, m) for t, st, m in zip(zone_touch, zone_step, zone_mesh))
+    max_touch = _largest(zone_touch)
+    if max_touch is None:                                  # no touch area at all: nothing to report
+        max_touch = Extreme(float("nan"), float(x[0]), float(y[0]))
+    metal_touch = tuple(_metal_touch(m, segments, surface, potential, exact, V, labels, grid, zoning) for m in metal)
     probe_v = potential(np.array(probes, float).reshape(-1, 2)) if probes else np.zeros(0)
     (x0, y0), (x1, y1) = surface.profile or ((x[0], y[0]), (x[-1], y[-1]))
     f = np.linspace(0.0, 1.0, PROFILE_POINTS)
     px, py = x0 + f * (x1 - x0), y0 + f * (y1 - y0)
     profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, potential(np.column_stack([px, py])))
-    return SurfaceResult(x, y, V, touch, step, area, meshes, max_touch, max_step, max_mesh, probe_v, profile)
+    return SurfaceResult(x, y, V, touch, step, area, meshes, max_touch, _largest(zone_step), _largest(zone_mesh),
+                         probe_v, profile, zones, metal_touch)
+
+
+def _largest(extremes) -> Extreme | None:
+    """The largest of some extremes (None entries skipped), ties broken by position."""
+    best = None
+    for e in extremes:
+        if e is not None and (best is None or _better(e.value, e.x, e.y, best)):
+            best = e
+    return best
+
+
+def _worst_place(minus_value, values, mask, grid, region, zoning: Zoning, k: int) -> Extreme | None:
+    """Largest value over the map points in ``mask`` (zone k of ``region``), refined by a local search on
+    the exact field ``-minus_value(x, y)``. A zone part of the region with area but no map point is
+    evaluated at points inside it, so that a criterion is never passed without evidence. None when
+    zone k holds no part of the region."""
+    X, Y, resolution = grid
+    part = zoning.part(region, k)
+    candidates_xy = []
+    if mask.any():
+        flat = np.where(mask, values, -np.inf).ravel()
+        for c in _top_candidates(flat, X, Y):
+            if np.isfinite(flat[c]):
+                candidates_xy.append((float(X.ravel()[c]), float(Y.ravel()[c])))
+    elif part.area > 1e-9:
+        polys = getattr(part, "geoms", [part])
+        candidates_xy = [p.representative_point().coords[0] for p in polys if p.area > 1e-9][:8]
+    if not candidates_xy:
+        return None
+
+    def accept(px, py):
+        return bool(shapely.intersects_xy(region, px, py)) and int(zoning.label(px, py)) == k
+
+    best = None
+    for cx, cy in candidates_xy:
+        v, px, py = _refine(minus_value, cx, cy, resolution, accept)
+        if best is None or _better(-v, px, py, best):
+            best = Extreme(-v, px, py)
+    return best
+
+
+def _metal_touch(m: SeparateMetal, segments: Segments, surface: SurfaceMap, potential, exact, V, labels, grid,
+                 zoning: Zoning) -> MetalTouch:
+    """Touch voltages within reach of one separate electrode, per zone, and the largest surface potential
+    above its metal."""
+    X, Y, resolution = grid
+    _, reach = metal_footprint(segments, m.mask, max(surface.touch_reach, 1e-3))
+    shapely.prepare(reach)
+    near = shapely.intersects_xy(reach, X, Y)
+    values = np.abs(m.potential - V)
+    touch = tuple(_worst_place(lambda px, py: -abs(m.potential - exact(px, py)), values, near & (labels == k), grid,
+                               reach, zoning, k) for k in range(len(zoning)))
+    # surface potential directly above the metal: its horizontal runs sampled at a tenth of the map spacing
+    c = segments.conductors
+    sel = np.flatnonzero(m.mask)
+    pts = [c.start[sel, :2], c.end[sel, :2]]
+    for k in sel:
+        n = int(np.ceil(np.linalg.norm(c.end[k, :2] - c.start[k, :2]) / (0.1 * resolution)))
+        if n > 1:
+            f = np.linspace(0.0, 1.0, n + 1)[1:-1, None]
+            pts.append(c.start[k, :2] + f * (c.end[k, :2] - c.start[k, :2]))
+    pts = np.vstack(pts)
+    vs = potential(pts)
+    top = int(np.lexsort((pts[:, 0], pts[:, 1], -np.round(vs / (np.abs(vs).max() * TIE + 1e-300))))[0])
+    return MetalTouch(touch, Extreme(float(vs[top]), float(pts[top, 0]), float(pts[top, 1])))
+
+
+def contour_lines(x: np.ndarray, y: np.ndarray, values: np.ndarray, levels) -> list[list[np.ndarray]]:
+    """Contour polylines of a map at the given levels: per level, a list of (n, 2) arrays of x, y in m."""
+    import contourpy
+
+    gen = contourpy.contour_generator(x, y, values, line_type=contourpy.LineType.Separate)
+    return [[np.asarray(line, float) for line in gen.lines(level)] for level in levels]
 
 
 #: Values closer than this (relative) are ties, broken by position, so that symmetric layouts report
@@ -320,40 +538,48 @@ def _better(value: float, x: float, y: float, best: Extreme) -> bool:
     return abs(value - best.value) <= scale and (round(y, 6), round(x, 6)) < (round(best.y, 6), round(best.x, 6))
 
 
-def _worst_touch(touch, X, Y, exact, gpr, resolution, region) -> Extreme:
-    """Largest touch voltage: the best map points, refined by a local search on the exact potential."""
-    flat = np.where(np.isnan(touch), -np.inf, touch).ravel()
-    candidates = _top_candidates(flat, X, Y)
-    best = Extreme(float(flat[candidates[0]]), float(X.ravel()[candidates[0]]), float(Y.ravel()[candidates[0]]))
-    for c in candidates:
-        if not np.isfinite(flat[c]):
-            continue
-        v, px, py = _refine_minimum(exact, float(X.ravel()[c]), float(Y.ravel()[c]), resolution, region)
-        if _better(gpr - v, px, py, best):
-            best = Extreme(gpr - v, px, py)
-    return best
-
-
-def _step_voltages(x, y, V, step_len, potential: SurfacePotential):
-    """Step-voltage map from a bicubic spline of the potential, and its maximum checked exactly."""
+def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray):
+    """Step-voltage map from a bicubic spline of the potential, and the worst step per zone checked
+    exactly. A step belongs to the zone of the foot with the more severe zone."""
     spline = RectBivariateSpline(x, y, V.T, kx=3, ky=3)
     X, Y = np.meshgrid(x, y)
     ang = np.pi * np.arange(STEP_DIRECTIONS) / STEP_DIRECTIONS          # half circle: |ΔV| is symmetric
     step = np.zeros_like(V)
+    nz = len(zoning)
+    per_zone = np.zeros((nz,) + V.shape)
     for t in ang:
-        px, py = X + step_len * np.cos(t), Y + step_len * np.sin(t)
-        inside = (px >= x[0]) & (px <= x[-1]) & (py >= y[0]) & (py <= y[-1])
-        dv = np.abs(spline.ev(np.clip(px, x[0], x[-1]), np.clip(py, y[0], y[-1])) - V)
-        step = np.maximum(step, np.where(inside, dv, 0.0))
-    # exact check around the best few map points: both ends of the step evaluated directly
-    best = Extreme(0.0, float(x[0]), float(y[0]))
+        for sign in ((1.0,) if nz == 1 else (1.0, -1.0)):          # with zones, each foot may lead
+            px, py = X + sign * step_len * np.cos(t), Y + sign * step_len * np.sin(t)
+            inside = (px >= x[0]) & (px <= x[-1]) & (py >= y[0]) & (py <= y[-1])
+            dv = np.where(inside, np.abs(spline.ev(np.clip(px, x[0], x[-1]), np.clip(py, y[0], y[-1])) - V), 0.0)
+            step = np.maximum(step, dv)
+            if nz == 1:
+                per_zone[0] = step
+                continue
+            owner = zoning.worse(labels, zoning.label(px, py))
+            for k in range(nz):
+                per_zone[k] = np.maximum(per_zone[k], np.where(owner == k, dv, 0.0))
+    # exact check around the best few map points of each zone: both ends of the step evaluated directly
     fine = np.pi * np.arange(64) / 64
-    for c in _top_candidates(step, X, Y):
-        px, py = X.ravel()[c], Y.ravel()[c]
-        ends = np.column_stack([np.r_[px, px + step_len * np.cos(fine), px - step_len * np.cos(fine)],
-                                np.r_[py, py + step_len * np.sin(fine), py - step_len * np.sin(fine)]])
-        v = potential(ends)
-        dv = float(np.abs(v[1:] - v[0]).max())
-        if _better(dv, float(px), float(py), best):
-            best = Extreme(dv, float(px), float(py))
-    return step, best
+    out = []
+    for k in range(nz):
+        if nz > 1 and not ((labels == k).any() or (per_zone[k] > 0).any()):
+            out.append(None)
+            continue
+        best = None
+        for c in _top_candidates(per_zone[k], X, Y):
+            px, py = X.ravel()[c], Y.ravel()[c]
+            ends = np.column_stack([np.r_[px, px + step_len * np.cos(fine), px - step_len * np.cos(fine)],
+                                    np.r_[py, py + step_len * np.sin(fine), py - step_len * np.sin(fine)]])
+            v = potential(ends)
+            dv = np.abs(v[1:] - v[0])
+            if nz > 1:
+                owner = zoning.worse(np.full(len(dv), labels.ravel()[c]), zoning.label(ends[1:, 0], ends[1:, 1]))
+                dv = np.where(owner == k, dv, -np.inf)
+                if not np.isfinite(dv).any():
+                    continue
+            value = float(dv.max())
+            if best is None or _better(value, float(px), float(py), best):
+                best = Extreme(value, float(px), float(py))
+        out.append(best)
+    return step, out

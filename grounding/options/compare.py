@@ -21,14 +21,14 @@ class Option:
     @property
     def touch_margin(self) -> float:
         """(tolerable − worst) / tolerable for touch voltage (negative: fails)."""
-        r = self.result
-        return (r.tolerable_touch - r.surface.max_touch.value) / r.tolerable_touch
+        m = self.result.touch_check.margin
+        return -1.0 if m is None else m
 
     @property
     def step_margin(self) -> float:
         """(tolerable − worst) / tolerable for step voltage."""
-        r = self.result
-        return (r.tolerable_step - r.surface.max_step.value) / r.tolerable_step
+        m = self.result.step_check.margin
+        return -1.0 if m is None else m
 
     @property
     def worst_margin(self) -> float:
@@ -37,9 +37,8 @@ class Option:
 
     @property
     def passes(self) -> bool:
-        """True when touch, step, mesh and conductor size all pass."""
-        r = self.result
-        return bool(r.touch_ok and r.step_ok and r.mesh_ok is not False and r.conductor.ok)
+        """True when touch, step, mesh, separate-electrode touch and conductor size all pass."""
+        return self.result.passes
 
 
 def make_options(labels, results) -> list[Option]:

@@ -33,13 +33,62 @@ class Rendered:
     shown_max: float | None = None
 
 
-def _overlay_electrodes(ax, r: StudyResult, color="white", lw=1.1):
+#: Line style of separate electrodes by connection (colour-blind-safe colours, distinct dashes).
+SEPARATE_STYLE = {"floating": dict(color="#e66101", ls=(0, (5, 2)), label="separate, floating"),
+                  "remote": dict(color="#5e3c99", ls=(0, (6, 2, 1, 2)), label="separate, tied to remote earth"),
+                  "bonded": dict(color="#1b7837", ls=(0, (1, 1.5)), label="separate, bonded")}
+#: Hatches of surface zones on the plan, in zone order.
+ZONE_HATCHES = ("..", "//", "\\\\", "xx", "oo", "--", "++", "||")
+
+
+def _separate_masks(r: StudyResult):
+    """(connection, conductor mask) of each separate electrode."""
     c = r.segments.conductors
-    for k in np.flatnonzero(~c.is_rod):
+    return [(e.connection, c.matching((e.key,))) for e in r.case.separate_electrodes]
+
+
+def _overlay_electrodes(ax, r: StudyResult, color="white", lw=1.1, legend=False):
+    c = r.segments.conductors
+    separate = _separate_masks(r)
+    own = np.zeros(len(c.keys), bool)
+    for _, mask in separate:
+        own |= mask
+    for k in np.flatnonzero(~c.is_rod & ~own):
         ax.plot([c.start[k, 0], c.end[k, 0]], [c.start[k, 1], c.end[k, 1]], color=color, lw=lw, solid_capstyle="butt")
-    rods = c.start[c.is_rod]
+    rods = c.start[c.is_rod & ~own]
     if len(rods):
         ax.plot(rods[:, 0], rods[:, 1], "o", ms=4.5, mfc=color, mec="black", mew=0.6, ls="none")
+    shown = set()
+    for kind, mask in separate:
+        style = SEPARATE_STYLE[kind]
+        for k in np.flatnonzero(~c.is_rod & mask):
+            ax.plot([c.start[k, 0], c.end[k, 0]], [c.start[k, 1], c.end[k, 1]], color=style["color"], ls=style["ls"],
+                    lw=lw + 0.4, label=style["label"] if legend and kind not in shown else None)
+            shown.add(kind)
+        pts = c.start[c.is_rod & mask]
+        if len(pts):
+            ax.plot(pts[:, 0], pts[:, 1], "s", ms=4, mfc=style["color"], mec="black", mew=0.5, ls="none")
+
+
+def _draw_zones(ax, r: StudyResult):
+    """Surface zones hatched on the plan, with their names and touch limits in the legend."""
+    from matplotlib.patches import PathPatch
+    from matplotlib.path import Path as MPath
+
+    for k, (z, v) in enumerate(zip(r.case.surface_zones, r.zones)):
+        rings = [z.area.shell] + list(z.area.holes)
+        verts, codes = [], []
+        for ring in rings:
+            verts += list(ring) + [ring[0]]
+            codes += [MPath.MOVETO] + [MPath.LINETO] * (len(ring) - 1) + [MPath.CLOSEPOLY]
+        patch = PathPatch(MPath(verts, codes), fc="none", ec="#7f7f7f", lw=0.8, hatch=ZONE_HATCHES[k % len(ZONE_HATCHES)],
+                          label=f"{z.name}: touch ≤ {v.tolerable_touch:,.0f} V, step ≤ {v.tolerable_step:,.0f} V",
+                          zorder=0)
+        ax.add_patch(patch)
+    if r.case.surface_zones:
+        native = r.zones[-1]
+        ax.plot([], [], color="none", label=f"outside: native soil, touch ≤ {native.tolerable_touch:,.0f} V, "
+                                           f"step ≤ {native.tolerable_step:,.0f} V")
 
 
 def _frame(ax, r: StudyResult):
@@ -65,9 +114,10 @@ def _mark(ax, ext, label, color="black"):
 def plan_figure(r: StudyResult) -> Rendered:
     """Plan of the electrodes to scale, with dimensions, rods, probes, north arrow and scale bar."""
     fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
-    _overlay_electrodes(ax, r, color="#1f3b73", lw=1.4)
+    _draw_zones(ax, r)
+    _overlay_electrodes(ax, r, color="#1f3b73", lw=1.4, legend=True)
     c = r.segments.conductors
-    pts = np.vstack([c.start[:, :2], c.end[:, :2]])
+    pts = np.vstack([c.start[:, :2], c.end[:, :2]] + [np.array(z.area.shell) for z in r.case.surface_zones])
     lo, hi = pts.min(axis=0), pts.max(axis=0)
     span = max(hi - lo)
     pad = 0.12 * span + 1.0
@@ -106,7 +156,8 @@ def plan_figure(r: StudyResult) -> Rendered:
     ax.plot([], [], "o", mfc="#1f3b73", mec="black", ms=4.5, label="rod")
     if r.case.probes:
         ax.plot([], [], "^", color="#b35806", label="probe")
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.11), ncol=3, fontsize=7, frameon=False)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.11), ncol=2 if r.case.surface_zones else 3, fontsize=7,
+              frameon=False)
     ax.set_title("Electrode plan (to scale)", fontsize=10)
     fig.tight_layout()
     return Rendered("plan", "Electrode plan", fig)
@@ -130,6 +181,13 @@ def potential_figure(r: StudyResult) -> Rendered:
     pct = np.arange(10, 100, 10)
     cs = ax.contour(s.x, s.y, s.potential / gpr * 100, levels=pct, colors="black", linewidths=0.5)
     ax.clabel(cs, fmt="%d %%", fontsize=6)
+    for level, lines in r.contours:
+        for line in lines:
+            ax.plot(line[:, 0], line[:, 1], color="#d7301f", lw=1.4, ls=(0, (4, 1.5)))
+        if lines:
+            ax.plot([], [], color="#d7301f", lw=1.4, ls=(0, (4, 1.5)), label=f"{level:,.0f} V")
+    if r.contours:
+        ax.legend(fontsize=7, loc="lower right", title="contours (V)", title_fontsize=7)
     _overlay_electrodes(ax, r)
     _frame(ax, r)
     cb = fig.colorbar(im, ax=ax, shrink=0.85)
@@ -143,42 +201,48 @@ def touch_figure(r: StudyResult) -> Rendered:
     """Touch voltage over the touch area, the tolerable-limit contour and the exceeding areas hatched."""
     s = r.surface
     limit = r.tolerable_touch
+    local, _ = r.local_limits()
     fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
     im = ax.contourf(s.x, s.y, s.touch, levels=20, cmap="cividis")
-    if np.nanmax(s.touch) > limit:
-        ax.contourf(s.x, s.y, np.where(np.isnan(s.touch), -np.inf, s.touch), levels=[limit, np.inf],
-                    colors="none", hatches=["////"])
-        ax.contour(s.x, s.y, np.nan_to_num(s.touch, nan=-1.0), levels=[limit], colors="#d7301f", linewidths=1.6)
+    excess = np.where(np.isnan(s.touch), -np.inf, s.touch - local)
+    if np.nanmax(excess) > 0:
+        ax.contourf(s.x, s.y, excess, levels=[0, np.inf], colors="none", hatches=["////"])
+        ax.contour(s.x, s.y, np.where(np.isnan(s.touch), -local, s.touch - local), levels=[0], colors="#d7301f",
+                   linewidths=1.6)
     _overlay_electrodes(ax, r)
     _frame(ax, r)
     cb = fig.colorbar(im, ax=ax, shrink=0.85)
     cb.set_label("touch voltage (V)")
-    cb.ax.axhline(limit, color="#d7301f", lw=2)
-    _mark(ax, s.max_touch, f"max {s.max_touch.value:,.0f} V")
+    for z in r.zones:
+        cb.ax.axhline(z.tolerable_touch, color="#d7301f", lw=2)
+    worst = r.touch_check.worst or s.max_touch
+    _mark(ax, worst, f"worst {worst.value:,.0f} V")
     verdict = "PASS" if r.touch_ok else "FAIL: hatched areas exceed"
-    ax.set_title(f"Touch voltage; tolerable {limit:,.0f} V ({r.body_weight} kg, red line); {verdict}",
-                 fontsize=9)
+    where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
+    ax.set_title(f"Touch voltage; {where} ({r.body_weight} kg, red line); {verdict}", fontsize=9)
     fig.tight_layout()
-    return Rendered("touch", "Touch voltage", fig, s.max_touch.value)
+    return Rendered("touch", "Touch voltage", fig, worst.value)
 
 
 def step_figure(r: StudyResult) -> Rendered:
     """Step-voltage map with its maximum."""
     s = r.surface
     limit = r.tolerable_step
+    _, local = r.local_limits()
     fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
     im = ax.contourf(s.x, s.y, s.step, levels=20, cmap="cividis")
-    if s.max_step.value > limit:
-        ax.contour(s.x, s.y, s.step, levels=[limit], colors="#d7301f", linewidths=1.6)
+    if np.max(s.step - local) > 0:
+        ax.contour(s.x, s.y, s.step - local, levels=[0], colors="#d7301f", linewidths=1.6)
     _overlay_electrodes(ax, r)
     _frame(ax, r)
     cb = fig.colorbar(im, ax=ax, shrink=0.85)
     cb.set_label(f"step voltage over {r.case.surface.step_distance:g} m (V)")
-    _mark(ax, s.max_step, f"max {s.max_step.value:,.0f} V")
-    ax.set_title(f"Step voltage; tolerable {limit:,.0f} V ({r.body_weight} kg); "
-                 f"{'PASS' if r.step_ok else 'FAIL'}", fontsize=9)
+    worst = r.step_check.worst or s.max_step
+    _mark(ax, worst, f"worst {worst.value:,.0f} V")
+    where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
+    ax.set_title(f"Step voltage; {where} ({r.body_weight} kg); {'PASS' if r.step_ok else 'FAIL'}", fontsize=9)
     fig.tight_layout()
-    return Rendered("step", "Step voltage", fig, s.max_step.value)
+    return Rendered("step", "Step voltage", fig, worst.value)
 
 
 def profile_figure(r: StudyResult) -> Rendered:

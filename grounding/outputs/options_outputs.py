@@ -39,11 +39,11 @@ def compare_table(options: list[Option], best: int | None, reason: str) -> str:
     rows = [
         ("Rg", [f"{o.result.grid_resistance:.4f} Ω" for o in options]),
         ("GPR", [_v(o.result.ground_potential_rise) for o in options]),
-        ("Worst touch", [_v(o.result.surface.max_touch.value) for o in options]),
+        ("Worst touch", [_v(o.result.worst_touch) for o in options]),
         ("  limit / margin", [f"{o.result.tolerable_touch:,.0f} V / {o.touch_margin * 100:+.0f}%" for o in options]),
-        ("Worst step", [_v(o.result.surface.max_step.value) for o in options]),
+        ("Worst step", [_v(o.result.worst_step) for o in options]),
         ("  limit / margin", [f"{o.result.tolerable_step:,.0f} V / {o.step_margin * 100:+.0f}%" for o in options]),
-        ("Worst mesh", [_v(o.result.surface.max_mesh.value) if o.result.surface.max_mesh else "—" for o in options]),
+        ("Worst mesh", [_v(o.result.mesh_check.worst.value) if o.result.mesh_check.worst else "—" for o in options]),
         ("Verdicts", [_verdicts(o) for o in options]),
         ("All pass", ["yes" if o.passes else "NO" for o in options]),
         ("Conductor", [f"{o.quantities.conductor_length_m:,.0f} m" for o in options]),
@@ -74,8 +74,8 @@ def sweep_table(options: list[Option]) -> str:
     out = [head, "-" * len(head)]
     for i, o in enumerate(options, start=1):
         out.append(f"{i:>4}  {'✓' if o.passes else '✗':<4} {o.result.grid_resistance:8.4f} "
-                   f"{o.result.surface.max_touch.value:9,.0f} {o.touch_margin * 100:+6.0f}% "
-                   f"{o.result.surface.max_step.value:8,.0f} {o.step_margin * 100:+6.0f}% "
+                   f"{o.result.worst_touch:9,.0f} {o.touch_margin * 100:+6.0f}% "
+                   f"{o.result.worst_step:8,.0f} {o.step_margin * 100:+6.0f}% "
                    f"{o.quantities.mass_kg:9,.0f} {_cost(o):>10}  {o.label}")
     n = sum(o.passes for o in options)
     out.append(f"{n} of {len(options)} options pass every criterion.")
@@ -116,9 +116,9 @@ def options_csv(options: list[Option]) -> bytes:
     for i, o in enumerate(options, start=1):
         r, q = o.result, o.quantities
         w.writerow([i, o.label, f"{r.grid_resistance:.6g}", f"{r.ground_potential_rise:.6g}",
-                    f"{r.surface.max_touch.value:.6g}", f"{r.tolerable_touch:.6g}", f"{o.touch_margin:.4f}",
-                    f"{r.surface.max_step.value:.6g}", f"{r.tolerable_step:.6g}", f"{o.step_margin:.4f}",
-                    f"{r.surface.max_mesh.value:.6g}" if r.surface.max_mesh else "", int(o.passes),
+                    f"{r.worst_touch:.6g}", f"{r.tolerable_touch:.6g}", f"{o.touch_margin:.4f}",
+                    f"{r.worst_step:.6g}", f"{r.tolerable_step:.6g}", f"{o.step_margin:.4f}",
+                    f"{r.mesh_check.worst.value:.6g}" if r.mesh_check.worst else "", int(o.passes),
                     f"{q.conductor_length_m:.2f}", q.rod_count, f"{q.rod_length_m:.2f}", f"{q.mass_kg:.2f}",
                     "" if q.cost is None else f"{q.cost:.2f}"])
     return buf.getvalue().encode("utf-8")
@@ -192,9 +192,9 @@ def comparison_report(options: list[Option], best: int | None, reason: str, date
     rows = [head,
             ["Rg", *[f"{o.result.grid_resistance:.3f} Ω" for o in options]],
             ["GPR", *[_v(o.result.ground_potential_rise) for o in options]],
-            ["Touch / limit", *[f"{_v(o.result.surface.max_touch.value)} / {o.result.tolerable_touch:,.0f}"
+            ["Touch / limit", *[f"{_v(o.result.worst_touch)} / {o.result.tolerable_touch:,.0f}"
                                 for o in options]],
-            ["Step / limit", *[f"{_v(o.result.surface.max_step.value)} / {o.result.tolerable_step:,.0f}"
+            ["Step / limit", *[f"{_v(o.result.worst_step)} / {o.result.tolerable_step:,.0f}"
                                for o in options]],
             ["All pass", *["PASS" if o.passes else "FAIL" for o in options]],
             ["Metal", *[f"{o.quantities.mass_kg:,.0f} kg" for o in options]],

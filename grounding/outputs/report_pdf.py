@@ -28,7 +28,7 @@ from ..cautions import CAUTIONS
 from ..study import StudyResult
 from ..validation import validation_checks
 from .figures import all_figures, png_bytes
-from .summary_text import soil_text
+from .summary_text import covering_text, soil_text
 
 INK = colors.HexColor("#1c2833")
 ACCENT = colors.HexColor("#1f3b73")
@@ -115,21 +115,62 @@ def _margin(value, limit):
 
 
 def _verdict_rows(r: StudyResult):
-    s = r.surface
-    rows = [["Criterion", "Worst computed", "Tolerable", "Margin", "Verdict", "Where (x, y) m"],
-            ["Touch voltage", _v(s.max_touch.value), _v(r.tolerable_touch), _margin(s.max_touch.value, r.tolerable_touch),
-             _verdict(r.touch_ok), f"({s.max_touch.x:.1f}, {s.max_touch.y:.1f})"],
-            ["Step voltage", _v(s.max_step.value), _v(r.tolerable_step), _margin(s.max_step.value, r.tolerable_step),
-             _verdict(r.step_ok), f"({s.max_step.x:.1f}, {s.max_step.y:.1f})"]]
-    if s.max_mesh is not None:
-        rows.append(["Mesh voltage", _v(s.max_mesh.value), _v(r.tolerable_touch),
-                     _margin(s.max_mesh.value, r.tolerable_touch), _verdict(r.mesh_ok),
-                     f"({s.max_mesh.x:.1f}, {s.max_mesh.y:.1f})"])
-    else:
-        rows.append(["Mesh voltage", "—", _v(r.tolerable_touch), "", "n/a", "no closed mesh"])
+    several = len(r.zones) > 1
+    rows = [["Criterion", "Worst computed", "Tolerable", "Margin", "Verdict",
+             "Where (x, y) m" + (" / zone" if several else "")]]
+    for name, check in (("Touch voltage", r.touch_check), ("Step voltage", r.step_check),
+                        ("Mesh voltage", r.mesh_check)):
+        if check.worst is None:
+            rows.append([name, "—", _v(check.limit), "", _verdict(check.ok),
+                         "no closed mesh" if check.ok is None else "not evaluated"])
+            continue
+        w = check.worst
+        rows.append([name, _v(w.value), _v(check.limit), _margin(w.value, check.limit), _verdict(check.ok),
+                     f"({w.x:.1f}, {w.y:.1f})" + (f" {check.zone}" if several else "")])
+    for e in r.separate:
+        t = e.touch
+        rows.append([f"Touch, {e.name}"[:28], _v(t.worst.value) if t.worst else "—", _v(t.limit),
+                     _margin(t.worst.value, t.limit) if t.worst else "", _verdict(t.ok),
+                     f"({t.worst.x:.1f}, {t.worst.y:.1f})" + (f" {t.zone}" if several else "") if t.worst else ""])
     c = r.conductor
     rows.append(["Conductor size", f"{c.actual_area_mm2:.1f} mm² fitted", f"{c.required_area_mm2:.1f} mm² needed",
                  _margin(c.required_area_mm2, c.actual_area_mm2) if c.actual_area_mm2 else "", _verdict(c.ok), ""])
+    return rows
+
+
+def _touch_area_text(surface) -> str:
+    if not surface.touch_areas:
+        return f"grid meshes plus {surface.touch_reach:g} m around every conductor and rod of the main system"
+    parts = []
+    for t in surface.touch_areas:
+        if t.area is not None:
+            parts.append(f"polygon of {len(t.area.shell)} corners" + (f" with {len(t.area.holes)} hole(s)"
+                                                                      if t.area.holes else ""))
+        else:
+            parts.append(f"{t.reach:g} m around " + (", ".join(t.metal) if t.metal else "all main-system metal"))
+    return "; ".join(parts)
+
+
+def _zone_rows(r: StudyResult):
+    rows = [["Zone", "Covering", "Cs", "Touch: worst / limit", "Step: worst / limit", "Mesh: worst", "Verdict"]]
+    for z in r.zones:
+        e = z.extremes
+        oks = [z.ok(k) for k in ("touch", "step", "mesh") if z.ok(k) is not None]
+        rows.append([z.name[:24], covering_text(z.zone), f"{z.limits.cs:.3f}",
+                     f"{_v(e.touch.value) if e.touch else '—'} / {_v(z.tolerable_touch)}",
+                     f"{_v(e.step.value) if e.step else '—'} / {_v(z.tolerable_step)}",
+                     _v(e.mesh.value) if e.mesh else "—", _verdict(all(oks)) if oks else "n/a"])
+    return rows
+
+
+def _separate_rows(r: StudyResult):
+    rows = [["Electrode", "Connection", "Potential", "Net current", "Worst touch / limit", "Transferred"]]
+    for e in r.separate:
+        t = e.touch
+        rows.append([e.name[:24], e.connection, f"{_v(e.potential)} ({e.potential_fraction * 100:.0f} % GPR)",
+                     f"{e.net_current / 1000:+.3f} kA",
+                     f"{_v(t.worst.value) if t.worst else '—'} / {_v(t.limit)} {_verdict(t.ok)}",
+                     _v(e.transferred_voltage) if e.transferred_voltage is not None else "—"])
     return rows
 
 
@@ -187,7 +228,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         ident.append(["Readings file", c.soil_fit.readings.source])
         ident.append(["Readings SHA-256", c.soil_fit.readings.sha256])
     story += [Spacer(1, 4 * mm), _table(ident, [35 * mm, 135 * mm], st, header=False), Spacer(1, 6 * mm)]
-    overall = all(x is not False for x in (r.touch_ok, r.step_ok, r.mesh_ok, r.conductor.ok))
+    overall = r.passes
     story.append(P(f"<b>Overall: {'all criteria PASS' if overall else 'at least one criterion FAILS'}</b> "
                    f"(IEEE Std 80, {r.body_weight} kg body, ts = {f.shock_duration:g} s)", "h2"))
     story += [_table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
@@ -227,10 +268,22 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         if down:
             story.append(P("Down-weighted readings: " + ", ".join(
                 f"line {fit.readings.rows[i]} (spacing {fit.readings.spacing[i]:g} m)" for i in down) + "."))
-    if c.surface_layer:
+    if c.surface_zones:
+        story.append(P(f"Surface zones: {len(c.surface_zones)} zone(s) with their own covering; native soil "
+                       f"(ρs = {c.soil.top_resistivity:g} Ω·m, Cs = 1) outside them. Cs = 1 − 0.09 (1 − ρ/ρs)/(2 hs + "
+                       "0.09) per zone; the coverings enter the limits only, not the solve."))
+        rows = [["Zone", "Covering", "Corners (x, y) m"]]
+        for z in c.surface_zones:
+            corners = ", ".join(f"({x:g}, {y:g})" for x, y in z.area.shell)
+            holes = f"; {len(z.area.holes)} hole(s)" if z.area.holes else ""
+            rows.append([z.name[:24], covering_text(z), Paragraph(corners + holes, st["small"])])
+        story.append(_table(rows, [35 * mm, 40 * mm, 95 * mm], st))
+    elif c.surface_layer:
         story.append(P(f"Surface layer: {c.surface_layer.resistivity:g} Ω·m, {c.surface_layer.thickness * 1000:.0f} mm; "
                        f"derating factor Cs = 1 − 0.09 (1 − ρ/ρs)/(2 hs + 0.09) = <b>{r.limits.cs:.3f}</b> "
-                       f"(ρ = {c.soil.top_resistivity:g} Ω·m). Used in the limits only, not in the solve."))
+                       f"(ρ = {c.soil.top_resistivity:g} Ω·m). Used in the limits only, not in the solve. "
+                       "<b>Assumed to cover the whole map, also outside the fence</b>: where people stand on native "
+                       "soil the limits are lower."))
     else:
         story.append(P(f"No surface layer: people stand on the top soil, ρs = {r.limits.surface_resistivity:g} Ω·m, Cs = 1."))
     story.append(P("1.2  Fault and grid current", "h2"))
@@ -254,8 +307,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                  ["Discretisation", f"{len(r.segments)} segments, at most {c.discretization.max_segment:g} m"],
                  ["Map", f"margin {c.surface.margin:g} m, spacing {c.surface.resolution:g} m, "
                          f"{len(s.x)} × {len(s.y)} points"],
-                 ["Touch area", "explicit polygon" if c.surface.touch_area else
-                  f"grid meshes plus {c.surface.touch_reach:g} m around every conductor and rod"],
+                 ["Touch area", _touch_area_text(c.surface)],
                  ["Step length", f"{c.surface.step_distance:g} m"]]
     story.append(_table(crit_rows, [45 * mm, 125 * mm], st))
     if r.warnings:
@@ -291,10 +343,21 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                       ["Solve residual", f"{r.solution.relative_residual:.1e}", "‖R i − 1‖ / √N after Cholesky"]],
                      [40 * mm, 30 * mm, 100 * mm], st),
               P("3.2  Touch, step and mesh voltages", "h2"),
-              _table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
-              P(f"Tolerable limits (Dalziel, IEEE Std 80): touch (1000 + 1.5 Cs ρs)·k/√ts, step (1000 + 6 Cs ρs)·k/√ts; "
+              _table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4)]
+    if len(r.zones) > 1:
+        story += [P("Per zone: each criterion is judged in every zone against the limit of people standing there; "
+                    "a step belongs to the zone of its foot with the lower limit.", "small"),
+                  _table(_zone_rows(r), [30 * mm, 34 * mm, 12 * mm, 32 * mm, 32 * mm, 18 * mm, 14 * mm], st,
+                         verdict_col=6)]
+    if r.separate:
+        story += [P("Separate electrodes: potential from the solve (floating: zero net current; remote: 0 V); touch "
+                    f"= |metal − surface potential| within {c.surface.touch_reach:g} m of the metal; transferred = the "
+                    "largest surface potential above metal tied to remote earth.", "small"),
+                  _table(_separate_rows(r), [30 * mm, 20 * mm, 38 * mm, 22 * mm, 38 * mm, 22 * mm], st)]
+    story += [P(f"Tolerable limits (Dalziel, IEEE Std 80): touch (1000 + 1.5 Cs ρs)·k/√ts, step (1000 + 6 Cs ρs)·k/√ts; "
                 f"50 kg: touch {_v(r.limits.touch[50])}, step {_v(r.limits.step[50])}; "
-                f"70 kg: touch {_v(r.limits.touch[70])}, step {_v(r.limits.step[70])}.")]
+                f"70 kg: touch {_v(r.limits.touch[70])}, step {_v(r.limits.step[70])}"
+                + (f" (governing zone {r.touch_check.zone})." if len(r.zones) > 1 else "."))]
     cc = r.conductor
     story += [P("3.3  Conductor sizing", "h2"),
               P(f"IEEE Std 80 equation for {el.material} with the standard's material constants: the current "

@@ -31,27 +31,74 @@ def _soil(c) -> dict:
     return out
 
 
+def _at(ext):
+    return None if ext is None else [_num(ext.x), _num(ext.y)]
+
+
+def _value(ext):
+    return None if ext is None else _num(ext.value)
+
+
+def _zones(r: StudyResult) -> list[dict]:
+    out = []
+    for z in r.zones:
+        e = z.extremes
+        layer = z.zone.layer
+        out.append({"name": z.name,
+                    "surface_layer": None if layer is None else {"resistivity_ohm_m": layer.resistivity,
+                                                                 "thickness_m": layer.thickness},
+                    "surface_layer_factor_cs": _num(z.limits.cs),
+                    "tolerable_touch_voltage_v": _num(z.tolerable_touch),
+                    "tolerable_step_voltage_v": _num(z.tolerable_step),
+                    "max_touch_voltage_v": _value(e.touch), "max_touch_at": _at(e.touch),
+                    "max_step_voltage_v": _value(e.step), "max_step_at": _at(e.step),
+                    "max_mesh_voltage_v": _value(e.mesh), "max_mesh_at": _at(e.mesh),
+                    "touch_ok": z.ok("touch"), "step_ok": z.ok("step"), "mesh_ok": z.ok("mesh")})
+    return out
+
+
+def _separate(r: StudyResult) -> list[dict]:
+    return [{"name": e.name, "connection": e.connection, "potential_v": _num(e.potential),
+             "potential_fraction_of_gpr": _num(e.potential_fraction), "net_current_a": _num(e.net_current),
+             "max_touch_voltage_v": _value(e.touch.worst), "max_touch_at": _at(e.touch.worst),
+             "tolerable_touch_voltage_v": _num(e.touch.limit), "touch_zone": e.touch.zone,
+             "touch_ok": bool(e.touch.ok),
+             "max_surface_potential_above_v": _value(e.surface_max), "max_surface_potential_at": _at(e.surface_max),
+             "transferred_voltage_v": _num(e.transferred_voltage)} for e in r.separate]
+
+
+def _contours(r: StudyResult) -> list[dict]:
+    return [{"level_v": _num(level), "lines": [[[_num(x, 7), _num(y, 7)] for x, y in line] for line in lines]}
+            for level, lines in r.contours]
+
+
 def results_dict(r: StudyResult) -> dict:
     """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named)."""
     s = r.surface
     c = r.case
+    t, st, me = r.touch_check, r.step_check, r.mesh_check
     summary = {
         "grid_resistance_ohm": _num(r.grid_resistance),
         "ground_potential_rise_v": _num(r.ground_potential_rise),
         "grid_current_a": _num(r.grid_current),
         "decrement_factor": _num(r.decrement_factor),
-        "max_touch_voltage_v": _num(s.max_touch.value),
-        "max_touch_at": [_num(s.max_touch.x), _num(s.max_touch.y)],
-        "max_step_voltage_v": _num(s.max_step.value),
-        "max_step_at": [_num(s.max_step.x), _num(s.max_step.y)],
-        "max_mesh_voltage_v": _num(s.max_mesh.value) if s.max_mesh else None,
-        "max_mesh_at": [_num(s.max_mesh.x), _num(s.max_mesh.y)] if s.max_mesh else None,
+        "max_touch_voltage_v": _value(t.worst),
+        "max_touch_at": _at(t.worst),
+        "max_step_voltage_v": _value(st.worst),
+        "max_step_at": _at(st.worst),
+        "max_mesh_voltage_v": _value(me.worst),
+        "max_mesh_at": _at(me.worst),
         "tolerable_touch_voltage_v": _num(r.tolerable_touch),
         "tolerable_step_voltage_v": _num(r.tolerable_step),
+        "tolerable_mesh_voltage_v": _num(me.limit),
+        "governing_zone": {"touch": t.zone, "step": st.zone, "mesh": me.zone if me.worst else None},
         "body_weight_kg": r.body_weight,
         "touch_ok": bool(r.touch_ok),
         "step_ok": bool(r.step_ok),
         "mesh_ok": r.mesh_ok,
+        "separate_electrodes_ok": bool(r.separate_ok),
+        "all_pass": bool(r.passes),
+        "zones": _zones(r),
         "segments": len(r.segments),
         "electrode_length_m": _num(r.segments.total_length),
     }
@@ -82,6 +129,8 @@ def results_dict(r: StudyResult) -> dict:
             "tolerable_step_voltage_v": {str(w): _num(v) for w, v in r.limits.step.items()},
         },
         "soil": _soil(c),
+        "separate_electrodes": _separate(r),
+        "contours": _contours(r),
         "probes": probes,
         "simplified": simplified,
         "simplified_note": None if simp.applicable else simp.reason,

@@ -49,6 +49,88 @@ def soil_text(case) -> str:
     return f"{len(layers)} layers: " + ", ".join(parts) + f", then {layers[-1].resistivity:.4g} Ω·m"
 
 
+def covering_text(zone) -> str:
+    """The covering of a zone in words."""
+    if zone.layer is None:
+        return "native soil"
+    return f"{zone.layer.resistivity:g} Ω·m × {zone.layer.thickness * 1000:.0f} mm"
+
+
+def _at(ext) -> str:
+    return f"({ext.x:.1f}, {ext.y:.1f})"
+
+
+def safety_lines(r: StudyResult) -> list[str]:
+    """Zones and their limits, the governing result per criterion, per-zone verdicts and separate electrodes."""
+    out = []
+    several = len(r.zones) > 1
+    if several:
+        out.append("  Zones (where people stand); each criterion is judged in every zone against that zone's limit:")
+        out.append(f"    {'zone':<22}{'covering':<22}{'Cs':>6}{'touch limit':>13}{'step limit':>12}")
+        for z in r.zones:
+            out.append(f"    {z.name[:21]:<22}{covering_text(z.zone)[:21]:<22}{z.limits.cs:>6.3f}"
+                       f"{_volts(z.tolerable_touch):>13}{_volts(z.tolerable_step):>12}")
+    else:
+        z = r.zones[0]
+        out.append(_row("Surface-layer factor Cs", f"{z.limits.cs:.3f}", f"ρs = {z.limits.surface_resistivity:g} Ω·m"))
+    if r.case.surface_layer is not None and not r.case.surface_zones:
+        out.append("  !! The surface layer is assumed to cover the WHOLE map, also outside the fence. Where people")
+        out.append("     stand on native soil the limits are much lower: describe the site with surface_zones.")
+    out.append(f"  {'':<18}{'worst':>10}{'tolerable':>12}{'margin':>9}  {'verdict':<8}at (x, y) m"
+               + ("  zone" if several else ""))
+
+    def line(name, check):
+        if check.worst is None:
+            why = "no closed mesh" if check.ok is None else "NOT EVALUATED (no map point)"
+            return f"  {name:<18}{'—':>10}{_volts(check.limit):>12}{'':>9}  {_verdict(check.ok):<8}{why}"
+        margin = check.margin * 100
+        return (f"  {name:<18}{_volts(check.worst.value):>10}{_volts(check.limit):>12}{margin:>8.0f}%  "
+                f"{_verdict(check.ok):<8}{_at(check.worst)}" + (f"  {check.zone}" if several else ""))
+
+    out.append(line("Touch voltage", r.touch_check))
+    out.append(line("Step voltage", r.step_check))
+    out.append(line("Mesh voltage", r.mesh_check))
+    if several:
+        out.append("  Per zone (worst in the zone / the zone's limit):")
+        for z in r.zones:
+            parts = []
+            for crit, limit in (("touch", z.tolerable_touch), ("step", z.tolerable_step), ("mesh", z.tolerable_touch)):
+                ext = getattr(z.extremes, crit)
+                parts.append(f"{crit} —" if ext is None else
+                             f"{crit} {_volts(ext.value)}/{_volts(limit)} {_verdict(z.ok(crit))}")
+            out.append(f"    {z.name[:21]:<22}" + ", ".join(parts))
+    else:
+        other = 50 if r.body_weight == 70 else 70
+        out.append(f"  Limits for {other} kg: touch {_volts(r.limits.touch[other])}, step {_volts(r.limits.step[other])}")
+    if r.separate:
+        out.append("  Separate electrodes (touch = |metal potential − surface potential| within "
+                   f"{r.case.surface.touch_reach:g} m):")
+        for e in r.separate:
+            t = e.touch
+            head = (f"    {e.name[:20]:<21}{e.connection:<9}{_volts(e.potential):>9} ({e.potential_fraction * 100:.0f} % GPR), "
+                    f"net {e.net_current / 1000:+.3f} kA")
+            out.append(head)
+            if t.worst is None:
+                out.append("      touch: nowhere within reach on the map")
+            else:
+                out.append(f"      touch {_volts(t.worst.value)} / {_volts(t.limit)} {_verdict(t.ok)} at {_at(t.worst)}"
+                           + (f" in {t.zone}" if several else ""))
+            if e.transferred_voltage is not None:
+                out.append(f"      transferred: up to {_volts(e.transferred_voltage)} between the metal (remote earth) "
+                           f"and the ground above it, at {_at(e.surface_max)}")
+    if not r.passes:
+        out.append("  !! At least one criterion FAILS: the layout is not safe as modelled.")
+    thin = [name for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check))
+            if check.margin is not None and abs(check.margin) < MARGINAL]
+    if thin:
+        out.append(f"  !! The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat the "
+                   "verdict as marginal (soil data, fault data and discretisation are all less certain than that).")
+    if r.contours:
+        out.append("  Potential contours: " + "; ".join(
+            f"{_volts(level)}: {len(lines)} line(s)" for level, lines in r.contours))
+    return out
+
+
 def study_summary(r: StudyResult) -> str:
     """The readable summary printed by ``grounding study``."""
     c, s, f = r.case, r.surface, r.case.fault
@@ -69,11 +151,16 @@ def study_summary(r: StudyResult) -> str:
         down = int(fit.best.down_weighted.sum())
         if down:
             out.append(_row("", f"{down} reading(s) down-weighted"))
-    if c.surface_layer:
+    if c.surface_zones:
+        out.append(_row("Surface zones", f"{len(c.surface_zones)} zone(s)", "native soil outside them"))
+    elif c.surface_layer:
         out.append(_row("Surface layer", f"{c.surface_layer.resistivity:g} Ω·m",
-                        f"{c.surface_layer.thickness * 1000:.0f} mm thick"))
+                        f"{c.surface_layer.thickness * 1000:.0f} mm thick, assumed over the WHOLE map"))
     else:
         out.append(_row("Surface layer", "none", "people stand on the top soil"))
+    if c.separate_electrodes:
+        out.append(_row("Separate electrodes", f"{len(c.separate_electrodes)}",
+                        ", ".join(f"{e.name} ({e.connection})" for e in c.separate_electrodes)))
     xr = "none (Df = 1)" if f.x_over_r is None else f"{f.x_over_r:g}"
     out.append(_row("Fault current 3I0", f"{f.current / 1000:.2f} kA",
                     f"Sf = {f.split_factor:g}, X/R = {xr}, {f.frequency:g} Hz"))
@@ -95,29 +182,7 @@ def study_summary(r: StudyResult) -> str:
     out.append(_row("Ground potential rise", _volts(r.ground_potential_rise), "GPR = IG · Rg"))
 
     out.append(_heading(f"Safety (IEEE Std 80, {r.body_weight} kg, ts = {f.shock_duration:g} s)"))
-    out.append(_row("Surface-layer factor Cs", f"{r.limits.cs:.3f}",
-                    f"ρs = {r.limits.surface_resistivity:g} Ω·m"))
-    out.append(f"  {'':<18}{'worst':>10}{'tolerable':>12}{'margin':>9}  {'verdict':<8}at (x, y) m")
-
-    def line(name, ext, limit, ok):
-        if ext is None:
-            return f"  {name:<18}{'—':>10}{_volts(limit):>12}{'':>9}  {'n/a':<8}no closed mesh"
-        margin = (limit - ext.value) / limit * 100
-        return (f"  {name:<18}{_volts(ext.value):>10}{_volts(limit):>12}{margin:>8.0f}%  {_verdict(ok):<8}"
-                f"({ext.x:.1f}, {ext.y:.1f})")
-
-    out.append(line("Touch voltage", s.max_touch, r.tolerable_touch, r.touch_ok))
-    out.append(line("Step voltage", s.max_step, r.tolerable_step, r.step_ok))
-    out.append(line("Mesh voltage", s.max_mesh, r.tolerable_touch, r.mesh_ok))
-    other = 50 if r.body_weight == 70 else 70
-    out.append(f"  Limits for {other} kg: touch {_volts(r.limits.touch[other])}, step {_volts(r.limits.step[other])}")
-    if not (r.touch_ok and r.step_ok):
-        out.append("  !! At least one criterion FAILS: the layout is not safe as modelled.")
-    thin = [name for name, ext, limit in (("touch", s.max_touch, r.tolerable_touch), ("step", s.max_step, r.tolerable_step))
-            if abs(limit - ext.value) / limit < MARGINAL]
-    if thin:
-        out.append(f"  !! The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat the "
-                   "verdict as marginal (soil data, fault data and discretisation are all less certain than that).")
+    out.extend(safety_lines(r))
 
     out.append(_heading("Simplified method (IEEE Std 80) beside the numerical result"))
     simp = r.simplified

@@ -1,0 +1,193 @@
+"""Reading a YAML case document: the parsed document with the line of every key path, and the
+generic checks (mappings, numbers, vectors, lists) every section of a case uses.
+
+Every problem is a :class:`grounding.errors.CaseError` naming the file, line, key path, what is wrong
+and what would be right.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+from typing import Any
+
+import yaml
+
+from .errors import CaseError
+
+#: A diameter at or above this (m) is taken for millimetres given as metres.
+MM_SUSPECT_DIAMETER = 0.25
+
+
+class _DuplicateKey(Exception):
+    def __init__(self, path: str, first: int, second: int):
+        super().__init__(path)
+        self.path, self.first, self.second = path, first, second
+
+
+class Document:
+    """Parsed YAML with the line of every key path."""
+
+    def __init__(self, file: str, data: Any, lines: dict[str, int]):
+        self.file = file
+        self.data = data
+        self.lines = lines
+
+    @classmethod
+    def parse(cls, text: str, file: str) -> "Document":
+        try:
+            node = yaml.compose(text, Loader=yaml.SafeLoader)
+            data = yaml.safe_load(text)
+        except RecursionError:
+            raise CaseError(file, None, "", "is nested too deeply to be a case file; check the brackets") from None
+        except yaml.MarkedYAMLError as exc:
+            mark = exc.problem_mark or exc.context_mark
+            line = mark.line + 1 if mark else None
+            problem = exc.problem or "is not valid YAML"
+            raise CaseError(file, line, "", f"YAML syntax error: {problem}; check indentation, colons and brackets") from None
+        except yaml.YAMLError as exc:
+            raise CaseError(file, None, "", f"YAML error: {exc}") from None
+        lines: dict[str, int] = {}
+        if node is not None:
+            try:
+                cls._index(node, "", lines)
+            except _DuplicateKey as dup:
+                raise CaseError(file, dup.second, dup.path, f"is given twice (lines {dup.first} and {dup.second}); "
+                                "keep one") from None
+            except RecursionError:
+                raise CaseError(file, None, "", "is nested too deeply to be a case file") from None
+        return cls(file, data, lines)
+
+    @classmethod
+    def _index(cls, node: yaml.Node, path: str, lines: dict[str, int]) -> None:
+        lines.setdefault(path, node.start_mark.line + 1)
+        if isinstance(node, yaml.MappingNode):
+            seen: dict[str, int] = {}
+            for key_node, value_node in node.value:
+                child = f"{path}.{key_node.value}" if path else str(key_node.value)
+                here = key_node.start_mark.line + 1
+                if str(key_node.value) in seen:
+                    raise _DuplicateKey(child, seen[str(key_node.value)], here)
+                seen[str(key_node.value)] = here
+                lines[child] = key_node.start_mark.line + 1
+                cls._index(value_node, child, lines)
+                lines[child] = key_node.start_mark.line + 1
+        elif isinstance(node, yaml.SequenceNode):
+            for i, item in enumerate(node.value):
+                cls._index(item, f"{path}[{i}]", lines)
+
+    def line(self, path: str) -> int | None:
+        """Line of ``path``, or of its nearest ancestor that has one."""
+        while True:
+            if path in self.lines:
+                return self.lines[path]
+            if not path:
+                return None
+            cut = max(path.rfind("."), path.rfind("["))
+            path = path[:cut] if cut > 0 else ""
+
+    def fail(self, path: str, problem: str) -> CaseError:
+        return CaseError(self.file, self.line(path), path, problem)
+
+
+def fmt(value: Any) -> str:
+    if isinstance(value, float):
+        return f"{value:g}"
+    return repr(value) if isinstance(value, str) else str(value)
+
+
+class Checks:
+    """Generic checks on values of a :class:`Document`; section readers build on it."""
+
+    def __init__(self, doc: Document):
+        self.doc = doc
+
+    # ---- generic checks -------------------------------------------------------------------
+    def mapping(self, path: str, value: Any, allowed: tuple[str, ...], required: tuple[str, ...] = ()) -> dict:
+        if not isinstance(value, dict):
+            what = "a mapping of keys" if path else "a YAML mapping (key: value lines)"
+            raise self.doc.fail(path, f"must be {what}, got {type(value).__name__}")
+        for key in value:
+            if key not in allowed:
+                key_path = f"{path}.{key}" if path else str(key)
+                near = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.5)
+                hint = f"did you mean '{near[0]}'?" if near else f"known keys: {', '.join(allowed)}"
+                raise self.doc.fail(key_path, f"is not a known key; {hint}")
+        for key in required:
+            if key not in value:
+                where = f"{path}.{key}" if path else key
+                raise CaseError(self.doc.file, self.doc.line(path) if path else None, where,
+                                "is missing; it is required")
+        return value
+
+    def number(self, path: str, value: Any, unit: str, *, gt: float | None = None, ge: float | None = None,
+               lt: float | None = None, le: float | None = None) -> float:
+        u = f" {unit}" if unit else ""
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise self.doc.fail(path, f"must be a number{(' in' + u) if unit else ''}, got {fmt(value)}")
+        x = float(value)
+        if not math.isfinite(x):
+            raise self.doc.fail(path, f"must be a finite number, got {fmt(value)}")
+        if gt is not None and not x > gt:
+            raise self.doc.fail(path, f"must be > {gt:g}{u}, got {fmt(value)}")
+        if ge is not None and not x >= ge:
+            raise self.doc.fail(path, f"must be >= {ge:g}{u}, got {fmt(value)}")
+        if lt is not None and not x < lt:
+            raise self.doc.fail(path, f"must be < {lt:g}{u}, got {fmt(value)}")
+        if le is not None and not x <= le:
+            raise self.doc.fail(path, f"must be <= {le:g}{u}, got {fmt(value)}")
+        return x
+
+    def integer(self, path: str, value: Any, *, ge: int = 1) -> int:
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                raise self.doc.fail(path, f"must be a whole number, got {fmt(value)}")
+        if value < ge:
+            raise self.doc.fail(path, f"must be >= {ge}, got {value}")
+        return int(value)
+
+    def vector(self, path: str, value: Any, n: int, unit: str, what: str) -> tuple[float, ...]:
+        if not isinstance(value, (list, tuple)) or len(value) != n:
+            raise self.doc.fail(path, f"must be a list of {n} numbers ({what}) in {unit}, got {fmt(value)}")
+        return tuple(self.number(f"{path}[{i}]", v, unit) for i, v in enumerate(value))
+
+    def sequence(self, path: str, value: Any) -> list:
+        if value is None:
+            return []
+        if not isinstance(value, list):
+            raise self.doc.fail(path, f"must be a list, got {type(value).__name__}")
+        return value
+
+    def diameter(self, path: str, value: Any) -> float:
+        d = self.number(path, value, "m", gt=0)
+        if d >= MM_SUSPECT_DIAMETER:
+            raise self.doc.fail(
+                path, f"= {d:g} m looks like millimetres given as metres; give metres, e.g. {d / 1000:g} for {d:g} mm")
+        return d
+
+    def depth(self, path: str, value: float) -> float:
+        if value <= 0:
+            raise self.doc.fail(path, f"depth must be > 0 m (below the ground surface; z is positive downward), "
+                                      f"got {value:g}; conductors above ground are not electrodes")
+        return value
+
+    def name(self, path: str, value: Any) -> str:
+        """A short name: one line of text."""
+        if not isinstance(value, (str, int, float)) or isinstance(value, bool) or not str(value).strip():
+            raise self.doc.fail(path, f"must be a name (one line of text), got {fmt(value)}")
+        text = str(value).strip()
+        if "\n" in text or len(text) > 80:
+            raise self.doc.fail(path, "must be one line of at most 80 characters")
+        return text
+
+    def ring(self, path: str, value: Any) -> tuple[tuple[float, float], ...]:
+        """A closed ring of at least 3 [x, y] corners in m (the first corner is not repeated)."""
+        pts = self.sequence(path, value)
+        if len(pts) < 3:
+            raise self.doc.fail(path, "must be a polygon of at least 3 [x, y] corners in m")
+        ring = tuple(self.vector(f"{path}[{i}]", q, 2, "m", "x, y") for i, q in enumerate(pts))
+        if len(ring) > 3 and math.dist(ring[0], ring[-1]) < 1e-9:
+            ring = ring[:-1]
+        return ring

@@ -1,0 +1,81 @@
+"""Case sections that describe buried metal: the ``electrodes`` block and its grids, conductors and rods."""
+
+from __future__ import annotations
+
+import difflib
+import math
+from typing import Any
+
+from .case import Conductor, Electrodes, Grid, Rod, Soil
+from .case_checks import Checks, fmt
+from .materials import MATERIALS
+
+
+class ElectrodeSections(Checks):
+    """Readers of the electrode sections of a case."""
+
+    def electrodes(self, value: Any, soil: Soil) -> Electrodes:
+        m = self.mapping("electrodes", value, ("material", "grids", "conductors", "rods", "ambient_temperature",
+                                               "max_temperature"))
+        material = m.get("material", "copper-annealed")
+        if material not in MATERIALS:
+            near = difflib.get_close_matches(str(material), list(MATERIALS), n=1, cutoff=0.4)
+            hint = f"did you mean '{near[0]}'?" if near else f"choose one of {', '.join(MATERIALS)}"
+            raise self.doc.fail("electrodes.material", f"'{material}' is not in the material table; {hint}")
+        grids, conductors, rods = self.metal("electrodes", m)
+        if not (grids or conductors or rods):
+            raise self.doc.fail("electrodes", "has no electrodes; give at least one of grids, conductors or rods")
+        ta = self.number("electrodes.ambient_temperature", m.get("ambient_temperature", 40.0), "°C", gt=-60, lt=80)
+        tm = m.get("max_temperature")
+        if tm is not None:
+            tm = self.number("electrodes.max_temperature", tm, "°C", gt=ta,
+                             le=MATERIALS[material].fusing_temperature)
+        return Electrodes(material=material, grids=grids, conductors=conductors, rods=rods,
+                          ambient_temperature=ta, max_temperature=tm)
+
+    def metal(self, path: str, m: dict) -> tuple[tuple[Grid, ...], tuple[Conductor, ...], tuple[Rod, ...]]:
+        """The grids, conductors and rods listed in mapping ``m`` at ``path``."""
+        grids = tuple(self.grid(f"{path}.grids[{i}]", g)
+                      for i, g in enumerate(self.sequence(f"{path}.grids", m.get("grids"))))
+        conductors = tuple(self.conductor(f"{path}.conductors[{i}]", c)
+                           for i, c in enumerate(self.sequence(f"{path}.conductors", m.get("conductors"))))
+        rods = tuple(self.rod(f"{path}.rods[{i}]", r)
+                     for i, r in enumerate(self.sequence(f"{path}.rods", m.get("rods"))))
+        return grids, conductors, rods
+
+    def _label(self, p: str, m: dict) -> str:
+        return self.name(f"{p}.name", m["name"]) if "name" in m else ""
+
+    def grid(self, p: str, value: Any) -> Grid:
+        m = self.mapping(p, value, ("origin", "size", "meshes", "depth", "diameter", "name"),
+                         ("origin", "size", "meshes", "depth", "diameter"))
+        origin = self.vector(f"{p}.origin", m["origin"], 2, "m", "x, y")
+        size = self.vector(f"{p}.size", m["size"], 2, "m", "along x, along y")
+        for i in range(2):
+            if size[i] <= 0:
+                raise self.doc.fail(f"{p}.size[{i}]", f"must be > 0 m, got {size[i]:g}")
+        meshes = m["meshes"]
+        if not isinstance(meshes, list) or len(meshes) != 2:
+            raise self.doc.fail(f"{p}.meshes", f"must be a list of 2 whole numbers (along x, along y), got {fmt(meshes)}")
+        meshes = tuple(self.integer(f"{p}.meshes[{i}]", v) for i, v in enumerate(meshes))
+        depth = self.depth(f"{p}.depth", self.number(f"{p}.depth", m["depth"], "m"))
+        d = self.diameter(f"{p}.diameter", m["diameter"])
+        return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p, name=self._label(p, m))
+
+    def conductor(self, p: str, value: Any) -> Conductor:
+        m = self.mapping(p, value, ("start", "end", "diameter", "name"), ("start", "end", "diameter"))
+        a = self.vector(f"{p}.start", m["start"], 3, "m", "x, y, depth")
+        b = self.vector(f"{p}.end", m["end"], 3, "m", "x, y, depth")
+        self.depth(f"{p}.start[2]", a[2])
+        self.depth(f"{p}.end[2]", b[2])
+        if math.dist(a, b) <= 1e-6:
+            raise self.doc.fail(p, "has zero length (start = end); give two different points")
+        return Conductor(a, b, self.diameter(f"{p}.diameter", m["diameter"]), key=p, name=self._label(p, m))
+
+    def rod(self, p: str, value: Any) -> Rod:
+        m = self.mapping(p, value, ("top", "length", "diameter", "name"), ("top", "length", "diameter"))
+        top = self.vector(f"{p}.top", m["top"], 3, "m", "x, y, depth")
+        if top[2] < 0:
+            raise self.doc.fail(f"{p}.top[2]", f"depth must be >= 0 m (z is positive downward), got {top[2]:g}")
+        length = self.number(f"{p}.length", m["length"], "m", gt=0)
+        return Rod(top, length, self.diameter(f"{p}.diameter", m["diameter"]), key=p, name=self._label(p, m))

@@ -1,0 +1,167 @@
+"""Verdicts on a real site: tolerable limits per surface zone, the worst voltage of every zone against
+its own limit, the governing zone of each criterion, and the touch voltages of separate electrodes.
+
+A criterion passes only if it passes in every zone where it was evaluated; a criterion evaluated
+nowhere does not pass (there is no evidence for it).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from ..case import SurfaceZone
+from ..surface import Extreme, ZoneExtremes
+from .ieee80 import Limits, tolerable_limits
+
+
+@dataclass(frozen=True)
+class ZoneVerdict:
+    """One surface zone: its limits and its worst touch, step and mesh voltages (V, None = none there).
+
+    Attributes
+    ----------
+    zone : SurfaceZone
+        The zone as given in the case (or the native soil, or the whole map).
+    limits : Limits
+        IEEE Std 80 tolerable voltages for people standing in the zone.
+    body_weight : int
+        kg, selects the limit the verdicts use.
+    extremes : ZoneExtremes
+        Worst touch, step and mesh voltages found in the zone.
+    """
+
+    zone: SurfaceZone
+    limits: Limits
+    body_weight: int
+    extremes: ZoneExtremes
+
+    @property
+    def name(self) -> str:
+        """Zone name."""
+        return self.zone.name
+
+    @property
+    def tolerable_touch(self) -> float:
+        """V."""
+        return self.limits.touch[self.body_weight]
+
+    @property
+    def tolerable_step(self) -> float:
+        """V."""
+        return self.limits.step[self.body_weight]
+
+    def ok(self, criterion: str) -> bool | None:
+        """Verdict of ``touch``, ``step`` or ``mesh`` in this zone; None where it was not evaluated."""
+        ext = getattr(self.extremes, criterion)
+        if ext is None:
+            return None
+        limit = self.tolerable_step if criterion == "step" else self.tolerable_touch
+        return bool(ext.value <= limit)
+
+
+@dataclass(frozen=True)
+class Check:
+    """The governing (least margin) result of one criterion over the zones.
+
+    Attributes
+    ----------
+    worst : Extreme or None
+        The governing zone's worst voltage (V) and where; None when the criterion was evaluated nowhere.
+    limit : float
+        That zone's tolerable voltage, V.
+    ok : bool or None
+        True when every zone passes; False when one fails or nothing was evaluated; None for the
+        mesh voltage of a layout without closed meshes.
+    zone : str
+        Name of the governing zone.
+    """
+
+    worst: Extreme | None
+    limit: float
+    ok: bool | None
+    zone: str
+
+    @property
+    def margin(self) -> float | None:
+        """(limit − worst) / limit, or None."""
+        return None if self.worst is None else (self.limit - self.worst.value) / self.limit
+
+
+def zone_limits(top_soil_resistivity: float, zones: tuple[SurfaceZone, ...], shock_duration: float) -> tuple[Limits, ...]:
+    """IEEE Std 80 limits for every zone: the zone's covering, or the native soil (Cs = 1)."""
+    return tuple(tolerable_limits(top_soil_resistivity, z.layer, shock_duration) for z in zones)
+
+
+def governing(verdicts: tuple[ZoneVerdict, ...], criterion: str, needed: bool = True) -> Check:
+    """The zone whose worst ``criterion`` voltage has the least margin to its limit.
+
+    ``needed`` says whether a criterion evaluated nowhere fails (touch, step) or is not applicable
+    (mesh voltage of a layout without meshes).
+    """
+    best, best_ratio = None, None
+    for v in verdicts:
+        ext = getattr(v.extremes, criterion)
+        if ext is None:
+            continue
+        limit = v.tolerable_step if criterion == "step" else v.tolerable_touch
+        ratio = ext.value / limit
+        if best_ratio is None or ratio > best_ratio:
+            best, best_ratio = (v, ext, limit), ratio
+    if best is None:
+        first = verdicts[0]
+        limit = first.tolerable_step if criterion == "step" else first.tolerable_touch
+        return Check(None, limit, False if needed else None, first.name)
+    v, ext, limit = best
+    oks = [v2.ok(criterion) for v2 in verdicts if v2.ok(criterion) is not None]
+    return Check(ext, limit, all(oks), v.name)
+
+
+@dataclass(frozen=True)
+class SeparateResult:
+    """A separate electrode in the study.
+
+    Attributes
+    ----------
+    name, connection : str
+        As in the case.
+    potential : float
+        Its potential relative to remote earth, V.
+    potential_fraction : float
+        potential / GPR.
+    net_current : float
+        Net current it sends into the soil, A (0 when floating; negative when it draws current back to
+        remote earth).
+    touch : Check
+        The governing touch voltage |V_metal − V_surface| within reach of it, over the zones.
+    zone_touch : tuple of (str, Extreme or None, float)
+        Per zone: name, worst touch voltage within reach, tolerable touch voltage (V).
+    surface_max : Extreme or None
+        Largest surface potential directly above its metal, V (for metal tied to remote earth this is
+        the transferred potential: the voltage between the metal and the ground beside it).
+    """
+
+    name: str
+    connection: str
+    potential: float
+    potential_fraction: float
+    net_current: float
+    touch: Check
+    zone_touch: tuple
+    surface_max: Extreme | None
+
+    @property
+    def transferred_voltage(self) -> float | None:
+        """For metal tied to remote earth: the largest voltage between it and the local surface, V."""
+        return self.surface_max.value if self.connection == "remote" and self.surface_max else None
+
+
+def separate_result(name: str, connection: str, potential: float, gpr: float, net_current: float,
+                    touches: tuple[Extreme | None, ...], surface_max: Extreme | None,
+                    verdicts: tuple[ZoneVerdict, ...]) -> SeparateResult:
+    """Collect one separate electrode's results and judge its touch voltages against each zone's limit."""
+    per_zone = tuple(ZoneVerdict(v.zone, v.limits, v.body_weight, ZoneExtremes(t, None, None))
+                     for v, t in zip(verdicts, touches))
+    check = governing(per_zone, "touch")
+    zone_touch = tuple((v.name, t, v.tolerable_touch) for v, t in zip(verdicts, touches))
+    return SeparateResult(name, connection, potential, potential / gpr if gpr else 0.0, net_current, check,
+                          zone_touch, surface_max)
