@@ -326,7 +326,7 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
     governing_limits = limits[[z.name for z in zones].index(touch.zone)]
     separate = tuple(
         separate_result(e.name, e.connection, gpr * (1.0 if e.connection == "bonded" else solution.group_potential[g]),
-                        gpr, _separate_current(e, g, segments, solution, ig), m.touch, m.surface_max, zones)
+                        gpr, _separate_current(e, g, segments, solution, ig), m.touch, zones)
         for g, (e, m) in enumerate(zip(case.separate_electrodes, surface.metal), start=1))
     contours = tuple((level, contour_lines(surface.x, surface.y, surface.potential, [level])[0])
                      for level in case.surface.contours)
@@ -335,9 +335,13 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
         if z.zone.area is not None and z.extremes.step is None:
             warnings.append(f"surface zone '{z.name}' holds no point of the surface map; its step voltage was not "
                             "evaluated: widen surface.margin or refine surface.resolution")
-    for level in case.surface.contours:
+    for level, lines in contours:
         if level >= gpr:
             warnings.append(f"surface.contours level {level:,.0f} V is at or above the GPR ({gpr:,.0f} V): no line")
+        elif level < float(np.min(surface.potential)):
+            warnings.append(f"surface.contours level {level:,.0f} V lies beyond the map (lowest mapped potential "
+                            f"{np.min(surface.potential):,.0f} V): the whole map is above it; widen surface.margin "
+                            "to draw the line")
     el = case.electrodes
     horizontal = [g.diameter for g in el.grids] + [c.diameter for c in el.conductors]
     conductor = check_conductor(df * fault.current, fault.clearing_time, MATERIALS[el.material],

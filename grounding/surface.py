@@ -14,7 +14,6 @@ from typing import Callable
 import numpy as np
 import shapely
 from scipy.interpolate import RectBivariateSpline
-from scipy.optimize import minimize
 from scipy.spatial import cKDTree
 from scipy.spatial.distance import cdist
 from shapely.geometry import LineString, MultiLineString, MultiPoint, Polygon
@@ -270,16 +269,13 @@ class ZoneExtremes:
 
 @dataclass(frozen=True)
 class MetalTouch:
-    """Touch voltages |V_metal − V_surface| within reach of one separate electrode, per zone (V), and
-    the largest surface potential directly above its metal (V, the transferred potential of metal tied
-    to remote earth)."""
+    """Touch voltages |V_metal − V_surface| within reach of one separate electrode, per zone (V)."""
 
     touch: tuple[Extreme | None, ...]
-    surface_max: Extreme | None
 
     def scaled(self, factor: float) -> "MetalTouch":
         """The same points with values multiplied by ``factor``."""
-        return MetalTouch(tuple(_scale(t, factor) for t in self.touch), _scale(self.surface_max, factor))
+        return MetalTouch(tuple(_scale(t, factor) for t in self.touch))
 
 
 @dataclass(frozen=True)
@@ -348,8 +344,11 @@ class Zoning:
         if not self.order:
             return out
         done = np.zeros(x.shape, bool)
+        rest_severity = self.severity[self.rest] if self.rest >= 0 else -np.inf
         for k in self.order:
-            hit = ~done & shapely.intersects_xy(self.areas[k], x, y)
+            # a zone less severe than the surrounding rest keeps only its interior: its edge goes to the rest
+            test = shapely.contains_xy if self.severity[k] < rest_severity else shapely.intersects_xy
+            hit = ~done & test(self.areas[k], x, y)
             out[hit] = k
             done |= hit
         return out
@@ -367,14 +366,28 @@ class Zoning:
         return geometry.difference(unary_union(others)) if others else geometry
 
 
-def _refine(f, x0, y0, half_width, accept) -> tuple[float, float, float]:
-    """Local minimum of f(x, y) near (x0, y0) within a box, kept only where ``accept(x, y)``; (f, x, y)."""
-    best = (f(x0, y0), x0, y0)
-    res = minimize(lambda v: f(v[0], v[1]), np.array([x0, y0]), method="Powell",
-                   bounds=[(x0 - half_width, x0 + half_width), (y0 - half_width, y0 + half_width)],
-                   options={"xtol": 1e-3, "ftol": 1e-9, "maxfev": 200})
-    if res.fun < best[0] and accept(float(res.x[0]), float(res.x[1])):
-        best = (float(res.fun), float(res.x[0]), float(res.x[1]))
+#: Zoom search for a local maximum: points per side of each patch, and zoom levels.
+ZOOM_POINTS = 9
+ZOOM_LEVELS = 3
+
+
+def _refine(field, x0: float, y0: float, half_width: float, accept) -> tuple[float, float, float]:
+    """Local maximum of ``field`` (vectorised over (M, 2) points) near (x0, y0) by a zoom search: a patch of
+    ZOOM_POINTS² points over ±half_width, then patches a quarter the size around the best point,
+    ZOOM_LEVELS times; only points where ``accept(x, y)`` (vectorised) count. Returns (value, x, y)."""
+    best = (float(field(np.array([[x0, y0]]))[0]), x0, y0)
+    half = half_width
+    offsets = np.linspace(-1.0, 1.0, ZOOM_POINTS)
+    for _ in range(ZOOM_LEVELS):
+        gx, gy = np.meshgrid(best[1] + half * offsets, best[2] + half * offsets)
+        px, py = gx.ravel(), gy.ravel()
+        ok = accept(px, py)
+        if ok.any():
+            values = field(np.column_stack([px[ok], py[ok]]))
+            k = int(np.argmax(values))
+            if values[k] > best[0]:
+                best = (float(values[k]), float(px[ok][k]), float(py[ok][k]))
+        half /= 4.0
     return best
 
 
@@ -413,9 +426,6 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     V = potential(pts, progress).reshape(X.shape)
     labels = zoning.label(X, Y)
 
-    def exact(px, py):
-        return float(potential(np.array([[px, py]]))[0])
-
     area, meshes = touch_region(segments, surface)
     shapely.prepare(area)
     in_area = shapely.contains_xy(area, X, Y) | shapely.intersects_xy(area.boundary, X, Y)
@@ -424,7 +434,7 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     grid = (X, Y, surface.resolution)
 
     def worst_main(region, mask, k):
-        return _worst_place(lambda px, py: exact(px, py) - gpr, gpr - V, mask & (labels == k), grid, region, zoning, k)
+        return _worst_place(lambda xy: gpr - potential(xy), gpr - V, mask & (labels == k), grid, region, zoning, k)
 
     zone_touch = [worst_main(area, in_area, k) for k in range(len(zoning))]
     zone_mesh = [worst_main(meshes, in_mesh, k) if in_mesh.any() else None for k in range(len(zoning))]
@@ -433,7 +443,7 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     max_touch = _largest(zone_touch)
     if max_touch is None:                                  # no touch area at all: nothing to report
         max_touch = Extreme(float("nan"), float(x[0]), float(y[0]))
-    metal_touch = tuple(_metal_touch(m, segments, surface, potential, exact, V, labels, grid, zoning) for m in metal)
+    metal_touch = tuple(_metal_touch(m, segments, surface, potential, V, labels, grid, zoning) for m in metal)
     probe_v = potential(np.array(probes, float).reshape(-1, 2)) if probes else np.zeros(0)
     (x0, y0), (x1, y1) = surface.profile or ((x[0], y[0]), (x[-1], y[-1]))
     f = np.linspace(0.0, 1.0, PROFILE_POINTS)
@@ -452,9 +462,9 @@ def _largest(extremes) -> Extreme | None:
     return best
 
 
-def _worst_place(minus_value, values, mask, grid, region, zoning: Zoning, k: int) -> Extreme | None:
+def _worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> Extreme | None:
     """Largest value over the map points in ``mask`` (zone k of ``region``), refined by a local search on
-    the exact field ``-minus_value(x, y)``. A zone part of the region with area but no map point is
+    the exact ``field`` (vectorised over (M, 2) points). A zone part of the region with area but no map point is
     evaluated at points inside it, so that a criterion is never passed without evidence. None when
     zone k holds no part of the region."""
     X, Y, resolution = grid
@@ -472,40 +482,27 @@ def _worst_place(minus_value, values, mask, grid, region, zoning: Zoning, k: int
         return None
 
     def accept(px, py):
-        return bool(shapely.intersects_xy(region, px, py)) and int(zoning.label(px, py)) == k
+        return shapely.intersects_xy(region, px, py) & (zoning.label(px, py) == k)
 
     best = None
     for cx, cy in candidates_xy:
-        v, px, py = _refine(minus_value, cx, cy, resolution, accept)
-        if best is None or _better(-v, px, py, best):
-            best = Extreme(-v, px, py)
+        v, px, py = _refine(field, cx, cy, resolution, accept)
+        if best is None or _better(v, px, py, best):
+            best = Extreme(v, px, py)
     return best
 
 
-def _metal_touch(m: SeparateMetal, segments: Segments, surface: SurfaceMap, potential, exact, V, labels, grid,
+def _metal_touch(m: SeparateMetal, segments: Segments, surface: SurfaceMap, potential, V, labels, grid,
                  zoning: Zoning) -> MetalTouch:
-    """Touch voltages within reach of one separate electrode, per zone, and the largest surface potential
-    above its metal."""
+    """Touch voltages within reach of one separate electrode, per zone."""
     X, Y, resolution = grid
     _, reach = metal_footprint(segments, m.mask, max(surface.touch_reach, 1e-3))
     shapely.prepare(reach)
     near = shapely.intersects_xy(reach, X, Y)
     values = np.abs(m.potential - V)
-    touch = tuple(_worst_place(lambda px, py: -abs(m.potential - exact(px, py)), values, near & (labels == k), grid,
+    touch = tuple(_worst_place(lambda xy: np.abs(m.potential - potential(xy)), values, near & (labels == k), grid,
                                reach, zoning, k) for k in range(len(zoning)))
-    # surface potential directly above the metal: its horizontal runs sampled at a tenth of the map spacing
-    c = segments.conductors
-    sel = np.flatnonzero(m.mask)
-    pts = [c.start[sel, :2], c.end[sel, :2]]
-    for k in sel:
-        n = int(np.ceil(np.linalg.norm(c.end[k, :2] - c.start[k, :2]) / (0.1 * resolution)))
-        if n > 1:
-            f = np.linspace(0.0, 1.0, n + 1)[1:-1, None]
-            pts.append(c.start[k, :2] + f * (c.end[k, :2] - c.start[k, :2]))
-    pts = np.vstack(pts)
-    vs = potential(pts)
-    top = int(np.lexsort((pts[:, 0], pts[:, 1], -np.round(vs / (np.abs(vs).max() * TIE + 1e-300))))[0])
-    return MetalTouch(touch, Extreme(float(vs[top]), float(pts[top, 0]), float(pts[top, 1])))
+    return MetalTouch(touch)
 
 
 def contour_lines(x: np.ndarray, y: np.ndarray, values: np.ndarray, levels) -> list[list[np.ndarray]]:
@@ -543,12 +540,12 @@ def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zonin
     exactly. A step belongs to the zone of the foot with the more severe zone."""
     spline = RectBivariateSpline(x, y, V.T, kx=3, ky=3)
     X, Y = np.meshgrid(x, y)
-    ang = np.pi * np.arange(STEP_DIRECTIONS) / STEP_DIRECTIONS          # half circle: |ΔV| is symmetric
+    ang = np.pi * np.arange(STEP_DIRECTIONS) / STEP_DIRECTIONS
     step = np.zeros_like(V)
     nz = len(zoning)
     per_zone = np.zeros((nz,) + V.shape)
     for t in ang:
-        for sign in ((1.0,) if nz == 1 else (1.0, -1.0)):          # with zones, each foot may lead
+        for sign in (1.0, -1.0):                    # both directions: every step is seen from both feet
             px, py = X + sign * step_len * np.cos(t), Y + sign * step_len * np.sin(t)
             inside = (px >= x[0]) & (px <= x[-1]) & (py >= y[0]) & (py <= y[-1])
             dv = np.where(inside, np.abs(spline.ev(np.clip(px, x[0], x[-1]), np.clip(py, y[0], y[-1])) - V), 0.0)

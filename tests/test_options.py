@@ -30,7 +30,7 @@ surface: {margin: 2, resolution: 2.0}
 sweep:
   grid.spacing: [10, 5]
   rods.layout: [none, perimeter]
-  surface_layer.thickness: [0.1, 0.2]
+  surface_layer.thickness: [0.1, 0.3]
 """
 
 

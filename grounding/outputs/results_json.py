@@ -63,8 +63,7 @@ def _separate(r: StudyResult) -> list[dict]:
              "max_touch_voltage_v": _value(e.touch.worst), "max_touch_at": _at(e.touch.worst),
              "tolerable_touch_voltage_v": _num(e.touch.limit), "touch_zone": e.touch.zone,
              "touch_ok": bool(e.touch.ok),
-             "max_surface_potential_above_v": _value(e.surface_max), "max_surface_potential_at": _at(e.surface_max),
-             "transferred_voltage_v": _num(e.transferred_voltage)} for e in r.separate]
+             "transferred_voltage_v": _num(e.transferred_voltage), "transferred_at": _at(e.transferred)} for e in r.separate]
 
 
 def _contours(r: StudyResult) -> list[dict]:

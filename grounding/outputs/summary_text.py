@@ -117,7 +117,7 @@ def safety_lines(r: StudyResult) -> list[str]:
                            + (f" in {t.zone}" if several else ""))
             if e.transferred_voltage is not None:
                 out.append(f"      transferred: up to {_volts(e.transferred_voltage)} between the metal (remote earth) "
-                           f"and the ground above it, at {_at(e.surface_max)}")
+                           f"and the ground within reach, at {_at(e.transferred)}")
     if not r.passes:
         out.append("  !! At least one criterion FAILS: the layout is not safe as modelled.")
     thin = [name for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check))

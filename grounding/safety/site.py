@@ -135,9 +135,9 @@ class SeparateResult:
         The governing touch voltage |V_metal − V_surface| within reach of it, over the zones.
     zone_touch : tuple of (str, Extreme or None, float)
         Per zone: name, worst touch voltage within reach, tolerable touch voltage (V).
-    surface_max : Extreme or None
-        Largest surface potential directly above its metal, V (for metal tied to remote earth this is
-        the transferred potential: the voltage between the metal and the ground beside it).
+    transferred : Extreme or None
+        For metal tied to remote earth: the largest voltage between the metal (0 V) and the ground within
+        reach of it, V, i.e. the largest surface potential there, over all zones; None otherwise.
     """
 
     name: str
@@ -147,21 +147,25 @@ class SeparateResult:
     net_current: float
     touch: Check
     zone_touch: tuple
-    surface_max: Extreme | None
+    transferred: Extreme | None
 
     @property
     def transferred_voltage(self) -> float | None:
-        """For metal tied to remote earth: the largest voltage between it and the local surface, V."""
-        return self.surface_max.value if self.connection == "remote" and self.surface_max else None
+        """For metal tied to remote earth: the largest voltage between it and the local ground, V."""
+        return None if self.transferred is None else self.transferred.value
 
 
 def separate_result(name: str, connection: str, potential: float, gpr: float, net_current: float,
-                    touches: tuple[Extreme | None, ...], surface_max: Extreme | None,
-                    verdicts: tuple[ZoneVerdict, ...]) -> SeparateResult:
+                    touches: tuple[Extreme | None, ...], verdicts: tuple[ZoneVerdict, ...]) -> SeparateResult:
     """Collect one separate electrode's results and judge its touch voltages against each zone's limit."""
     per_zone = tuple(ZoneVerdict(v.zone, v.limits, v.body_weight, ZoneExtremes(t, None, None))
                      for v, t in zip(verdicts, touches))
     check = governing(per_zone, "touch")
     zone_touch = tuple((v.name, t, v.tolerable_touch) for v, t in zip(verdicts, touches))
+    transferred = None
+    if connection == "remote":
+        for t in touches:
+            if t is not None and (transferred is None or t.value > transferred.value):
+                transferred = t
     return SeparateResult(name, connection, potential, potential / gpr if gpr else 0.0, net_current, check,
-                          zone_touch, surface_max)
+                          zone_touch, transferred)
