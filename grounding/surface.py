@@ -366,6 +366,8 @@ class Zoning:
         return geometry.difference(unary_union(others)) if others else geometry
 
 
+#: Most points sampled along the edge of an area when searching its worst point.
+MAX_EDGE_POINTS = 20_000
 #: Zoom search for a local maximum: points per side of each patch, and zoom levels.
 ZOOM_POINTS = 9
 ZOOM_LEVELS = 3
@@ -478,6 +480,19 @@ def _worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> E
     elif part.area > 1e-9:
         polys = getattr(part, "geoms", [part])
         candidates_xy = [p.representative_point().coords[0] for p in polys if p.area > 1e-9][:8]
+    if part.area > 1e-9:
+        # the edge of the area, sampled at a quarter of the map spacing: peaks of touch voltage sit on it
+        # (the surface potential falls away from the metal) and a coarse map may hold no point near them
+        edge = shapely.get_coordinates(shapely.segmentize(part.boundary, 0.25 * resolution))
+        if len(edge) > MAX_EDGE_POINTS:
+            edge = edge[np.linspace(0, len(edge) - 1, MAX_EDGE_POINTS).astype(int)]
+        if len(edge):
+            ok = shapely.intersects_xy(region, edge[:, 0], edge[:, 1]) & (zoning.label(edge[:, 0], edge[:, 1]) == k)
+            edge = edge[ok]
+        if len(edge):
+            ev = field(edge)
+            order = np.lexsort((edge[:, 0], edge[:, 1], -np.round(ev / (np.abs(ev).max() * TIE + 1e-300))))[:3]
+            candidates_xy += [(float(edge[i, 0]), float(edge[i, 1])) for i in order]
     if not candidates_xy:
         return None
 

@@ -120,3 +120,22 @@ def test_probe_touch_voltage(grid_result):
     # 70.7 m from the grid centre the grid acts as a point source at the surface: V = ρ IG / (2π d)
     d = np.hypot(50.0, 50.0)
     assert r.surface.probe_potential[2] == pytest.approx(200.0 * r.grid_current / (2 * np.pi * d), rel=0.02)
+
+
+def test_touch_peak_on_the_edge_of_the_touch_area_is_found_on_a_coarse_map():
+    """Regression: with a 2 m map and the default 1 m reach, no map point lies in the band outside the
+    grid; the worst touch voltage is 1 m diagonally outside a corner (the surface potential falls away from
+    the metal fastest there) and must be found (an earlier line search reported 745 V where 1379 V occur)."""
+    from grounding.case_loader import parse_case
+    from grounding.study import run_study
+    from grounding.surface import surface_potential
+    from tests.conftest import case_text
+
+    case = parse_case(case_text("""\
+        grids: [{origin: [0, 0], size: [20, 16], meshes: [4, 4], depth: 0.5, diameter: 0.01}]
+        """, soil="{resistivity: 150}", fault="{current: 2500, split_factor: 0.5, clearing_time: 0.3}",
+        extra="discretization: {max_segment: 2.0}\nsurface: {margin: 2, resolution: 2.0}\n"))
+    r = run_study(case, estimate_error=False)
+    corner = np.array([[20 + 0.5 ** 0.5, -0.5 ** 0.5], [-0.5 ** 0.5, -0.5 ** 0.5]])
+    edge_touch = r.ground_potential_rise - surface_potential(corner, r.segments, r.segment_currents, r.kernel)
+    assert r.touch_check.worst.value >= edge_touch.max() * (1 - 1e-9)
