@@ -333,6 +333,8 @@ class Zoning:
         self.order = [k for k in np.argsort(-self.severity, kind="stable") if self.areas[k] is not None]
         for k in self.order:
             shapely.prepare(self.areas[k])
+        self.union = unary_union([self.areas[k] for k in self.order]) if self.order else Polygon()
+        shapely.prepare(self.union)
 
     def __len__(self) -> int:
         return len(self.areas)
@@ -344,13 +346,16 @@ class Zoning:
         if not self.order:
             return out
         done = np.zeros(x.shape, bool)
-        rest_severity = self.severity[self.rest] if self.rest >= 0 else -np.inf
         for k in self.order:
-            # a zone less severe than the surrounding rest keeps only its interior: its edge goes to the rest
-            test = shapely.contains_xy if self.severity[k] < rest_severity else shapely.intersects_xy
-            hit = ~done & test(self.areas[k], x, y)
+            hit = ~done & shapely.intersects_xy(self.areas[k], x, y)
             out[hit] = k
             done |= hit
+        if self.rest >= 0:
+            # the outer edge of the listed zones belongs to the rest when the rest is more severe
+            lenient = done & (self.severity[np.maximum(out, 0)] < self.severity[self.rest])
+            if lenient.any():
+                edge = lenient & ~shapely.contains_xy(self.union, x, y)
+                out[edge] = self.rest
         return out
 
     def worse(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:

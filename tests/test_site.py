@@ -182,6 +182,9 @@ def test_zoning_labels_shared_edges_to_the_more_severe_zone():
     labels = z.label(np.array([0.5, 1.0, 1.5, 5.0]), np.array([0.5, 0.5, 0.5, 5.0]))
     assert labels.tolist() == [0, 1, 1, 2]
     assert z.worse(np.array([0, 2]), np.array([1, 0])).tolist() == [1, 2]
+    # two coverings more lenient than the native soil: their seam stays covered, their outer edge is native
+    z2 = Zoning([box(0, 0, 1, 1), box(1, 0, 2, 1), None], [-3000.0, -2000.0, -200.0])
+    assert z2.label(np.array([1.0, 2.0, 0.5, 0.0]), np.array([0.5, 0.5, 0.5, 0.5])).tolist() == [1, 2, 0, 2]
 
 
 def test_isolated_and_bonded_fence():
