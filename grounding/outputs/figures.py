@@ -37,6 +37,9 @@ class Rendered:
 SEPARATE_STYLE = {"floating": dict(color="#e66101", ls=(0, (5, 2)), label="separate, floating"),
                   "remote": dict(color="#5e3c99", ls=(0, (6, 2, 1, 2)), label="separate, tied to remote earth"),
                   "bonded": dict(color="#1b7837", ls=(0, (1, 1.5)), label="separate, bonded")}
+#: Colour and dash of the requested potential contours, in level order.
+CONTOUR_STYLES = (("#d7301f", (0, (5, 1.5))), ("#fdae61", (0, (2, 1))), ("#f4a6d7", (0, (7, 2, 1, 2))),
+                  ("#ffffff", (0, (1, 1))))
 #: Hatches of surface zones on the plan, in zone order.
 ZONE_HATCHES = ("..", "//", "\\\\", "xx", "oo", "--", "++", "||")
 
@@ -181,11 +184,12 @@ def potential_figure(r: StudyResult) -> Rendered:
     pct = np.arange(10, 100, 10)
     cs = ax.contour(s.x, s.y, s.potential / gpr * 100, levels=pct, colors="black", linewidths=0.5)
     ax.clabel(cs, fmt="%d %%", fontsize=6)
-    for level, lines in r.contours:
+    for k, (level, lines) in enumerate(r.contours):
+        color, dash = CONTOUR_STYLES[k % len(CONTOUR_STYLES)]
         for line in lines:
-            ax.plot(line[:, 0], line[:, 1], color="#d7301f", lw=1.4, ls=(0, (4, 1.5)))
+            ax.plot(line[:, 0], line[:, 1], color=color, lw=1.5, ls=dash)
         if lines:
-            ax.plot([], [], color="#d7301f", lw=1.4, ls=(0, (4, 1.5)), label=f"{level:,.0f} V")
+            ax.plot([], [], color=color, lw=1.5, ls=dash, label=f"{level:,.0f} V")
     if r.contours:
         ax.legend(fontsize=7, loc="lower right", title="contours (V)", title_fontsize=7)
     _overlay_electrodes(ax, r)

@@ -152,7 +152,7 @@ def _touch_area_text(surface) -> str:
 
 
 def _zone_rows(r: StudyResult):
-    rows = [["Zone", "Covering", "Cs", "Touch: worst / limit", "Step: worst / limit", "Mesh: worst", "Verdict"]]
+    rows = [["Zone", "Covering", "Cs", "Touch / limit", "Step / limit", "Mesh", "Verdict"]]
     for z in r.zones:
         e = z.extremes
         oks = [z.ok(k) for k in ("touch", "step", "mesh") if z.ok(k) is not None]
@@ -164,11 +164,11 @@ def _zone_rows(r: StudyResult):
 
 
 def _separate_rows(r: StudyResult):
-    rows = [["Electrode", "Connection", "Potential", "Net current", "Worst touch / limit", "Transferred"]]
+    rows = [["Electrode", "Connection", "Potential", "Net current", "Touch / limit", "Transferred"]]
     for e in r.separate:
         t = e.touch
         rows.append([e.name[:24], e.connection, f"{_v(e.potential)} ({e.potential_fraction * 100:.0f} % GPR)",
-                     f"{e.net_current / 1000:+.3f} kA",
+                     "0 (floating)" if e.connection == "floating" else f"{e.net_current / 1000:+.3f} kA",
                      f"{_v(t.worst.value) if t.worst else '—'} / {_v(t.limit)} {_verdict(t.ok)}",
                      _v(e.transferred_voltage) if e.transferred_voltage is not None else "—"])
     return rows
@@ -347,13 +347,14 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     if len(r.zones) > 1:
         story += [P("Per zone: each criterion is judged in every zone against the limit of people standing there; "
                     "a step belongs to the zone of its foot with the lower limit.", "small"),
-                  _table(_zone_rows(r), [30 * mm, 34 * mm, 12 * mm, 32 * mm, 32 * mm, 18 * mm, 14 * mm], st,
-                         verdict_col=6)]
+                  _table(_zone_rows(r), [28 * mm, 33 * mm, 12 * mm, 32 * mm, 32 * mm, 17 * mm, 16 * mm], st,
+                         verdict_col=6), Spacer(1, 2 * mm)]
     if r.separate:
         story += [P("Separate electrodes: potential from the solve (floating: zero net current; remote: 0 V); touch "
                     f"= |metal − surface potential| within {c.surface.touch_reach:g} m of the metal; transferred = the "
-                    "largest surface potential above metal tied to remote earth.", "small"),
-                  _table(_separate_rows(r), [30 * mm, 20 * mm, 38 * mm, 22 * mm, 38 * mm, 22 * mm], st)]
+                    "largest voltage between metal tied to remote earth (0 V) and the ground within reach.", "small"),
+                  _table(_separate_rows(r), [30 * mm, 20 * mm, 38 * mm, 22 * mm, 38 * mm, 22 * mm], st),
+                  Spacer(1, 2 * mm)]
     story += [P(f"Tolerable limits (Dalziel, IEEE Std 80): touch (1000 + 1.5 Cs ρs)·k/√ts, step (1000 + 6 Cs ρs)·k/√ts; "
                 f"50 kg: touch {_v(r.limits.touch[50])}, step {_v(r.limits.step[50])}; "
                 f"70 kg: touch {_v(r.limits.touch[70])}, step {_v(r.limits.step[70])}"

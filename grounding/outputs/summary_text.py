@@ -107,8 +107,9 @@ def safety_lines(r: StudyResult) -> list[str]:
                    f"{r.case.surface.touch_reach:g} m):")
         for e in r.separate:
             t = e.touch
+            net = "net current 0 (floating)" if e.connection == "floating" else f"net {e.net_current / 1000:+.3f} kA"
             head = (f"    {e.name[:20]:<21}{e.connection:<9}{_volts(e.potential):>9} ({e.potential_fraction * 100:.0f} % GPR), "
-                    f"net {e.net_current / 1000:+.3f} kA")
+                    f"{net}")
             out.append(head)
             if t.worst is None:
                 out.append("      touch: nowhere within reach on the map")
