@@ -47,18 +47,26 @@ def quantities(r: StudyResult) -> Quantities:
 
 def layout_quantities(c: Case, seg: Segments, touch_area) -> Quantities:
     """Quantities of a layout from its geometry alone (no solve needed). Conductor lengths come from the
-    merged, noded geometry, so metal shared by two electrodes is counted once; the surface layer covers
-    the touch area."""
+    merged, noded geometry, so metal shared by two electrodes is counted once; separate electrodes (fences,
+    pipes) are not part of the layout and are left out. A whole-map surface layer is priced over the
+    touch area; surface zones over their own areas."""
+    from ..case_site import shapely_polygon
+
+    own = ~seg.conductors.matching(("separate_electrodes",))
+    keep = own[seg.conductor]
     rod = seg.is_rod
-    conductor_len = float(seg.length[~rod].sum())
-    rod_len = float(seg.length[rod].sum())
+    conductor_len = float(seg.length[~rod & keep].sum())
+    rod_len = float(seg.length[rod & keep].sum())
     area_per_m = math.pi * seg.radius ** 2
-    mass = float((seg.length * area_per_m).sum()) * MATERIALS[c.electrodes.material].density
-    rod_count = int(seg.conductors.is_rod.sum())
-    area = float(touch_area.area) if c.surface_layer else 0.0
+    mass = float((seg.length * area_per_m)[keep].sum()) * MATERIALS[c.electrodes.material].density
+    rod_count = int((seg.conductors.is_rod & own).sum())
+    covered = [(shapely_polygon(z.area).area, z.layer.thickness) for z in c.surface_zones if z.layer is not None]
+    if c.surface_layer is not None:
+        covered = [(float(touch_area.area), c.surface_layer.thickness)]
+    area = float(sum(a for a, _ in covered))
     cost = None
     if c.costs is not None:
         k = c.costs
-        layer = area * (c.surface_layer.thickness / 0.1) * k.surface_layer_per_m2 if c.surface_layer else 0.0
+        layer = sum(a * (h / 0.1) * k.surface_layer_per_m2 for a, h in covered)
         cost = conductor_len * k.conductor_per_m + rod_len * k.rod_per_m + rod_count * k.rod_each + layer
     return Quantities(conductor_len, rod_count, rod_len, mass, area, cost, c.costs.currency if c.costs else "")
