@@ -331,8 +331,32 @@ class Costs:
 
 
 @dataclass(frozen=True)
+class Scenario:
+    """A condition the layout must also pass (a season, a wet surface layer, a future fault level): the
+    case with some of its soil, surface_layer, surface_zones and fault blocks replaced.
+
+    Attributes
+    ----------
+    name : str
+        As printed.
+    case : Case
+        The whole case under this condition (validated like a file).
+    overrides : tuple of str
+        The blocks the scenario replaces.
+    """
+
+    name: str
+    case: "Case"
+    overrides: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class Case:
-    """A whole study case, as validated from a case file."""
+    """A whole study case, as validated from a case file.
+
+    ``scenarios`` lists the conditions besides the case as written (named ``base_scenario``); a
+    criterion passes only if it passes in all of them.
+    """
 
     title: str
     soil: Soil
@@ -347,6 +371,8 @@ class Case:
     probes: tuple[Point2, ...] = ()
     soil_fit: SoilFit | None = None
     costs: Costs | None = None
+    scenarios: tuple[Scenario, ...] = ()
+    base_scenario: str = "as written"
     notes: tuple[str, ...] = ()
     site: str = ""
     source: str = ""

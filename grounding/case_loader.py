@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .case import Case, Costs, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
+from .case import Case, Costs, Scenario, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
     TouchArea
 from .case_checks import Document, fmt
 from .case_electrodes import ElectrodeSections
@@ -25,6 +25,12 @@ from .errors import CaseError
 from .textfile import read_user_text
 
 SUPPORTED_FORMATS = (1,)
+#: Blocks a scenario may replace.
+SCENARIO_BLOCKS = ("soil", "surface_layer", "surface_zones", "fault")
+#: Scenario blocks merged key by key into the case's block (soil and zones are replaced whole).
+MERGED_BLOCKS = ("surface_layer", "fault")
+#: Most scenarios a case may list.
+MAX_SCENARIOS = 20
 #: Most soil layers a case may give.
 MAX_LAYERS = 6
 
@@ -72,7 +78,7 @@ class _CaseReader(ElectrodeSections, SiteSections):
             raise self.doc.fail("", "is empty; a case needs at least format, soil, fault and electrodes")
         top = self.mapping("", data, ("format", "title", "site", "soil", "surface_layer", "surface_zones", "fault",
                                        "criteria", "electrodes", "separate_electrodes", "discretization", "surface",
-                                       "probes", "costs", "sweep"),
+                                       "probes", "costs", "sweep", "scenarios"),
                            ("format", "soil", "fault", "electrodes"))
         fmt = top["format"]
         if fmt not in SUPPORTED_FORMATS:
@@ -107,10 +113,62 @@ class _CaseReader(ElectrodeSections, SiteSections):
             sweep_settings(self.doc)                      # validated here; expanded by load_variants
             notes.append("the sweep block is not used by a single study (the case is studied as written); "
                          "run grounding sweep or grounding design for the options")
+        scenarios, base_name = self.scenarios(top.get("scenarios"), "scenarios" in top, sha256)
         return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
-                    surface_layer=surface_layer, surface_zones=zones, separate_electrodes=separate, discretization=discretization, surface=surface,
+                    surface_layer=surface_layer, surface_zones=zones, separate_electrodes=separate,
+                    scenarios=scenarios, base_scenario=base_name, discretization=discretization, surface=surface,
                     probes=probes, soil_fit=soil_fit, costs=costs, notes=tuple(notes), site=site,
                     source=self.doc.file, sha256=sha256)
+
+    def scenarios(self, value: Any, given: bool, sha256: str) -> tuple[tuple[Scenario, ...], str]:
+        """The ``scenarios`` list: each entry is the case with the blocks it names replaced, validated as a
+        file (messages name the scenario); an entry that replaces nothing names the case as written."""
+        if not given:
+            return (), "as written"
+        items = self.sequence("scenarios", value)
+        if not items:
+            raise self.doc.fail("scenarios", "is empty; list conditions such as {name: dry summer, soil: {...}} "
+                                             "or leave the key out")
+        if len(items) > MAX_SCENARIOS:
+            raise self.doc.fail("scenarios", f"lists {len(items)} scenarios; give at most {MAX_SCENARIOS}")
+        out, names, base_name = [], {}, None
+        for i, item in enumerate(items):
+            p = f"scenarios[{i}]"
+            m = self.mapping(p, item, ("name",) + SCENARIO_BLOCKS, ("name",))
+            name = self.name(f"{p}.name", m["name"])
+            if name in names:
+                raise self.doc.fail(f"{p}.name", f"'{name}' is already the name of scenarios[{names[name]}]")
+            names[name] = i
+            blocks = tuple(k for k in SCENARIO_BLOCKS if k in m)
+            if not blocks:
+                if base_name is not None:
+                    raise self.doc.fail(p, f"replaces nothing, like '{base_name}': the case as written is studied "
+                                           "once; give this scenario a block to replace or remove it")
+                base_name = name
+                continue
+            data = {k: v for k, v in self.doc.data.items() if k not in ("scenarios", "sweep")}
+            lines = dict(self.doc.lines)
+            for b in blocks:
+                base_block = data.get(b)
+                if b in ("surface_layer", "surface_zones") and not (b == "surface_layer" and m[b] is None):
+                    other = "surface_zones" if b == "surface_layer" else "surface_layer"
+                    data.pop(other, None)                          # one covering replaces the other
+                if b in MERGED_BLOCKS and isinstance(base_block, dict) and isinstance(m[b], dict):
+                    data[b] = {**base_block, **m[b]}               # keys not given come from the case
+                else:
+                    data[b] = m[b]
+                prefix = f"{p}.{b}"
+                for key, line in self.doc.lines.items():
+                    if key == prefix or key.startswith(prefix + ".") or key.startswith(prefix + "["):
+                        lines[b + key[len(prefix):]] = line
+            try:
+                case = _CaseReader(Document(self.doc.file, data, lines), self.fits).read(
+                    hashlib.sha256((sha256 + "scenario " + name).encode()).hexdigest())
+            except CaseError as exc:
+                raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in scenario '{name}')") from None
+            case = replace(case, notes=tuple(n for n in case.notes if not n.startswith("the sweep block")))
+            out.append(Scenario(name, case, blocks))
+        return tuple(out), base_name or "as written"
 
     def costs(self, value: Any) -> Costs | None:
         if value is None:

@@ -86,6 +86,8 @@ class StudyResult:
     mesh_check: Check | None = None
     separate: tuple[SeparateResult, ...] = ()
     contours: tuple[tuple[float, list], ...] = ()
+    scenario: str = ""
+    scenarios: tuple["StudyResult", ...] = ()
     cautions: tuple[str, ...] = CAUTIONS
 
     @property
@@ -110,7 +112,10 @@ class StudyResult:
 
     @property
     def passes(self) -> bool:
-        """True when touch, step, mesh (where meshes exist), separate-electrode touch and conductor size all pass."""
+        """True when touch, step, mesh (where meshes exist), separate-electrode touch and conductor size all
+        pass, in every scenario."""
+        if self.scenarios:
+            return all(r.passes for r in self.scenarios)
         return bool(self.touch_ok and self.step_ok and self.mesh_ok is not False and self.separate_ok
                     and self.conductor.ok)
 
@@ -293,7 +298,13 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
 
 def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True,
               unit: UnitStudy | None = None) -> StudyResult:
-    """Run a whole study.
+    """Run a whole study: the case as written and every scenario of it.
+
+    With scenarios, the result is the case as written with ``scenarios`` holding every scenario's result
+    (itself first) and the touch, step and mesh checks replaced by the governing (least margin) scenario's;
+    a criterion passes only if it passes in every scenario. Scenarios share the solve where the soil,
+    geometry, surface zones and map are equal (the fault data and coverings only scale the fields or
+    change the limits).
 
     Parameters
     ----------
@@ -310,8 +321,49 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
     -------
     StudyResult
     """
-    if unit is None:
-        unit = solve_geometry(case, progress, estimate_error)
+    units = {} if unit is None else {geometry_key(case): unit}
+    t0 = time.perf_counter()
+    base = _run_condition(case, progress, estimate_error, units)
+    if not case.scenarios:
+        return base
+    results = [replace(base, scenario=case.base_scenario, timings={**base.timings,
+                                                                    "scenario_s": time.perf_counter() - t0})]
+    for sc in case.scenarios:
+        t0 = time.perf_counter()
+        r = _run_condition(sc.case, progress, estimate_error, units)
+        results.append(replace(r, scenario=sc.name, timings={**r.timings, "scenario_s": time.perf_counter() - t0}))
+    return combine_scenarios(results)
+
+
+def combine_scenarios(results: list[StudyResult]) -> StudyResult:
+    """The first result, with every scenario's result attached and the checks of the governing scenario."""
+    def worst(name: str) -> Check:
+        best, ratio = None, None
+        for r in results:
+            c = getattr(r, name)
+            if c.worst is None:
+                if c.ok is False and best is None:
+                    best = replace(c, scenario=r.scenario)
+                continue
+            q = c.worst.value / c.limit
+            if ratio is None or q > ratio:
+                best, ratio = replace(c, scenario=r.scenario), q
+        if best is None:
+            return replace(getattr(results[0], name), scenario=results[0].scenario)
+        oks = [getattr(r, name).ok for r in results if getattr(r, name).ok is not None]
+        return replace(best, ok=all(oks) if oks else None)
+
+    first = results[0]
+    return replace(first, touch_check=worst("touch_check"), step_check=worst("step_check"),
+                   mesh_check=worst("mesh_check"), scenarios=tuple(results))
+
+
+def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> StudyResult:
+    """One condition: solve (or re-use the solve of an equal geometry) and judge."""
+    key = geometry_key(case)
+    if key not in units:
+        units[key] = solve_geometry(case, progress, estimate_error)
+    unit = units[key]
     segments, solution = unit.segments, unit.solution
     fault = case.fault
     df = decrement_factor(fault.x_over_r, fault.frequency, fault.clearing_time)

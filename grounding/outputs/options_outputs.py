@@ -26,7 +26,16 @@ def _v(x: float) -> str:
 def _verdicts(o: Option) -> str:
     r = o.result
     flags = [("T", r.touch_ok), ("S", r.step_ok), ("M", r.mesh_ok), ("C", r.conductor.ok)]
+    if r.separate:
+        flags.append(("X", r.separate_ok))
     return " ".join(f"{k}:{'ok' if ok else ('—' if ok is None else 'FAIL')}" for k, ok in flags)
+
+
+def _governing(o: Option) -> str:
+    """Names of the governing scenarios of touch and step ('' without scenarios)."""
+    r = o.result
+    names = list(dict.fromkeys(n for n in (r.touch_check.scenario, r.step_check.scenario) if n))
+    return " / ".join(names)
 
 
 def _cost(o: Option) -> str:
@@ -45,6 +54,8 @@ def compare_table(options: list[Option], best: int | None, reason: str) -> str:
         ("  limit / margin", [f"{o.result.tolerable_step:,.0f} V / {o.step_margin * 100:+.0f}%" for o in options]),
         ("Worst mesh", [_v(o.result.mesh_check.worst.value) if o.result.mesh_check.worst else "—" for o in options]),
         ("Verdicts", [_verdicts(o) for o in options]),
+        *([("Worst scenario", [_governing(o) or "—" for o in options])]
+          if any(o.result.scenarios for o in options) else []),
         ("All pass", ["yes" if o.passes else "NO" for o in options]),
         ("Conductor", [f"{o.quantities.conductor_length_m:,.0f} m" for o in options]),
         ("Rods", [f"{o.quantities.rod_count} / {o.quantities.rod_length_m:,.0f} m" for o in options]),
@@ -61,7 +72,8 @@ def compare_table(options: list[Option], best: int | None, reason: str) -> str:
     for name, cells in rows:
         out.append(f"{name:<18}" + "".join(f"{c:>{width}}" for c in cells))
     out.append("")
-    out.append("T touch, S step, M mesh, C conductor size.")
+    out.append("T touch, S step, M mesh, C conductor size, X touch near separate electrodes; values are those of "
+               "the worst scenario where the case lists scenarios (every scenario must pass).")
     out.append(f"Winner: option {best + 1} ({options[best].label}): {reason}." if best is not None
                else f"No winner: {reason}.")
     return "\n".join(out)
@@ -69,16 +81,21 @@ def compare_table(options: list[Option], best: int | None, reason: str) -> str:
 
 def sweep_table(options: list[Option]) -> str:
     """A row per option, passing ones marked."""
+    scen = any(o.result.scenarios for o in options)
     head = f"{'#':>4}  {'pass':<4} {'Rg Ω':>8} {'touch V':>9} {'margin':>7} {'step V':>8} {'margin':>7} " \
-           f"{'metal kg':>9} {'cost':>10}  settings"
+           f"{'mesh V':>8} {'metal kg':>9} {'cost':>10}  " + ("worst scenario  " if scen else "") + "settings"
     out = [head, "-" * len(head)]
     for i, o in enumerate(options, start=1):
+        mesh = o.result.mesh_check.worst
         out.append(f"{i:>4}  {'✓' if o.passes else '✗':<4} {o.result.grid_resistance:8.4f} "
                    f"{o.result.worst_touch:9,.0f} {o.touch_margin * 100:+6.0f}% "
                    f"{o.result.worst_step:8,.0f} {o.step_margin * 100:+6.0f}% "
-                   f"{o.quantities.mass_kg:9,.0f} {_cost(o):>10}  {o.label}")
+                   f"{(f'{mesh.value:,.0f}' if mesh else '—'):>8} "
+                   f"{o.quantities.mass_kg:9,.0f} {_cost(o):>10}  " + (f"{_governing(o)[:15]:<16}" if scen else "")
+                   + o.label)
     n = sum(o.passes for o in options)
-    out.append(f"{n} of {len(options)} options pass every criterion.")
+    out.append(f"{n} of {len(options)} options pass every criterion"
+               + (" in every scenario (values: the worst scenario)." if scen else "."))
     return "\n".join(out)
 
 

@@ -125,8 +125,11 @@ def _verdict_rows(r: StudyResult):
                          "no closed mesh" if check.ok is None else "not evaluated"])
             continue
         w = check.worst
+        where = f"({w.x:.1f}, {w.y:.1f})" + (f" {check.zone}" if several else "")
+        if check.scenario:
+            where += f"; {check.scenario}"
         rows.append([name, _v(w.value), _v(check.limit), _margin(w.value, check.limit), _verdict(check.ok),
-                     f"({w.x:.1f}, {w.y:.1f})" + (f" {check.zone}" if several else "")])
+                     Paragraph(where, _styles()["small"])])
     for e in r.separate:
         t = e.touch
         rows.append([f"Touch, {e.name}"[:28], _v(t.worst.value) if t.worst else "—", _v(t.limit),
@@ -160,6 +163,21 @@ def _zone_rows(r: StudyResult):
                      f"{_v(e.touch.value) if e.touch else '—'} / {_v(z.tolerable_touch)}",
                      f"{_v(e.step.value) if e.step else '—'} / {_v(z.tolerable_step)}",
                      _v(e.mesh.value) if e.mesh else "—", _verdict(all(oks)) if oks else "n/a"])
+    return rows
+
+
+def _scenario_rows(r: StudyResult):
+    def short(check):
+        if check.worst is None:
+            return "—" if check.ok is None else "not evaluated"
+        return f"{_v(check.worst.value)} / {_v(check.limit)}"
+
+    rows = [["Scenario", "Replaces", "Rg", "GPR", "Touch / limit", "Step / limit", "Mesh / limit", "All"]]
+    over = {sc.name: ", ".join(sc.overrides) for sc in r.case.scenarios}
+    for x in r.scenarios:
+        rows.append([x.scenario[:20], over.get(x.scenario, "—"), f"{x.grid_resistance:.3f} Ω",
+                     _v(x.ground_potential_rise), short(x.touch_check), short(x.step_check), short(x.mesh_check),
+                     _verdict(x.passes)])
     return rows
 
 
@@ -344,6 +362,12 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                      [40 * mm, 30 * mm, 100 * mm], st),
               P("3.2  Touch, step and mesh voltages", "h2"),
               _table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4)]
+    if r.scenarios:
+        story += [P("Scenarios: conditions the layout must all pass (seasons, a wet surface layer, a future fault "
+                    "level); the table above gives the governing scenario of each criterion. Maps and figures show "
+                    f"the case as written ('{r.scenario}').", "small"),
+                  _table(_scenario_rows(r), [26 * mm, 22 * mm, 16 * mm, 17 * mm, 27 * mm, 27 * mm, 23 * mm, 12 * mm],
+                         st, verdict_col=7), Spacer(1, 2 * mm)]
     if len(r.zones) > 1:
         story += [P("Per zone: each criterion is judged in every zone against the limit of people standing there; "
                     "a step belongs to the zone of its foot with the lower limit.", "small"),

@@ -66,15 +66,17 @@ def _separate(r: StudyResult) -> list[dict]:
              "transferred_voltage_v": _num(e.transferred_voltage), "transferred_at": _at(e.transferred)} for e in r.separate]
 
 
+def _overrides(c, name: str) -> tuple[str, ...]:
+    return next((sc.overrides for sc in c.scenarios if sc.name == name), ())
+
+
 def _contours(r: StudyResult) -> list[dict]:
     return [{"level_v": _num(level), "lines": [[[_num(x, 7), _num(y, 7)] for x, y in line] for line in lines]}
             for level, lines in r.contours]
 
 
-def results_dict(r: StudyResult) -> dict:
-    """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named)."""
-    s = r.surface
-    c = r.case
+def _summary(r: StudyResult) -> dict:
+    """The summary block of one result (for a combined result: the governing scenario's checks)."""
     t, st, me = r.touch_check, r.step_check, r.mesh_check
     summary = {
         "grid_resistance_ohm": _num(r.grid_resistance),
@@ -101,6 +103,17 @@ def results_dict(r: StudyResult) -> dict:
         "segments": len(r.segments),
         "electrode_length_m": _num(r.segments.total_length),
     }
+    return summary
+
+
+def results_dict(r: StudyResult) -> dict:
+    """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named)."""
+    s = r.surface
+    c = r.case
+    summary = _summary(r)
+    if r.scenarios:
+        summary["governing_scenario"] = {"touch": r.touch_check.scenario, "step": r.step_check.scenario,
+                                         "mesh": r.mesh_check.scenario if r.mesh_check.worst else None}
     probes = [{"x": _num(x), "y": _num(y), "surface_potential_v": _num(v), "touch_voltage_v": _num(t)}
               for (x, y), v, t in zip(c.probes, s.probe_potential, r.probe_touch_voltages())]
     simp = r.simplified
@@ -128,6 +141,8 @@ def results_dict(r: StudyResult) -> dict:
             "tolerable_step_voltage_v": {str(w): _num(v) for w, v in r.limits.step.items()},
         },
         "soil": _soil(c),
+        "scenarios": [{"name": x.scenario, "overrides": list(_overrides(c, x.scenario)), "summary": _summary(x),
+                       "scenario_s": _num(x.timings.get("scenario_s"), 4)} for x in r.scenarios],
         "separate_electrodes": _separate(r),
         "contours": _contours(r),
         "probes": probes,

@@ -84,8 +84,11 @@ def safety_lines(r: StudyResult) -> list[str]:
             why = "no closed mesh" if check.ok is None else "NOT EVALUATED (no map point)"
             return f"  {name:<18}{'—':>10}{_volts(check.limit):>12}{'':>9}  {_verdict(check.ok):<8}{why}"
         margin = check.margin * 100
+        where = [check.zone] if several else []
+        if check.scenario:
+            where.append(f"scenario '{check.scenario}'")
         return (f"  {name:<18}{_volts(check.worst.value):>10}{_volts(check.limit):>12}{margin:>8.0f}%  "
-                f"{_verdict(check.ok):<8}{_at(check.worst)}" + (f"  {check.zone}" if several else ""))
+                f"{_verdict(check.ok):<8}{_at(check.worst)}" + (f"  {', '.join(where)}" if where else ""))
 
     out.append(line("Touch voltage", r.touch_check))
     out.append(line("Step voltage", r.step_check))
@@ -119,6 +122,8 @@ def safety_lines(r: StudyResult) -> list[str]:
             if e.transferred_voltage is not None:
                 out.append(f"      transferred: up to {_volts(e.transferred_voltage)} between the metal (remote earth) "
                            f"and the ground within reach, at {_at(e.transferred)}")
+    if r.scenarios:
+        out.extend(scenario_lines(r))
     if not r.passes:
         out.append("  !! At least one criterion FAILS: the layout is not safe as modelled.")
     thin = [name for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check))
@@ -129,6 +134,25 @@ def safety_lines(r: StudyResult) -> list[str]:
     if r.contours:
         out.append("  Potential contours: " + "; ".join(
             f"{_volts(level)}: {len(lines)} line(s)" for level, lines in r.contours))
+    return out
+
+
+def _short(check) -> str:
+    if check.worst is None:
+        return "—" if check.ok is None else "not evaluated"
+    return f"{_volts(check.worst.value)}/{_volts(check.limit)} {_verdict(check.ok)}"
+
+
+def scenario_lines(r: StudyResult) -> list[str]:
+    """One line per scenario: Rg, GPR and each criterion against its limit; the worst govern the verdicts."""
+    out = ["  Scenarios (conditions the layout must all pass; the verdicts above are the worst of them):",
+           f"    {'scenario':<18}{'Rg':>9}{'GPR':>10}  {'touch':<22}{'step':<22}{'mesh':<22}all"]
+    for s in r.scenarios:
+        out.append(f"    {s.scenario[:17]:<18}{s.grid_resistance:>7.3f} Ω{_volts(s.ground_potential_rise):>10}  "
+                   f"{_short(s.touch_check):<22}{_short(s.step_check):<22}{_short(s.mesh_check):<22}"
+                   f"{'PASS' if s.passes else 'FAIL'}")
+    times = ", ".join(f"{s.scenario} {s.timings.get('scenario_s', 0.0):.2f} s" for s in r.scenarios)
+    out.append(f"    time per scenario (solves shared where the soil and geometry are equal): {times}")
     return out
 
 

@@ -74,12 +74,15 @@ class Check:
         mesh voltage of a layout without closed meshes.
     zone : str
         Name of the governing zone.
+    scenario : str
+        Name of the governing scenario (empty without scenarios).
     """
 
     worst: Extreme | None
     limit: float
     ok: bool | None
     zone: str
+    scenario: str = ""
 
     @property
     def margin(self) -> float | None:
