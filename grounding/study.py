@@ -27,7 +27,8 @@ from .safety.simplified import SimplifiedResult, simplified_method
 from .safety.site import Check, SeparateResult, ZoneVerdict, governing, separate_result, zone_limits
 from .soil import SoilKernel, make_kernel
 from .solve import Solution, solve_equipotential
-from .surface import SeparateMetal, SurfaceResult, Zoning, contour_lines, map_axes, surface_fields
+from .surface import (Extreme, SeparateMetal, SurfacePotential, SurfaceResult, ZoneExtremes, Zoning, contour_lines,
+                      map_axes, step_at, surface_fields)
 
 Progress = Callable[[str, float], None]
 
@@ -226,16 +227,37 @@ def separate_metal(case: Case, segments: Segments, solution: Solution) -> tuple[
     return tuple(out)
 
 
-def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int) -> DiscretizationError:
-    """Second solve at twice the segment length (about an eighth of the cost) and Richardson's estimate."""
+def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int,
+                                  surface: SurfaceResult | None = None) -> tuple[DiscretizationError, SurfaceResult | None]:
+    """Second solve at twice the segment length (about an eighth of the cost) and Richardson's estimate
+    of the error of Rg; with the unit ``surface`` of the fine solve, also the worst voltages of every zone
+    re-evaluated at the same points from the coarse solve (``Extreme.segment_check``)."""
     coarse_case = replace(case, discretization=Discretization(2 * case.discretization.max_segment))
-    segments, _, coarse, _ = _solve(coarse_case)
+    segments, kernel, coarse, _ = _solve(coarse_case)
     if len(segments) == fine_segments:
         return DiscretizationError(coarse.resistance, None, None,
                                    "not estimated: doubling max_segment does not change the segments "
-                                   "(conductor pieces between junctions are already shorter)")
+                                   "(conductor pieces between junctions are already shorter)"), surface
     est = abs(fine.resistance - coarse.resistance) / (2 ** CONVERGENCE_ORDER - 1)
-    return DiscretizationError(coarse.resistance, est, est / fine.resistance)
+    error = DiscretizationError(coarse.resistance, est, est / fine.resistance)
+    if surface is None:
+        return error, None
+    potential = SurfacePotential(segments, coarse.currents_per_volt, kernel)
+    ratio = coarse.resistance / fine.resistance               # the coarse GPR per fine GPR at the same IG
+    step_len = case.surface.step_distance
+
+    def check(ext: Extreme | None, kind: str) -> Extreme | None:
+        if ext is None:
+            return None
+        if kind == "step":
+            value = step_at(potential, ext.x, ext.y, step_len)
+        else:
+            value = 1.0 - float(potential(np.array([[ext.x, ext.y]]))[0])
+        return replace(ext, segment_check=ratio * value)
+
+    zones = tuple(ZoneExtremes(check(z.touch, "touch"), check(z.step, "step"), check(z.mesh, "mesh"))
+                  for z in surface.zones)
+    return error, replace(surface, zones=zones)
 
 
 @dataclass(frozen=True)
@@ -290,7 +312,7 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
                              metal=separate_metal(case, segments, solution))
     timings["surface_s"] = time.perf_counter() - t0
     if estimate_error:
-        error = estimate_discretization_error(case, solution, len(segments))
+        error, surface = estimate_discretization_error(case, solution, len(segments), surface)
     else:
         error = DiscretizationError(None, None, None, "not requested")
     return UnitStudy(segments, kernel, solution, surface, error, timings)

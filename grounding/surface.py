@@ -8,7 +8,7 @@ a point and the points one step away; mesh voltage the largest touch voltage ins
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable
 
 import numpy as np
@@ -180,15 +180,33 @@ def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geome
 
 @dataclass(frozen=True)
 class Extreme:
-    """A maximum over the surface: value (V) and location (x, y in m)."""
+    """A maximum over the surface: value (V) and location (x, y in m).
+
+    ``map_check`` is the same maximum found from a map of twice the spacing, and ``segment_check`` the
+    value at the same point from the solve at twice the segment length (both V; None when not made):
+    the two sources of discretisation error of the value.
+    """
 
     value: float
     x: float
     y: float
+    map_check: float | None = None
+    segment_check: float | None = None
 
     def scaled(self, factor: float) -> "Extreme":
         """The same point with the value multiplied by ``factor``."""
-        return Extreme(self.value * factor, self.x, self.y)
+        def sc(v):
+            return None if v is None else v * factor
+        return Extreme(self.value * factor, self.x, self.y, sc(self.map_check), sc(self.segment_check))
+
+    def error(self, order: float = 1.0) -> float | None:
+        """Estimated discretisation error of the value, V: |value − segment_check| / (2^order − 1) (Richardson,
+        convergence order ``order`` in the segment length) plus |value − map_check| (map spacing);
+        None when neither check was made."""
+        if self.map_check is None and self.segment_check is None:
+            return None
+        seg = 0.0 if self.segment_check is None else abs(self.value - self.segment_check) / (2 ** order - 1)
+        return seg + (0.0 if self.map_check is None else abs(self.value - self.map_check))
 
 
 @dataclass(frozen=True)
@@ -374,18 +392,19 @@ class Zoning:
 #: Most points sampled along the edge of an area when searching its worst point.
 MAX_EDGE_POINTS = 20_000
 #: Zoom search for a local maximum: points per side of each patch, and zoom levels.
-ZOOM_POINTS = 9
-ZOOM_LEVELS = 3
+ZOOM_POINTS = 7
+ZOOM_LEVELS = 4
 
 
-def _refine(field, x0: float, y0: float, half_width: float, accept) -> tuple[float, float, float]:
+def _refine(field, x0: float, y0: float, half_width: float, accept, points: int = ZOOM_POINTS,
+            levels: int = ZOOM_LEVELS) -> tuple[float, float, float]:
     """Local maximum of ``field`` (vectorised over (M, 2) points) near (x0, y0) by a zoom search: a patch of
-    ZOOM_POINTS² points over ±half_width, then patches a quarter the size around the best point,
+    ZOOM_POINTS² points over ±half_width, then patches a third the size around the best point,
     ZOOM_LEVELS times; only points where ``accept(x, y)`` (vectorised) count. Returns (value, x, y)."""
     best = (float(field(np.array([[x0, y0]]))[0]), x0, y0)
     half = half_width
-    offsets = np.linspace(-1.0, 1.0, ZOOM_POINTS)
-    for _ in range(ZOOM_LEVELS):
+    offsets = np.linspace(-1.0, 1.0, points)
+    for _ in range(levels):
         gx, gy = np.meshgrid(best[1] + half * offsets, best[2] + half * offsets)
         px, py = gx.ravel(), gy.ravel()
         ok = accept(px, py)
@@ -394,7 +413,7 @@ def _refine(field, x0: float, y0: float, half_width: float, accept) -> tuple[flo
             k = int(np.argmax(values))
             if values[k] > best[0]:
                 best = (float(values[k]), float(px[ok][k]), float(py[ok][k]))
-        half /= 4.0
+        half /= (points - 1) / 2
     return best
 
 
@@ -402,7 +421,7 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
                    surface: SurfaceMap, probes: tuple[tuple[float, float], ...] = (),
                    options: AssemblyOptions = AssemblyOptions(),
                    progress: Progress | None = None, zoning: Zoning | None = None,
-                   metal: tuple[SeparateMetal, ...] = ()) -> SurfaceResult:
+                   metal: tuple[SeparateMetal, ...] = (), check_map: bool = True) -> SurfaceResult:
     """Map the surface and find the worst touch, step and mesh voltages, zone by zone.
 
     Parameters
@@ -424,6 +443,9 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     metal : sequence of SeparateMetal
         Separate electrodes whose touch voltages |V_metal − V_surface| within ``surface.touch_reach``
         are wanted.
+    check_map : bool
+        Also search every zone's worst touch, step and mesh voltage on a map of twice the spacing
+        (``Extreme.map_check``).
     """
     zoning = zoning or Zoning()
     x, y = map_axes(segments, surface)
@@ -440,12 +462,22 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     in_mesh = shapely.contains_xy(meshes, X, Y) if not meshes.is_empty else np.zeros_like(in_area)
     grid = (X, Y, surface.resolution)
 
+    # the same searches on every other map point (twice the spacing) measure what the map spacing hides
+    coarse = np.zeros(X.shape, bool)
+    coarse[::2, ::2] = True
+    grid2 = (X, Y, 2 * surface.resolution)
+
     def worst_main(region, mask, k):
-        return _worst_place(lambda xy: gpr - potential(xy), gpr - V, mask & (labels == k), grid, region, zoning, k)
+        best = _worst_place(lambda xy: gpr - potential(xy), gpr - V, mask & (labels == k), grid, region, zoning, k)
+        if best is not None and check_map:
+            check = _worst_place(lambda xy: gpr - potential(xy), gpr - V, mask & (labels == k) & coarse, grid2,
+                                 region, zoning, k)
+            best = replace(best, map_check=None if check is None else check.value)
+        return best
 
     zone_touch = [worst_main(area, in_area, k) for k in range(len(zoning))]
     zone_mesh = [worst_main(meshes, in_mesh, k) if in_mesh.any() else None for k in range(len(zoning))]
-    step, zone_step = _step_voltages(x, y, V, surface.step_distance, potential, zoning, labels)
+    step, zone_step = _step_voltages(x, y, V, surface.step_distance, potential, zoning, labels, check_map)
     zones = tuple(ZoneExtremes(t, st, m) for t, st, m in zip(zone_touch, zone_step, zone_mesh))
     max_touch = _largest(zone_touch)
     if max_touch is None:                                  # no touch area at all: nothing to report
@@ -555,9 +587,11 @@ def _better(value: float, x: float, y: float, best: Extreme) -> bool:
     return abs(value - best.value) <= scale and (round(y, 6), round(x, 6)) < (round(best.y, 6), round(best.x, 6))
 
 
-def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray):
+def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray,
+                   check_map: bool = False):
     """Step-voltage map from a bicubic spline of the potential, and the worst step per zone checked
-    exactly. A step belongs to the zone of the foot with the more severe zone."""
+    exactly and refined. A step belongs to the zone of the foot with the more severe zone."""
+    resolution = float(x[1] - x[0]) if len(x) > 1 else 1.0
     spline = RectBivariateSpline(x, y, V.T, kx=3, ky=3)
     X, Y = np.meshgrid(x, y)
     ang = np.pi * np.arange(STEP_DIRECTIONS) / STEP_DIRECTIONS
@@ -577,26 +611,75 @@ def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zonin
             for k in range(nz):
                 per_zone[k] = np.maximum(per_zone[k], np.where(owner == k, dv, 0.0))
     # exact check around the best few map points of each zone: both ends of the step evaluated directly
-    fine = np.pi * np.arange(64) / 64
     out = []
+    coarse = np.zeros(X.shape, bool)
+    coarse[::2, ::2] = True
     for k in range(nz):
         if nz > 1 and not ((labels == k).any() or (per_zone[k] > 0).any()):
             out.append(None)
             continue
-        best = None
-        for c in _top_candidates(per_zone[k], X, Y):
-            px, py = X.ravel()[c], Y.ravel()[c]
-            ends = np.column_stack([np.r_[px, px + step_len * np.cos(fine), px - step_len * np.cos(fine)],
-                                    np.r_[py, py + step_len * np.sin(fine), py - step_len * np.sin(fine)]])
-            v = potential(ends)
-            dv = np.abs(v[1:] - v[0])
-            if nz > 1:
-                owner = zoning.worse(np.full(len(dv), labels.ravel()[c]), zoning.label(ends[1:, 0], ends[1:, 1]))
-                dv = np.where(owner == k, dv, -np.inf)
-                if not np.isfinite(dv).any():
-                    continue
-            value = float(dv.max())
-            if best is None or _better(value, float(px), float(py), best):
-                best = Extreme(value, float(px), float(py))
+        best = _exact_step(per_zone[k], X, Y, step_len, potential, zoning, labels, k, resolution)
+        if best is not None and check_map:
+            check = _exact_step(np.where(coarse, per_zone[k], 0.0), X, Y, step_len, potential, zoning, labels, k,
+                                2 * resolution)
+            best = replace(best, map_check=None if check is None else check.value)
         out.append(best)
     return step, out
+
+
+#: Directions of the exact step check (half circle, each both ways), and of the zoom search for it.
+EXACT_STEP_DIRECTIONS = 64
+REFINE_STEP_DIRECTIONS = 12
+#: Candidates within this share of the best exact value are refined.
+REFINE_SHARE = 0.1
+
+
+def steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None" = None, k: int = 0,
+             directions: int = EXACT_STEP_DIRECTIONS) -> np.ndarray:
+    """Largest potential difference (V) between each point and the points one step away, exactly, over
+    2·``directions`` directions; with ``zoning``, only steps that belong to zone k (the zone of the more
+    severe foot) count (−inf where none does). ``xy`` has shape (M, 2)."""
+    xy = np.atleast_2d(np.asarray(xy, float))
+    ang = np.pi * np.arange(directions) / directions
+    d = step_len * np.concatenate([np.column_stack([np.cos(ang), np.sin(ang)]),
+                                   -np.column_stack([np.cos(ang), np.sin(ang)])])
+    ends = (xy[:, None, :] + d[None, :, :]).reshape(-1, 2)
+    v = potential(np.vstack([xy, ends]))
+    v0, ve = v[:len(xy)], v[len(xy):].reshape(len(xy), len(d))
+    dv = np.abs(ve - v0[:, None])
+    if zoning is not None and len(zoning) > 1:
+        own = zoning.label(xy[:, 0], xy[:, 1])
+        owner = zoning.worse(np.repeat(own, len(d)), zoning.label(ends[:, 0], ends[:, 1])).reshape(dv.shape)
+        dv = np.where(owner == k, dv, -np.inf)
+    return dv.max(axis=1)
+
+
+def step_at(potential, px: float, py: float, step_len: float) -> float:
+    """Largest potential difference (V) between (px, py) and the points one step away (exact)."""
+    return float(steps_at(potential, np.array([[px, py]]), step_len)[0])
+
+
+def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, labels, k: int, resolution: float) -> Extreme | None:
+    """The best few map points of ``values`` checked exactly (both feet evaluated directly); those within
+    REFINE_SHARE of the best refined by a zoom search of the exact step voltage (coarser in direction), and
+    the winner evaluated once more in the full set of directions."""
+    cand = [c for c in _top_candidates(values, X, Y) if values.ravel()[c] > -np.inf]
+    if not cand:
+        return None
+    xy = np.column_stack([X.ravel()[cand], Y.ravel()[cand]])
+    first = steps_at(potential, xy, step_len, zoning, k)
+    if not np.isfinite(first).any():
+        return None
+    best = None
+    for (px, py), v0 in zip(xy, first):
+        if not v0 >= (1 - REFINE_SHARE) * np.max(first):
+            continue
+        _, qx, qy = _refine(lambda p: steps_at(potential, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
+                            float(px), float(py), 0.5 * resolution, lambda x, y: np.ones(np.shape(x), bool),
+                            points=5, levels=5)
+        v = float(steps_at(potential, np.array([[qx, qy]]), step_len, zoning, k)[0])
+        if v < v0:                                          # the coarse-direction search may mislead
+            v, qx, qy = float(v0), float(px), float(py)
+        if np.isfinite(v) and (best is None or _better(v, qx, qy, best)):
+            best = Extreme(v, qx, qy)
+    return best

@@ -99,10 +99,11 @@ def test_symmetric_grid_gives_symmetric_potential(grid_result):
 
 
 def test_step_voltage_checked_exactly(grid_result):
-    """The reported step voltage is evaluated directly at both feet; it must match the spline map
-    to within the map's interpolation error and be the largest."""
+    """The reported step voltage is evaluated directly at both feet and refined between map points: it is
+    at least the spline map's largest value (less the map's interpolation error) and the largest there."""
     s = grid_result.surface
-    assert s.max_step.value == pytest.approx(np.max(s.step), rel=0.03)
+    assert s.max_step.value >= np.max(s.step) * (1 - 0.03)
+    assert s.max_step.value <= np.max(s.step) * 1.10
     r = grid_result
     x, y = s.max_step.x, s.max_step.y
     ang = np.linspace(0, 2 * np.pi, 73)

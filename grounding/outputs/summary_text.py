@@ -76,19 +76,21 @@ def safety_lines(r: StudyResult) -> list[str]:
     if r.case.surface_layer is not None and not r.case.surface_zones:
         out.append("  !! The surface layer is assumed to cover the WHOLE map, also outside the fence. Where people")
         out.append("     stand on native soil the limits are much lower: describe the site with surface_zones.")
-    out.append(f"  {'':<18}{'worst':>10}{'tolerable':>12}{'margin':>9}  {'verdict':<8}at (x, y) m"
+    out.append(f"  {'':<15}{'worst':>10}{'± error':>9}{'tolerable':>11}{'margin':>8}  {'verdict':<9}at (x, y) m"
                + ("  zone" if several else ""))
 
     def line(name, check):
         if check.worst is None:
             why = "no closed mesh" if check.ok is None else "NOT EVALUATED (no map point)"
-            return f"  {name:<18}{'—':>10}{_volts(check.limit):>12}{'':>9}  {_verdict(check.ok):<8}{why}"
+            return f"  {name:<15}{'—':>10}{'':>9}{_volts(check.limit):>11}{'':>8}  {_verdict(check.ok):<9}{why}"
         margin = check.margin * 100
         where = [check.zone] if several else []
         if check.scenario:
             where.append(f"scenario '{check.scenario}'")
-        return (f"  {name:<18}{_volts(check.worst.value):>10}{_volts(check.limit):>12}{margin:>8.0f}%  "
-                f"{_verdict(check.ok):<8}{_at(check.worst)}" + (f"  {', '.join(where)}" if where else ""))
+        err = "" if check.error is None else _volts(check.error)
+        verdict = _verdict(check.ok) + ("?" if check.limit_within_error else "")
+        return (f"  {name:<15}{_volts(check.worst.value):>10}{err:>9}{_volts(check.limit):>11}{margin:>7.0f}%  "
+                f"{verdict:<9}{_at(check.worst)}" + (f"  {', '.join(where)}" if where else ""))
 
     out.append(line("Touch voltage", r.touch_check))
     out.append(line("Step voltage", r.step_check))
@@ -131,6 +133,12 @@ def safety_lines(r: StudyResult) -> list[str]:
     if thin:
         out.append(f"  !! The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat the "
                    "verdict as marginal (soil data, fault data and discretisation are all less certain than that).")
+    inside = [(name, check) for name, check in (("touch", r.touch_check), ("step", r.step_check),
+                                                ("mesh", r.mesh_check)) if check.limit_within_error]
+    for name, check in inside:
+        out.append(f"  !! MARGINAL ({name}): the limit {_volts(check.limit)} lies inside the discretisation error "
+                   f"band {_volts(check.worst.value)} ± {_volts(check.error)} (segments and map spacing): the "
+                   "verdict could flip; refine with --converge.")
     if r.contours:
         out.append("  Potential contours: " + "; ".join(
             f"{_volts(level)}: {len(lines)} line(s)" for level, lines in r.contours))

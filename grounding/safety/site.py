@@ -13,6 +13,10 @@ from ..case import SurfaceZone
 from ..surface import Extreme, ZoneExtremes
 from .ieee80 import Limits, tolerable_limits
 
+#: Convergence order of the worst voltages in the segment length (first order, as measured for Rg and
+#: for the voltages in tests/test_uncertainty.py).
+VOLTAGE_CONVERGENCE_ORDER = 1.0
+
 
 @dataclass(frozen=True)
 class ZoneVerdict:
@@ -88,6 +92,18 @@ class Check:
     def margin(self) -> float | None:
         """(limit − worst) / limit, or None."""
         return None if self.worst is None else (self.limit - self.worst.value) / self.limit
+
+    @property
+    def error(self) -> float | None:
+        """Estimated discretisation error of the worst voltage, V (segments by Richardson's estimate with
+        first-order convergence, plus the change seen with a map of twice the spacing); None if not made."""
+        return None if self.worst is None else self.worst.error(VOLTAGE_CONVERGENCE_ORDER)
+
+    @property
+    def limit_within_error(self) -> bool:
+        """True when the limit lies inside the worst voltage's error band: the verdict could flip."""
+        e = self.error
+        return e is not None and self.worst is not None and abs(self.worst.value - self.limit) <= e
 
 
 def zone_limits(top_soil_resistivity: float, zones: tuple[SurfaceZone, ...], shock_duration: float) -> tuple[Limits, ...]:
