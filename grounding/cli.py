@@ -66,17 +66,19 @@ def main():
 @click.option("--report", "report_file", type=click.Path(dir_okay=False), help="Also write the review report (PDF).")
 @click.option("--plots", "plots_dir", type=click.Path(file_okay=False), help="Also write the figures as PNG files here.")
 @click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write the surface map as CSV.")
+@click.option("--converge", is_flag=True,
+              help="Halve the segments and the map spacing until the worst voltages change by less than 1 %.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
-def study(case_file, json_file, report_file, plots_dir, csv_file, quiet):
+def study(case_file, json_file, report_file, plots_dir, csv_file, converge, quiet):
     """Run a study of CASE (YAML) and print the summary."""
     from .outputs.summary_text import study_summary
-    from .study import run_study
+    from .study import converge_study, run_study
 
     bar = _Bar(enabled=not quiet and sys.stderr.isatty())
     written = []
     try:
         case = load_case(case_file)
-        result = run_study(case, progress=bar)
+        result = converge_study(case, progress=bar)[0] if converge else run_study(case, progress=bar)
         bar.close()
         written = _write_outputs(result, json_file, report_file, plots_dir, csv_file)
     except GroundingError as exc:

@@ -128,7 +128,9 @@ def _verdict_rows(r: StudyResult):
         where = f"({w.x:.1f}, {w.y:.1f})" + (f" {check.zone}" if several else "")
         if check.scenario:
             where += f"; {check.scenario}"
-        rows.append([name, _v(w.value), _v(check.limit), _margin(w.value, check.limit), _verdict(check.ok),
+        value = _v(w.value) + ("" if check.error is None else f" ± {_v(check.error)}")
+        verdict = _verdict(check.ok) + (" ?" if check.limit_within_error else "")
+        rows.append([name, value, _v(check.limit), _margin(w.value, check.limit), verdict,
                      Paragraph(where, _styles()["small"])])
     for e in r.separate:
         t = e.touch
@@ -362,6 +364,10 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                      [40 * mm, 30 * mm, 100 * mm], st),
               P("3.2  Touch, step and mesh voltages", "h2"),
               _table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4)]
+    story.append(P("± : estimated discretisation error of the worst voltage (the solve at twice the segment "
+                   "length re-evaluated at the same point, first-order Richardson estimate, plus the change found "
+                   "with a map of twice the spacing). A verdict marked ? has its limit inside that band: it is "
+                   "marginal and could flip with a finer model.", "small"))
     if r.scenarios:
         story += [P("Scenarios: conditions the layout must all pass (seasons, a wet surface layer, a future fault "
                     "level); the table above gives the governing scenario of each criterion. Maps and figures show "

@@ -66,6 +66,20 @@ def _separate(r: StudyResult) -> list[dict]:
              "transferred_voltage_v": _num(e.transferred_voltage), "transferred_at": _at(e.transferred)} for e in r.separate]
 
 
+def _voltage_error(r: StudyResult) -> dict:
+    """Discretisation-error estimates of the governing worst voltages (V) and what they came from."""
+    out = {}
+    for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check)):
+        w = check.worst
+        out[f"{name}_v"] = _num(check.error)
+        out[f"{name}_segment_check_v"] = None if w is None else _num(w.segment_check)
+        out[f"{name}_map_check_v"] = None if w is None else _num(w.map_check)
+        out[f"{name}_limit_within_error"] = bool(check.limit_within_error)
+    out["method"] = ("|V − V(2h)|/(2^p − 1), p = 1, from the solve at twice the segment length at the same point, "
+                     "plus |V − V(2Δ)| from the searches on a map of twice the spacing")
+    return out
+
+
 def _overrides(c, name: str) -> tuple[str, ...]:
     return next((sc.overrides for sc in c.scenarios if sc.name == name), ())
 
@@ -161,6 +175,13 @@ def results_dict(r: StudyResult) -> dict:
             "discretization_error": {"estimate_ohm": _num(err.estimate_ohm), "relative": _num(err.relative),
                                      "coarse_resistance_ohm": _num(err.coarse_resistance),
                                      "note": err.note or None},
+            "voltage_error": _voltage_error(r),
+            "convergence": None if r.convergence is None else {
+                "converged": r.convergence.converged, "tolerance": r.convergence.tolerance,
+                "note": r.convergence.note,
+                "rounds": [{"max_segment_m": rd.max_segment, "resolution_m": rd.resolution, "segments": rd.segments,
+                            "touch_v": _num(rd.touch), "step_v": _num(rd.step), "mesh_v": _num(rd.mesh)}
+                           for rd in r.convergence.rounds]},
             "solve_relative_residual": _num(r.solution.relative_residual, 3),
             "max_segment_m": c.discretization.max_segment,
             "soil_kernel": r.kernel.describe(),

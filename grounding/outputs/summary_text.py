@@ -214,6 +214,17 @@ def study_summary(r: StudyResult) -> str:
     out.append(_row("Grid current IG", f"{r.grid_current / 1000:.3f} kA", "= Df · Sf · 3I0"))
     out.append(_row("Ground potential rise", _volts(r.ground_potential_rise), "GPR = IG · Rg"))
 
+    if r.convergence is not None:
+        cv = r.convergence
+        out.append(_row("Convergence", "settled" if cv.converged else "NOT SETTLED",
+                        f"tolerance {cv.tolerance * 100:g} % on the worst voltages"))
+        for k, rd in enumerate(cv.rounds, start=1):
+            vals = ", ".join(f"{n} {_volts(v)}" for n, v in (("touch", rd.touch), ("step", rd.step), ("mesh", rd.mesh))
+                             if v is not None)
+            out.append(f"    round {k}: max_segment {rd.max_segment:g} m, map {rd.resolution:g} m, "
+                       f"{rd.segments} segments: {vals}")
+        out.extend(textwrap.wrap(cv.note, WIDTH - 4, initial_indent="    ", subsequent_indent="    "))
+
     out.append(_heading(f"Safety (IEEE Std 80, {r.body_weight} kg, ts = {f.shock_duration:g} s)"))
     out.extend(safety_lines(r))
 
