@@ -27,10 +27,20 @@ class Layer:
 
 
 @dataclass(frozen=True)
+class SoilUncertainty:
+    """Relative 1-σ uncertainty of every layer resistivity and thickness (fractions), given by the user."""
+
+    resistivity: float
+    thickness: float = 0.0
+
+
+@dataclass(frozen=True)
 class Soil:
-    """Horizontally layered soil, top to bottom; one layer means uniform soil."""
+    """Horizontally layered soil, top to bottom; one layer means uniform soil. ``uncertainty`` is the
+    user's relative 1-σ per parameter (None: from the sounding fit, if any)."""
 
     layers: tuple[Layer, ...]
+    uncertainty: SoilUncertainty | None = None
 
     @property
     def is_uniform(self) -> bool:

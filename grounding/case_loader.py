@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .case import Case, Costs, Scenario, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
+from .case import Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
     TouchArea
 from .case_checks import Document, fmt
 from .case_electrodes import ElectrodeSections
@@ -180,7 +180,24 @@ class _CaseReader(ElectrodeSections, SiteSections):
         return Costs(**nums, currency=str(m.get("currency", "")))
 
     def soil(self, value: Any):
-        m = self.mapping("soil", value, ("resistivity", "layers", "readings", "array", "traverse"))
+        m = self.mapping("soil", value, ("resistivity", "layers", "readings", "array", "traverse", "uncertainty"))
+        soil, fit = self._soil_model(m)
+        if "uncertainty" in m:
+            soil = replace(soil, uncertainty=self.soil_uncertainty(m["uncertainty"], len(soil.layers)))
+        return soil, fit
+
+    def soil_uncertainty(self, value: Any, layers: int) -> SoilUncertainty:
+        p = "soil.uncertainty"
+        m = self.mapping(p, value, ("resistivity", "thickness"), ("resistivity",))
+        def rel(key):
+            return self.number(f"{p}.{key}", m[key], "(relative 1-σ, a fraction)", gt=0, lt=1)
+        rho = rel("resistivity")
+        h = rel("thickness") if "thickness" in m else 0.0
+        if "thickness" in m and layers == 1:
+            raise self.doc.fail(f"{p}.thickness", "goes only with layered soil (uniform soil has no thickness)")
+        return SoilUncertainty(rho, h)
+
+    def _soil_model(self, m: dict):
         if "readings" in m:
             if "resistivity" in m:
                 raise self.doc.fail("soil.resistivity", "cannot stand beside soil.readings; give one or the other")

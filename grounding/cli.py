@@ -79,6 +79,10 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, converge, quie
     try:
         case = load_case(case_file)
         result = converge_study(case, progress=bar)[0] if converge else run_study(case, progress=bar)
+        from dataclasses import replace as _replace
+
+        from .uncertainty import propagate_soil_uncertainty
+        result = _replace(result, uncertainty=propagate_soil_uncertainty(result, bar))
         bar.close()
         written = _write_outputs(result, json_file, report_file, plots_dir, csv_file)
     except GroundingError as exc:

@@ -90,6 +90,7 @@ class StudyResult:
     scenario: str = ""
     scenarios: tuple["StudyResult", ...] = ()
     convergence: "Convergence | None" = None
+    uncertainty: object = None
     cautions: tuple[str, ...] = CAUTIONS
 
     @property
@@ -310,7 +311,7 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
     t0 = time.perf_counter()
     surface = surface_fields(segments, solution.currents_per_volt, 1.0, kernel, case.surface, case.probes,
                              progress=progress, zoning=zoning(case),
-                             metal=separate_metal(case, segments, solution))
+                             metal=separate_metal(case, segments, solution), check_map=estimate_error)
     timings["surface_s"] = time.perf_counter() - t0
     if estimate_error:
         error, surface = estimate_discretization_error(case, solution, len(segments), surface)

@@ -8,6 +8,7 @@ a point and the points one step away; mesh voltage the largest touch voltage ins
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, replace
 from typing import Callable
 
@@ -492,6 +493,17 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
                          probe_v, profile, zones, metal_touch)
 
 
+def _distinct(points, resolution: float) -> list[tuple[float, float]]:
+    """The points in order, leaving out any within 1.5 map spacings of one already kept (a zoom search from
+    it would find the same peak)."""
+    kept: list[tuple[float, float]] = []
+    for p in points:
+        p = (float(p[0]), float(p[1]))
+        if all(math.hypot(p[0] - q[0], p[1] - q[1]) > 1.5 * resolution for q in kept):
+            kept.append(p)
+    return kept
+
+
 def _largest(extremes) -> Extreme | None:
     """The largest of some extremes (None entries skipped), ties broken by position."""
     best = None
@@ -536,8 +548,11 @@ def _worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> E
     def accept(px, py):
         return shapely.intersects_xy(region, px, py) & (zoning.label(px, py) == k)
 
+    # best first, so that of two nearby candidates the better one (e.g. an edge point) is the one refined
+    start = field(np.array(candidates_xy, float))
+    order = np.lexsort((np.array(candidates_xy)[:, 0], np.array(candidates_xy)[:, 1], -start))
     best = None
-    for cx, cy in candidates_xy:
+    for cx, cy in _distinct([candidates_xy[i] for i in order], resolution):
         v, px, py = _refine(field, cx, cy, resolution, accept)
         if best is None or _better(v, px, py, best):
             best = Extreme(v, px, py)
@@ -671,8 +686,9 @@ def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, labels, k: in
     if not np.isfinite(first).any():
         return None
     best = None
+    keep = _distinct([tuple(p) for p, v0 in zip(xy, first) if v0 >= (1 - REFINE_SHARE) * np.max(first)], resolution)
     for (px, py), v0 in zip(xy, first):
-        if not v0 >= (1 - REFINE_SHARE) * np.max(first):
+        if (float(px), float(py)) not in keep:
             continue
         _, qx, qy = _refine(lambda p: steps_at(potential, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
                             float(px), float(py), 0.5 * resolution, lambda x, y: np.ones(np.shape(x), bool),

@@ -268,9 +268,43 @@ def profile_figure(r: StudyResult) -> Rendered:
     return Rendered("profile", "Potential profile", fig, float(np.max(p.potential)))
 
 
+def uncertainty_figure(r: StudyResult) -> Rendered | None:
+    """Distribution of the worst touch voltage from the soil uncertainty (log-normal, first order) against
+    the tolerable limit; the area beyond the limit shaded with its probability."""
+    u = r.uncertainty
+    if u is None:
+        return None
+    q = u.quantities["touch"]
+    if q.value is None or not q.sigma_log:
+        return None
+    from scipy.stats import lognorm
+
+    dist = lognorm(s=q.sigma_log, scale=q.value)
+    limit = r.touch_check.limit
+    lo, hi = dist.ppf(1e-4), dist.ppf(1 - 1e-4)
+    lo, hi = min(lo, 0.9 * limit), max(hi, 1.1 * limit)
+    v = np.linspace(lo, hi, 400)
+    fig, ax = plt.subplots(figsize=(FIGSIZE[0], 3.4), dpi=DPI)
+    ax.plot(v, dist.pdf(v), color="#1f3b73", lw=1.5, label="worst touch voltage (soil uncertainty)")
+    above = v >= limit
+    ax.fill_between(v[above], dist.pdf(v[above]), color="#d7301f", alpha=0.35, hatch="////", lw=0,
+                    label=f"beyond the limit: P = {q.probability_exceeds_limit * 100:.1f} %")
+    ax.axvline(limit, color="#d7301f", lw=1.6, ls=(0, (5, 1.5)), label=f"tolerable {limit:,.0f} V")
+    ax.axvline(q.value, color="black", lw=0.8, ls=":", label=f"computed {q.value:,.0f} V")
+    ax.set_xlabel("worst touch voltage (V)")
+    ax.set_ylabel("probability density (1/V)")
+    ax.set_yticks([])
+    ax.legend(fontsize=7, loc="upper right")
+    ax.set_title(f"Worst touch voltage under the soil uncertainty (σ(log) = {q.sigma_log:.3f})", fontsize=10)
+    fig.tight_layout()
+    return Rendered("uncertainty", "Soil uncertainty", fig, q.value)
+
+
 def all_figures(r: StudyResult) -> list[Rendered]:
     """Every figure of a study, in report order."""
-    return [plan_figure(r), potential_figure(r), touch_figure(r), step_figure(r), profile_figure(r)]
+    figs = [plan_figure(r), potential_figure(r), touch_figure(r), step_figure(r), profile_figure(r)]
+    u = uncertainty_figure(r)
+    return figs + ([u] if u is not None else [])
 
 
 def png_bytes(fig: Figure) -> bytes:

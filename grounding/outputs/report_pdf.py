@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import io
+import math
 from pathlib import Path
 
 import matplotlib
@@ -389,6 +390,24 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                 f"50 kg: touch {_v(r.limits.touch[50])}, step {_v(r.limits.step[50])}; "
                 f"70 kg: touch {_v(r.limits.touch[70])}, step {_v(r.limits.step[70])}"
                 + (f" (governing zone {r.touch_check.zone})." if len(r.zones) > 1 else "."))]
+    if r.uncertainty is not None:
+        u = r.uncertainty
+        rows = [["Quantity", "Computed", "1-σ", "P(limit exceeded)"]]
+        labels = {"grid_resistance": "Grid resistance Rg", "ground_potential_rise": "GPR", "touch": "Worst touch",
+                  "step": "Worst step", "mesh": "Worst mesh"}
+        for key, label in labels.items():
+            q = u.quantities[key]
+            if q.value is None or q.sigma is None:
+                continue
+            unit = (lambda v: f"{v:.4f} Ω") if key == "grid_resistance" else _v
+            rows.append([label, unit(q.value), unit(q.sigma),
+                         "" if q.probability_exceeds_limit is None else f"{q.probability_exceeds_limit * 100:.2f} %"])
+        story += [P("Soil uncertainty carried to the verdict", "h2"),
+                  P(f"Parameter uncertainty from {u.source}: " + ", ".join(
+                      f"{n} ± {math.expm1(sg) * 100:.0f} %" for n, sg in zip(u.parameters, u.sigma_log)) + ". "
+                    f"Model: {u.model}. It cost {u.extra_solves} extra solves. This covers the soil parameters "
+                    "only; fault data, the discretisation and the choice of soil model add to it.", "small"),
+                  _table(rows, [45 * mm, 35 * mm, 35 * mm, 40 * mm], st), image("uncertainty", 150 * mm)]
     cc = r.conductor
     story += [P("3.3  Conductor sizing", "h2"),
               P(f"IEEE Std 80 equation for {el.material} with the standard's material constants: the current "

@@ -80,6 +80,24 @@ def _voltage_error(r: StudyResult) -> dict:
     return out
 
 
+def _uncertainty(r: StudyResult) -> dict | None:
+    u = r.uncertainty
+    if u is None:
+        return None
+    keys = {"grid_resistance": "grid_resistance_ohm", "ground_potential_rise": "ground_potential_rise_v",
+            "touch": "max_touch_voltage_v", "step": "max_step_voltage_v", "mesh": "max_mesh_voltage_v"}
+    out = {"source": u.source, "model": u.model, "extra_solves": u.extra_solves, "seconds": _num(u.seconds, 3),
+           "parameters": [{"name": n, "sigma_log": _num(s)} for n, s in zip(u.parameters, u.sigma_log)]}
+    for k, name in keys.items():
+        q = u.quantities[k]
+        entry = {"value": _num(q.value), "sigma": _num(q.sigma), "sigma_log": _num(q.sigma_log),
+                 "sensitivities": [_num(x) for x in q.sensitivities]}
+        if k in ("touch", "step", "mesh"):
+            entry["probability_exceeds_limit"] = _num(q.probability_exceeds_limit)
+        out[name] = entry
+    return out
+
+
 def _overrides(c, name: str) -> tuple[str, ...]:
     return next((sc.overrides for sc in c.scenarios if sc.name == name), ())
 
@@ -157,6 +175,7 @@ def results_dict(r: StudyResult) -> dict:
         "soil": _soil(c),
         "scenarios": [{"name": x.scenario, "overrides": list(_overrides(c, x.scenario)), "summary": _summary(x),
                        "scenario_s": _num(x.timings.get("scenario_s"), 4)} for x in r.scenarios],
+        "uncertainty": _uncertainty(r),
         "separate_electrodes": _separate(r),
         "contours": _contours(r),
         "probes": probes,

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import textwrap
 
 from .. import __version__
@@ -47,6 +48,15 @@ def soil_text(case) -> str:
         return f"uniform, {layers[0].resistivity:.4g} Ω·m"
     parts = [f"{l.resistivity:.4g} Ω·m × {l.thickness:.3g} m" for l in layers[:-1]]
     return f"{len(layers)} layers: " + ", ".join(parts) + f", then {layers[-1].resistivity:.4g} Ω·m"
+
+
+#: A passing criterion whose probability of exceeding its limit is above this is flagged marginal.
+UNLIKELY = 0.05
+
+
+def _alert(text: str) -> list[str]:
+    """A '!!' warning wrapped to the summary width."""
+    return textwrap.wrap(text, WIDTH - 5, initial_indent="  !! ", subsequent_indent="     ")
 
 
 def covering_text(zone) -> str:
@@ -131,14 +141,21 @@ def safety_lines(r: StudyResult) -> list[str]:
     thin = [name for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check))
             if check.margin is not None and abs(check.margin) < MARGINAL]
     if thin:
-        out.append(f"  !! The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat the "
-                   "verdict as marginal (soil data, fault data and discretisation are all less certain than that).")
+        out.extend(_alert(f"The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat "
+                          "the verdict as marginal (soil data, fault data and discretisation are all less certain "
+                          "than that)."))
+    if r.uncertainty is not None:
+        for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check)):
+            p = r.uncertainty.quantities[name].probability_exceeds_limit
+            if check.ok and p is not None and p > UNLIKELY:
+                out.extend(_alert(f"MARGINAL ({name}): it passes as computed, but with the soil uncertainty given "
+                                  f"the probability that the limit is exceeded is {_probability(p)}."))
     inside = [(name, check) for name, check in (("touch", r.touch_check), ("step", r.step_check),
                                                 ("mesh", r.mesh_check)) if check.limit_within_error]
     for name, check in inside:
-        out.append(f"  !! MARGINAL ({name}): the limit {_volts(check.limit)} lies inside the discretisation error "
-                   f"band {_volts(check.worst.value)} ± {_volts(check.error)} (segments and map spacing): the "
-                   "verdict could flip; refine with --converge.")
+        out.extend(_alert(f"MARGINAL ({name}): the limit {_volts(check.limit)} lies inside the discretisation error "
+                          f"band {_volts(check.worst.value)} ± {_volts(check.error)} (segments and map spacing): the "
+                          "verdict could flip; refine with --converge."))
     if r.contours:
         out.append("  Potential contours: " + "; ".join(
             f"{_volts(level)}: {len(lines)} line(s)" for level, lines in r.contours))
@@ -162,6 +179,35 @@ def scenario_lines(r: StudyResult) -> list[str]:
     times = ", ".join(f"{s.scenario} {s.timings.get('scenario_s', 0.0):.2f} s" for s in r.scenarios)
     out.append(f"    time per scenario (solves shared where the soil and geometry are equal): {times}")
     return out
+
+
+def uncertainty_lines(r: StudyResult) -> list[str]:
+    """σ of Rg, GPR and the worst voltages, and the probability that each limit is exceeded."""
+    u = r.uncertainty
+    out = [f"  From {u.source}: " + ", ".join(f"{n} ± {math.expm1(s) * 100:.0f} %"
+                                              for n, s in zip(u.parameters, u.sigma_log)),
+           f"  {'':<22}{'value':>10}{'1-σ':>10}{'P(limit exceeded)':>20}"]
+    names = {"grid_resistance": "Grid resistance Rg", "ground_potential_rise": "GPR", "touch": "Worst touch",
+             "step": "Worst step", "mesh": "Worst mesh"}
+    for key, label in names.items():
+        q = u.quantities[key]
+        if q.value is None or q.sigma is None:
+            continue
+        fmt = (lambda v: f"{v:.3f} Ω") if key == "grid_resistance" else _volts
+        prob = "" if q.probability_exceeds_limit is None else _probability(q.probability_exceeds_limit)
+        out.append(f"  {label:<22}{fmt(q.value):>10}{fmt(q.sigma):>10}{prob:>20}")
+    out.extend(textwrap.wrap(f"Model: {u.model}. Cost: {u.extra_solves} extra solves ({u.seconds:.1f} s). "
+                             "Soil data only: fault data, discretisation and the choice of soil model add to this.",
+                             WIDTH - 4, initial_indent="  ", subsequent_indent="  "))
+    return out
+
+
+def _probability(p: float) -> str:
+    if p < 1e-4:
+        return "< 0.01 %"
+    if p > 1 - 1e-4:
+        return "> 99.99 %"
+    return f"{p * 100:.1f} %"
 
 
 def study_summary(r: StudyResult) -> str:
@@ -227,6 +273,10 @@ def study_summary(r: StudyResult) -> str:
 
     out.append(_heading(f"Safety (IEEE Std 80, {r.body_weight} kg, ts = {f.shock_duration:g} s)"))
     out.extend(safety_lines(r))
+
+    if r.uncertainty is not None:
+        out.append(_heading("Soil uncertainty carried to the verdict"))
+        out.extend(uncertainty_lines(r))
 
     out.append(_heading("Simplified method (IEEE Std 80) beside the numerical result"))
     simp = r.simplified

@@ -60,6 +60,9 @@ class FittedModel:
         log(model) − log(reading) per reading.
     down_weighted : ndarray of bool
         Readings whose residual exceeds 3σ.
+    covariance : ndarray or None
+        Covariance of the log-parameters (log ρ1 … log ρn, log h1 … log h(n−1)) from the Jacobian; None
+        when the readings do not resolve the model.
     """
 
     layers: tuple[LayerEstimate, ...]
@@ -68,6 +71,7 @@ class FittedModel:
     parameters: int
     residuals: np.ndarray
     down_weighted: np.ndarray
+    covariance: np.ndarray | None = None
 
     @property
     def resolved(self) -> bool:
@@ -174,11 +178,12 @@ def _model(readings: Readings, n: int, res, noise: float) -> FittedModel:
             raise np.linalg.LinAlgError
     except np.linalg.LinAlgError:
         sd = np.full(p, np.inf)
+        cov = None
     unc = np.expm1(np.minimum(sd, 50.0))                # relative 1-σ from the log-parameter σ
     layers = tuple(LayerEstimate(float(rho[i]), float(h[i]) if i < n - 1 else None, float(unc[i]),
                                  float(unc[n + i]) if i < n - 1 else None) for i in range(n))
     bic = m * math.log(max(2 * res.cost, 1e-300) / m) + p * math.log(m)
-    return FittedModel(layers, rms, float(bic), p, r, out)
+    return FittedModel(layers, rms, float(bic), p, r, out, cov)
 
 
 def fit_soil(readings: Readings, layers: int | str = "auto") -> SoilFit:

@@ -1,0 +1,162 @@
+"""How sure is the verdict: discretisation error bars on the worst voltages, convergence by refinement,
+and soil uncertainty carried to σ and the probability that a limit is exceeded."""
+
+from __future__ import annotations
+
+import json
+import math
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from grounding.case_loader import parse_case
+from grounding.study import converge_study, refined, run_study
+from grounding.uncertainty import propagate_soil_uncertainty, sample_worst
+
+GRID = """\
+format: 1
+title: error bars
+soil: {{resistivity: 200}}
+surface_layer: {{resistivity: 2500, thickness: 0.1}}
+fault: {{current: {current}, split_factor: 0.6, clearing_time: 0.5}}
+electrodes:
+  grids: [{{origin: [0, 0], size: [30, 24], meshes: [5, 4], depth: 0.5, diameter: 0.01}}]
+  rods: [{{top: [0, 0, 0.5], length: 3, diameter: 0.016}}, {{top: [30, 24, 0.5], length: 3, diameter: 0.016}}]
+discretization: {{max_segment: {h}}}
+surface: {{resolution: {r}}}
+"""
+
+
+def _grid(h, r, current=3000):
+    return parse_case(GRID.format(h=h, r=r, current=current))
+
+
+@pytest.fixture(scope="module")
+def ladder():
+    """The same grid at 2, 1 and 0.5 m segments (map 1, 0.5, 0.25 m), and a reference at 0.25 m / 0.125 m."""
+    return [run_study(_grid(h, r)) for h, r in ((2, 1), (1, 0.5), (0.5, 0.25), (0.25, 0.125))]
+
+
+@pytest.mark.parametrize("crit", ["touch_check", "step_check", "mesh_check"])
+def test_voltage_error_estimates_shrink_and_cover_the_error(ladder, crit):
+    errors = [getattr(r, crit).error for r in ladder[:3]]
+    assert all(e is not None and e > 0 for e in errors)
+    assert errors[2] < errors[0]                                # first-order convergence, as for Rg
+    ref = getattr(ladder[3], crit).worst.value
+    for r in ladder[1:3]:                                       # the estimate covers the true error
+        c = getattr(r, crit)
+        assert abs(c.worst.value - ref) <= 1.5 * c.error + 1e-9 * ref
+
+
+def test_converge_settles_within_one_percent_of_a_finer_reference(ladder):
+    result, conv = converge_study(_grid(2, 1))
+    assert conv.converged and len(conv.rounds) >= 2
+    assert result.convergence is conv
+    ref = ladder[3]
+    for crit in ("touch_check", "step_check", "mesh_check"):
+        assert getattr(result, crit).worst.value == pytest.approx(getattr(ref, crit).worst.value, rel=0.01)
+    assert result.case.discretization.max_segment == conv.rounds[-1].max_segment
+
+
+def test_converge_stops_before_a_model_too_large(monkeypatch):
+    import grounding.study as study
+
+    monkeypatch.setattr(study, "MAX_MAP_POINTS", 3000)            # the next map would exceed this
+    result, conv = converge_study(_grid(2, 1), tolerance=1e-9)
+    assert not conv.converged and "stopped before round" in conv.note
+
+
+def test_limit_inside_the_error_band_is_marginal():
+    """Touch voltage is linear in the fault current: choose the current that puts it on the limit."""
+    probe = run_study(_grid(2, 1))
+    c = probe.touch_check
+    current = 3000 * c.limit / c.worst.value
+    r = run_study(_grid(2, 1, current=current))
+    assert r.touch_check.limit_within_error
+    from grounding.outputs.summary_text import study_summary
+    assert "MARGINAL (touch)" in study_summary(r)
+    assert "±" in study_summary(r)
+
+
+def test_sigma_of_rg_in_uniform_soil_is_sigma_of_rho():
+    """Rg ∝ ρ in uniform soil (any electrode), so σ(Rg) = σ(ρ)·Rg exactly, and every voltage moves with ρ."""
+    case = parse_case(GRID.format(h=2, r=1, current=3000).replace("soil: {resistivity: 200}",
+                                                                  "soil: {resistivity: 200, uncertainty: {resistivity: 0.15}}"))
+    r = run_study(case, estimate_error=False)
+    u = propagate_soil_uncertainty(r)
+    q = u.quantities["grid_resistance"]
+    assert q.sigma == pytest.approx(0.15 * r.grid_resistance, rel=1e-9)
+    assert q.sensitivities[0] == pytest.approx(1.0, rel=1e-9)
+    assert u.extra_solves == 1
+
+
+MC_CASE = """\
+format: 1
+title: monte carlo
+soil:
+  layers: [{resistivity: 300, thickness: 1.5}, {resistivity: 80}]
+  uncertainty: {resistivity: 0.2, thickness: 0.3}
+surface_layer: {resistivity: 2500, thickness: 0.1}
+fault: {current: 90, split_factor: 1, clearing_time: 0.5}
+electrodes:
+  conductors: [{start: [0, 0, 0.5], end: [6, 0, 0.5], diameter: 0.01}]
+  rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}, {top: [6, 0, 0.5], length: 3, diameter: 0.016}]
+discretization: {max_segment: 1.0}
+surface: {resolution: 1.0, margin: 2}
+"""
+
+
+def test_linear_propagation_against_monte_carlo():
+    """First-order propagation against a Monte Carlo of 200 full studies (numpy's generator, seed 1): the
+    probability that the touch limit is exceeded within 0.05, σ(log) of Rg and the worst voltages within 10 %."""
+    case = parse_case(MC_CASE)
+    r = run_study(case, estimate_error=False)
+    u = propagate_soil_uncertainty(r)
+    assert u.extra_solves == 3
+    mc = sample_worst(case, 200, seed=1)
+    for key in ("touch", "step"):
+        p_mc = float(np.mean(mc[f"{key}_ratio"] > 1))
+        assert u.quantities[key].probability_exceeds_limit == pytest.approx(p_mc, abs=0.05)
+    assert 0.2 < u.quantities["touch"].probability_exceeds_limit < 0.9      # a discriminating case
+    for key in ("grid_resistance", "touch", "step"):
+        assert u.quantities[key].sigma_log == pytest.approx(float(np.std(np.log(mc[key]))), rel=0.10)
+
+
+@pytest.mark.parametrize("value", ["0", "1", "-0.1", "1.5"])
+def test_bad_uncertainty_one_line_exit_2(tmp_path, value):
+    path = tmp_path / "u.yaml"
+    path.write_text(MC_CASE.replace("uncertainty: {resistivity: 0.2, thickness: 0.3}",
+                                    f"uncertainty: {{resistivity: {value}, thickness: 0.3}}"))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2
+    lines = run.stderr.strip().splitlines()
+    assert len(lines) == 1 and "soil.uncertainty.resistivity" in lines[0], run.stderr
+
+
+def test_study_json_carries_error_bars_and_uncertainty(tmp_path):
+    path = tmp_path / "u.yaml"
+    path.write_text(MC_CASE)
+    out = tmp_path / "r.json"
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "study", str(path), "--quiet", "--json", str(out)],
+                         capture_output=True, text=True)
+    assert run.returncode == 0, run.stderr
+    doc = json.loads(out.read_text())
+    ve = doc["diagnostics"]["voltage_error"]
+    assert ve["touch_v"] is not None and ve["step_v"] is not None
+    u = doc["uncertainty"]
+    assert u["extra_solves"] == 3
+    for key in ("grid_resistance_ohm", "ground_potential_rise_v"):
+        assert u[key]["sigma"] > 0
+    for key in ("max_touch_voltage_v", "max_step_voltage_v"):
+        assert 0 <= u[key]["probability_exceeds_limit"] <= 1
+    assert "P(limit exceeded)" in run.stdout and "extra solves" in run.stdout
+
+
+def test_refined_case_refines_every_scenario():
+    case = parse_case(GRID.format(h=2, r=1, current=3000) + "scenarios:\n  - {name: dry, soil: {resistivity: 600}}\n")
+    finer = refined(case, 0.5, 0.25)
+    assert finer.scenarios[0].case.discretization.max_segment == 0.5
+    assert finer.scenarios[0].case.surface.resolution == 0.25
+    assert math.isclose(finer.surface.resolution, 0.25)
