@@ -608,6 +608,11 @@ def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zonin
     exactly and refined. A step belongs to the zone of the foot with the more severe zone."""
     resolution = float(x[1] - x[0]) if len(x) > 1 else 1.0
     spline = RectBivariateSpline(x, y, V.T, kx=3, ky=3)
+
+    def smooth(xy):
+        xy = np.atleast_2d(xy)
+        return spline.ev(np.clip(xy[:, 0], x[0], x[-1]), np.clip(xy[:, 1], y[0], y[-1]))
+
     X, Y = np.meshgrid(x, y)
     ang = np.pi * np.arange(STEP_DIRECTIONS) / STEP_DIRECTIONS
     step = np.zeros_like(V)
@@ -633,10 +638,10 @@ def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zonin
         if nz > 1 and not ((labels == k).any() or (per_zone[k] > 0).any()):
             out.append(None)
             continue
-        best = _exact_step(per_zone[k], X, Y, step_len, potential, zoning, labels, k, resolution)
+        best = _exact_step(per_zone[k], X, Y, step_len, potential, zoning, labels, k, resolution, smooth)
         if best is not None and check_map:
             check = _exact_step(np.where(coarse, per_zone[k], 0.0), X, Y, step_len, potential, zoning, labels, k,
-                                2 * resolution)
+                                2 * resolution, smooth)
             best = replace(best, map_check=None if check is None else check.value)
         out.append(best)
     return step, out
@@ -651,6 +656,13 @@ REFINE_SHARE = 0.1
 
 def steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None" = None, k: int = 0,
              directions: int = EXACT_STEP_DIRECTIONS) -> np.ndarray:
+    """See below; ``potential`` is any vectorised function of (M, 2) points (the exact potential, or a
+    spline of the map for a cheap search)."""
+    return _steps_at(potential, xy, step_len, zoning, k, directions)
+
+
+def _steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None" = None, k: int = 0,
+              directions: int = EXACT_STEP_DIRECTIONS) -> np.ndarray:
     """Largest potential difference (V) between each point and the points one step away, exactly, over
     2·``directions`` directions; with ``zoning``, only steps that belong to zone k (the zone of the more
     severe foot) count (−inf where none does). ``xy`` has shape (M, 2)."""
@@ -674,10 +686,13 @@ def step_at(potential, px: float, py: float, step_len: float) -> float:
     return float(steps_at(potential, np.array([[px, py]]), step_len)[0])
 
 
-def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, labels, k: int, resolution: float) -> Extreme | None:
+def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, labels, k: int, resolution: float,
+                smooth=None) -> Extreme | None:
     """The best few map points of ``values`` checked exactly (both feet evaluated directly); those within
-    REFINE_SHARE of the best refined by a zoom search of the exact step voltage (coarser in direction), and
-    the winner evaluated once more in the full set of directions."""
+    REFINE_SHARE of the best refined by a zoom search of the step voltage on ``smooth`` (a bicubic spline of
+    the map; the exact potential when None), and the point found evaluated exactly in the full set of
+    directions (kept only if it beats the map point)."""
+    search = potential if smooth is None else smooth
     cand = [c for c in _top_candidates(values, X, Y) if values.ravel()[c] > -np.inf]
     if not cand:
         return None
@@ -690,7 +705,7 @@ def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, labels, k: in
     for (px, py), v0 in zip(xy, first):
         if (float(px), float(py)) not in keep:
             continue
-        _, qx, qy = _refine(lambda p: steps_at(potential, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
+        _, qx, qy = _refine(lambda p: steps_at(search, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
                             float(px), float(py), 0.5 * resolution, lambda x, y: np.ones(np.shape(x), bool),
                             points=5, levels=5)
         v = float(steps_at(potential, np.array([[qx, qy]]), step_len, zoning, k)[0])

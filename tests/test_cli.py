@@ -113,7 +113,7 @@ def test_unwritable_json_path_is_a_clean_error(small_case, tmp_path):
     assert res.exit_code == 2 and "does not exist" in res.output
 
 
-@pytest.mark.parametrize("name", ["kestrel-bend-uniform.yaml", "kestrel-bend-two-layer.yaml",
+@pytest.mark.parametrize("name", ["kestrel-bend-uniform.yaml", "kestrel-bend-two-layer.yaml", "kestrel-bend-seasons.yaml",
                                   "kestrel-bend-fence-isolated.yaml", "kestrel-bend-fence-bonded.yaml"])
 def test_demo_cases_are_valid(name):
     res = run("check", ROOT / "cases" / name)

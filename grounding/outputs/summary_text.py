@@ -106,7 +106,8 @@ def safety_lines(r: StudyResult) -> list[str]:
     out.append(line("Step voltage", r.step_check))
     out.append(line("Mesh voltage", r.mesh_check))
     if several:
-        out.append("  Per zone (worst in the zone / the zone's limit):")
+        out.append("  Per zone (worst in the zone / the zone's limit)"
+                   + (f", case as written ('{r.scenario}'):" if r.scenarios else ":"))
         for z in r.zones:
             parts = []
             for crit, limit in (("touch", z.tolerable_touch), ("step", z.tolerable_step), ("mesh", z.tolerable_touch)):
@@ -119,7 +120,7 @@ def safety_lines(r: StudyResult) -> list[str]:
         out.append(f"  Limits for {other} kg: touch {_volts(r.limits.touch[other])}, step {_volts(r.limits.step[other])}")
     if r.separate:
         out.append("  Separate electrodes (touch = |metal potential − surface potential| within "
-                   f"{r.case.surface.touch_reach:g} m):")
+                   f"{r.case.surface.touch_reach:g} m)" + (f", case as written ('{r.scenario}'):" if r.scenarios else ":"))
         for e in r.separate:
             t = e.touch
             net = "net current 0 (floating)" if e.connection == "floating" else f"net {e.net_current / 1000:+.3f} kA"
