@@ -106,3 +106,30 @@ def test_sloping_conductors_three_layers_collapse_to_two_layer_solver():
     three = resistance(SLOPED, 0.5, soil="{layers: [{resistivity: 300, thickness: 1.0}, {resistivity: 60, "
                                          "thickness: 30}, {resistivity: 60}]}")
     assert three == pytest.approx(two, rel=3e-4)
+
+
+def test_high_contrast_two_layer_uses_the_hankel_kernel_with_bounded_memory():
+    """Rock under thin soil (K → 1): the image series would need ~10^5 orders (an 18 GiB table was seen);
+    the Hankel-transform kernel takes over above MAX_IMAGE_ORDERS, and agrees with the series where both run
+    (K = 0.977: the image series of Sunde/Tagg against the Hankel transform, the same physics two ways)."""
+    from grounding.assembly import AssemblyOptions, assemble
+    from grounding.case_loader import parse_case
+    from grounding.geometry import segment
+    from grounding.soil import LayeredSoil, TwoLayerSoil, make_kernel
+    from grounding.solve import solve_equipotential
+    from tests.conftest import case_text
+
+    grid = "grids: [{origin: [0, 0], size: [20, 20], meshes: [4, 4], depth: 0.5, diameter: 0.01}]\n"
+
+    def rg(rho2, kernel=None):
+        case = parse_case(case_text(grid, soil=f"{{layers: [{{resistivity: 10, thickness: 1.0}}, {{resistivity: {rho2}}}]}}"))
+        s = segment(case)
+        k = kernel or make_kernel(case.soil, 1.0)
+        return solve_equipotential(assemble(s, k, AssemblyOptions())).resistance, k
+
+    series, k1 = rg(850)
+    hankel, _ = rg(850, LayeredSoil([10, 850], [1.0]))
+    assert isinstance(k1, TwoLayerSoil)
+    assert series == pytest.approx(hankel, rel=2e-5)
+    r, k2 = rg(100000)
+    assert isinstance(k2, LayeredSoil) and np.isfinite(r) and r > series

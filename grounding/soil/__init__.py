@@ -7,17 +7,21 @@ import math
 from ..case import Soil
 from .base import ImageTerms, RadialTable, SoilKernel
 from .layered import LayeredSoil
-from .two_layer import TwoLayerSoil
+from .two_layer import TwoLayerSoil, series_order
 from .uniform import UniformSoil
 
 #: Relative truncation tolerance of image series.
 SERIES_TOLERANCE = 1e-6
+#: Above this many image orders (|K| near 1: rock under thin soil, or the reverse) the image series needs
+#: memory and time out of all proportion; two layers then use the Hankel-transform kernel of N layers.
+MAX_IMAGE_ORDERS = 1000
 #: Images closer than this many segment lengths are integrated exactly over segments.
 EXACT_IMAGE_REACH = 3.0
 
 
 def make_kernel(soil: Soil, max_segment: float = 1.0, tolerance: float = SERIES_TOLERANCE) -> SoilKernel:
-    """The kernel for a soil model: closed form for uniform soil, the image series for two layers,
+    """The kernel for a soil model: closed form for uniform soil, the image series for two layers (the
+    Hankel transform when |K| is so near 1 that the series would need more than MAX_IMAGE_ORDERS orders),
     the tabulated Hankel transform for three or more.
 
     Parameters
@@ -32,11 +36,16 @@ def make_kernel(soil: Soil, max_segment: float = 1.0, tolerance: float = SERIES_
     layers = soil.layers
     if soil.is_uniform:
         return UniformSoil(layers[0].resistivity)
-    if len(layers) == 2:
+    if len(layers) == 2 and series_order(_reflection(layers), tolerance) <= MAX_IMAGE_ORDERS:
         h = layers[0].thickness
         near = max(1, math.ceil(EXACT_IMAGE_REACH * max_segment / (2 * h)))
         return TwoLayerSoil(layers[0].resistivity, layers[1].resistivity, h, tolerance, near)
     return LayeredSoil([l.resistivity for l in layers], [l.thickness for l in layers[:-1]])
+
+
+def _reflection(layers) -> float:
+    """K = (ρ2 − ρ1)/(ρ2 + ρ1) of two layers."""
+    return (layers[1].resistivity - layers[0].resistivity) / (layers[1].resistivity + layers[0].resistivity)
 
 
 __all__ = ["ImageTerms", "LayeredSoil", "RadialTable", "SoilKernel", "TwoLayerSoil", "UniformSoil", "make_kernel"]
