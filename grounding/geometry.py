@@ -280,6 +280,38 @@ def bonded_groups(touching: np.ndarray) -> np.ndarray:
     return labels
 
 
+def _off_interfaces(lines, soil) -> tuple[tuple, list[str]]:
+    """Horizontal conductors lying on a soil-layer interface (within their radius) are moved to lie one
+    radius inside the more resistive of the two layers, so that each lies in one layer (on the interface
+    its own image through it would coincide with it). The shift is at most two radii (a few mm); the more
+    resistive side gives the higher Rg and GPR (the conservative choice)."""
+    start, end, radius, keys, is_rod, group = lines
+    interfaces = soil.interface_depths
+    if not len(interfaces):
+        return lines, []
+    start, end = start.copy(), end.copy()
+    flat = np.abs(start[:, 2] - end[:, 2]) < NODE_TOLERANCE
+    notes = []
+    for i, depth in enumerate(interfaces):
+        near = flat & (np.abs(start[:, 2] - depth) < radius)
+        if near.any():
+            up = soil.layers[i].resistivity >= soil.layers[i + 1].resistivity
+            target = depth - radius[near] if up else depth + radius[near]
+            shift = target - start[near, 2]
+            start[near, 2] += shift
+            end[near, 2] += shift
+            # rods and other conductors that started on the moved ones keep touching them
+            r_max = float(radius[near].max())
+            tops = ~flat & (np.abs(start[:, 2] - depth) <= r_max)
+            start[tops, 2] = depth - r_max if up else depth + r_max
+            names = list(dict.fromkeys(keys[k] for k in np.flatnonzero(near)))
+            notes.append(f"{', '.join(names[:3])}{' ...' if len(names) > 3 else ''} lie(s) on the soil-layer interface "
+                         f"at {depth:g} m; taken {np.abs(shift).max() * 1000:.1f} mm {'higher' if up else 'lower'}, "
+                         f"just inside the more resistive layer ({soil.layers[i if up else i + 1].resistivity:g} Ω·m: "
+                         "the higher Rg and GPR), so that each conductor lies in one layer")
+    return (start, end, radius, keys, is_rod, group), notes
+
+
 def _refuse_contacts(case: Case, c: Conductors, touching: np.ndarray, contact: np.ndarray) -> None:
     """Metal of different potential groups (main system, each floating or remote electrode) must not touch."""
     cross = touching & (c.group[:, None] != c.group[None, :])
@@ -307,7 +339,9 @@ def segment(case: Case) -> Segments:
         raise ModelTooLargeError(
             f"{case.source}: the electrodes make {len(lines[0]):,} straight conductors (grid lines, conductors and "
             f"rods), more than {MAX_CONDUCTORS:,}; check the grids' meshes (a mesh count, not a spacing in mm?)")
+    lines, moved = _off_interfaces(lines, case.soil)
     conductors, warnings = merge_collinear(*lines)
+    warnings = moved + warnings
     cuts, touching, contact = junction_parameters(conductors)
     _refuse_contacts(case, conductors, touching, contact)
     for i, j, gap in close_parallel_pairs(conductors)[:5]:

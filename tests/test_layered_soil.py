@@ -133,3 +133,26 @@ def test_high_contrast_two_layer_uses_the_hankel_kernel_with_bounded_memory():
     assert series == pytest.approx(hankel, rel=2e-5)
     r, k2 = rg(100000)
     assert isinstance(k2, LayeredSoil) and np.isfinite(r) and r > series
+
+
+def test_grid_on_a_layer_interface_runs():
+    """Regression: a grid lying exactly on an interface of a three-layer soil made the matrix indefinite
+    (its image through the interface coincided with it). It is now taken one radius inside the more
+    resistive layer, with a note, and Rg lies between those of the grid 10 mm above and below."""
+    from grounding.case_loader import parse_case
+    from grounding.study import run_study
+    from tests.conftest import case_text
+
+    soil = "{layers: [{resistivity: 100, thickness: 0.3}, {resistivity: 300, thickness: 0.2}, {resistivity: 50}]}"
+
+    def study(depth):
+        grid = (f"grids: [{{origin: [0, 0], size: [10, 10], meshes: [2, 2], depth: {depth}, diameter: 0.01}}]\n"
+                f"rods: [{{top: [0, 0, {depth}], length: 2, diameter: 0.016}}]\n")
+        return run_study(parse_case(case_text(grid, soil=soil, extra="surface: {resolution: 1.0}\n")),
+                         estimate_error=False)
+
+    on = study(0.5)
+    assert any("lie(s) on the soil-layer interface at 0.5 m" in w for w in on.warnings)
+    assert not any("do not touch" in w for w in on.warnings)
+    above, below = study(0.49), study(0.51)
+    assert below.grid_resistance < on.grid_resistance < above.grid_resistance
