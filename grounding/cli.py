@@ -84,7 +84,7 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, converge, quie
         from .uncertainty import propagate_soil_uncertainty
         result = _replace(result, uncertainty=propagate_soil_uncertainty(result, bar))
         bar.close()
-        written = _write_outputs(result, json_file, report_file, plots_dir, csv_file)
+        written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case))
     except GroundingError as exc:
         bar.close()
         _fail(exc)
@@ -93,7 +93,7 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, converge, quie
         click.echo(f"Written: {path}")
 
 
-def _write_outputs(result, json_file, report_file, plots_dir, csv_file) -> list[str]:
+def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=()) -> list[str]:
     """Build every requested output in memory first, then write each atomically."""
     from pathlib import Path
 
@@ -114,7 +114,7 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file) -> list[
     if report_file:
         from .outputs.report_pdf import build_report
         files.append((report_file, build_report(result)))
-    _write_all(files)
+    _write_all(files, inputs)
     return [p for p, _ in files]
 
 
@@ -130,7 +130,6 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file) -> list[
 def soil(readings_file, array, layers, traverses, json_file, plot_file):
     """Fit soil models to a Wenner or Schlumberger sounding (CSV)."""
     from .cautions import CAUTIONS
-    from .outputs.atomic import write_atomic
     from .outputs.figures import png_bytes
     from .outputs.soil_outputs import fit_figure, fit_text, soil_json
     from .outputs.summary_text import caution_box
@@ -150,8 +149,7 @@ def soil(readings_file, array, layers, traverses, json_file, plot_file):
             if len(fits) > 1:
                 raise GroundingError("--plot draws one sounding; use --traverses together, or fit each file alone")
             files.append((plot_file, png_bytes(fit_figure(next(iter(fits.values()))))))
-        for path, data in files:
-            write_atomic(path, data)
+        _write_all(files, [readings_file])
     except GroundingError as exc:
         _fail(exc)
     click.echo(caution_box(CAUTIONS))
@@ -227,7 +225,7 @@ def compare(case_files, by, json_file, csv_file, report_file, quiet, workers, cl
         files = _table_files(options, best, reason, by, json_file, csv_file)
         if report_file:
             files.append((report_file, comparison_report(options, best, reason)))
-        _write_all(files)
+        _write_all(files, list(case_files) + _inputs_of(*cases))
     except GroundingError as exc:
         _fail(exc)
     click.echo(caution_box())
@@ -259,7 +257,7 @@ def sweep(case_file, by, json_file, csv_file, plot_file, quiet, workers, cluster
                              {"settings": [dict(v.settings) for v in variants]})
         if plot_file:
             files.append((plot_file, png_bytes(tradeoff_figure(options, best))))
-        _write_all(files)
+        _write_all(files, [case_file] + _inputs_of(variants[0].case))
     except GroundingError as exc:
         _fail(exc)
     click.echo(caution_box())
@@ -300,7 +298,7 @@ def design(case_file, by, out_file, quiet, workers, cluster):
             chosen = next(v for v in variants if v.label == found.best.label)
             out = out_file or str(Path(case_file).with_name(Path(case_file).stem + "-design.yaml"))
             files.append((out, design_case_yaml(chosen, case_file, out)))
-        _write_all(files)
+        _write_all(files, [case_file] + _inputs_of(variants[0].case))
     except GroundingError as exc:
         _fail(exc)
     click.echo(caution_box())
@@ -322,9 +320,52 @@ def design(case_file, by, out_file, quiet, workers, cluster):
         click.echo(f"Written: {path}")
 
 
-def _write_all(files) -> None:
+def _inputs_of(*cases) -> list[str]:
+    """Every file a run read: the case files and their sounding readings."""
+    out = []
+    for c in cases:
+        if c is None:
+            continue
+        out.append(c.source)
+        if c.soil_fit is not None:
+            out.append(c.soil_fit.readings.source)
+        for sc in c.scenarios:
+            if sc.case.soil_fit is not None:
+                out.append(sc.case.soil_fit.readings.source)
+    return out
+
+
+def _guard_outputs(paths, inputs) -> None:
+    """Refuse an output path that is (after ./, .., links) one of the run's inputs, or given twice: a run
+    must never overwrite the user's data."""
+    import os
+    from pathlib import Path
+
+    def same(a: Path, b: Path) -> bool:
+        if a.resolve() == b.resolve():
+            return True
+        try:
+            return a.exists() and b.exists() and os.path.samefile(a, b)
+        except OSError:
+            return False
+
+    seen = []
+    for p in paths:
+        out = Path(p)
+        for i in inputs:
+            if same(out, Path(i)):
+                raise GroundingError(f"{p}: this output path is the input file {i}; writing it would destroy the "
+                                     "input: choose another output name")
+        for q in seen:
+            if same(out, Path(q)):
+                raise GroundingError(f"{p}: this path is given for two outputs; give each output its own file")
+        seen.append(p)
+
+
+def _write_all(files, inputs=()) -> None:
     from .outputs.atomic import write_atomic
 
+    _guard_outputs([p for p, _ in files], inputs)
     for path, data in files:
         write_atomic(path, data)
 

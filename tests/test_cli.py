@@ -147,3 +147,30 @@ def test_profile_and_site_from_case(tmp_path):
     p = r.surface.profile
     assert (p.x[0], p.y[0], p.x[-1], p.y[-1]) == (0.0, 7.5, 20.0, 7.5)
     assert p.distance[-1] == pytest.approx(20.0)
+
+
+@pytest.mark.parametrize("option", ["--json", "--csv", "--report"])
+def test_output_onto_the_case_file_is_refused_and_the_case_survives(small_case, option, monkeypatch):
+    """Regression (fuzzing): an output path pointing at the case file, directly or via ./, overwrote it."""
+    before = small_case.read_bytes()
+    monkeypatch.chdir(small_case.parent)
+    for target in (str(small_case), f"./{small_case.name}", f"../{small_case.parent.name}/{small_case.name}"):
+        res = run("study", small_case.name, "--quiet", option, target)
+        assert res.exit_code == 2 and "is the input file" in res.output, res.output
+        assert len(res.output.strip().splitlines()) == 1
+    assert small_case.read_bytes() == before
+
+
+def test_soil_plot_onto_the_readings_is_refused(tmp_path):
+    src = ROOT / "cases" / "kestrel-bend-wenner.csv"
+    readings = tmp_path / "r.csv"
+    readings.write_bytes(src.read_bytes())
+    res = run("soil", readings, "--layers", "1", "--json", readings)
+    assert res.exit_code == 2 and "is the input file" in res.output
+    assert readings.read_bytes() == src.read_bytes()
+
+
+def test_one_path_for_two_outputs_is_refused(small_case, tmp_path):
+    out = tmp_path / "same.out"
+    res = run("study", small_case, "--quiet", "--json", out, "--csv", out)
+    assert res.exit_code == 2 and "two outputs" in res.output and not out.exists()
