@@ -102,10 +102,39 @@ def solve_equipotential(R: np.ndarray, group: np.ndarray | None = None,
     return Solution(i, float(1.0 / main), residual, potential, current)
 
 
+#: From this size on the dense factorisation runs on one BLAS thread where OpenBLAS uses its AVX-512
+#: kernels. OpenBLAS 0.3.30/0.3.31 with the SkylakeX kernels crashed the process (segmentation fault)
+#: factorising SPD matrices of 16 000 and more on 2 threads (15 000 completed; measured on the project's
+#: 2-core machine); on one thread 16 400 completes in 17.8 s. With the Haswell kernels 16 400 completes on
+#: 2 threads (16.2 s; one thread would take 28.7 s), so those keep their threads.
+SINGLE_THREAD_FROM = 12_000
+#: OpenBLAS core types whose multithreaded factorisation of large matrices is not trusted.
+FAULTY_KERNELS = ("skylakex", "cooperlake", "sapphirerapids")
+
+
+def blas_threads_for(n: int):
+    """A context that limits BLAS to one thread for factorisations of size ``n`` ≥ SINGLE_THREAD_FROM on
+    OpenBLAS AVX-512 kernels (see FAULTY_KERNELS); otherwise it changes nothing."""
+    from contextlib import nullcontext
+
+    if n < SINGLE_THREAD_FROM:
+        return nullcontext()
+    from threadpoolctl import threadpool_info, threadpool_limits
+
+    arch = [str(d.get("architecture", "")).lower() for d in threadpool_info() if d.get("internal_api") == "openblas"]
+    if not any(a in FAULTY_KERNELS for a in arch):
+        return nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
+
+
 def _factor(R: np.ndarray):
     n = R.shape[0]
     try:
-        return scipy.linalg.cho_factor(R, lower=True, overwrite_a=False, check_finite=True)
+        with blas_threads_for(n):
+            return scipy.linalg.cho_factor(R, lower=True, overwrite_a=False, check_finite=True)
+    except MemoryError:
+        raise GroundingError(f"not enough memory to factorise the {n}×{n} matrix ({2 * 8 * n * n / 2 ** 30:.1f} GiB "
+                             "for it and its factor); use a longer discretization.max_segment") from None
     except (np.linalg.LinAlgError, ValueError) as exc:
         raise GroundingError(
             f"the {n}×{n} mutual-resistance matrix is not positive definite ({exc}); this happens when "

@@ -1,0 +1,49 @@
+"""Large dense solves: no crash at a size the tool accepts."""
+
+from __future__ import annotations
+
+import pytest
+
+from grounding.assembly import AssemblyOptions, assemble
+from grounding.case_loader import parse_case
+from grounding.geometry import segment
+from grounding.soil import make_kernel
+from grounding.solve import SINGLE_THREAD_FROM, blas_threads_for, solve_equipotential
+
+BIG = """\
+format: 1
+title: 200 m square grid, 5 m meshes, 1 m segments
+soil: {resistivity: 100}
+fault: {current: 1000, clearing_time: 0.5}
+electrodes:
+  grids: [{origin: [0, 0], size: [200, 200], meshes: [40, 40], depth: 0.5, diameter: 0.01}]
+discretization: {max_segment: 1.0}
+"""
+
+
+def test_a_16400_segment_case_factorises():
+    """Regression: this case ended in a segmentation fault inside the Cholesky factorisation with OpenBLAS's
+    SkylakeX kernels on 2 threads (exit 139, nothing written). About 45 s and 4.3 GB."""
+    case = parse_case(BIG)
+    s = segment(case)
+    assert len(s) == 16_400
+    sol = solve_equipotential(assemble(s, make_kernel(case.soil, 1.0), AssemblyOptions()))
+    # Sverak's equation (IEEE Std 80) for this grid: ρ[1/L + 1/√(20A)(1 + 1/(1 + h√(20/A)))] = 0.2285 Ω;
+    # the numerical value lies a few % below it, as on the IEEE Std 80 example grid
+    assert 0.20 < sol.resistance < 0.2285
+    assert sol.relative_residual < 1e-10
+
+
+def test_single_thread_only_for_large_factorisations_on_avx512_kernels(monkeypatch):
+    import threadpoolctl
+
+    monkeypatch.setattr(threadpoolctl, "threadpool_info",
+                        lambda: [{"internal_api": "openblas", "architecture": "SkylakeX", "num_threads": 2}])
+    limited = blas_threads_for(SINGLE_THREAD_FROM)
+    assert isinstance(limited, threadpoolctl.threadpool_limits)
+    limited.unregister()
+    from contextlib import nullcontext
+    assert isinstance(blas_threads_for(SINGLE_THREAD_FROM - 1), nullcontext)
+    monkeypatch.setattr(threadpoolctl, "threadpool_info",
+                        lambda: [{"internal_api": "openblas", "architecture": "Haswell", "num_threads": 2}])
+    assert isinstance(blas_threads_for(20_000), nullcontext)
