@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 from typing import Any
 
 import yaml
@@ -17,6 +18,14 @@ from .errors import CaseError
 
 #: A diameter at or above this (m) is taken for millimetres given as metres.
 MM_SUSPECT_DIAMETER = 0.25
+#: Physical range of every number, by unit (documented in docs/case-file.md): lengths and coordinates
+#: within 10 km, resistivities 0.01 Ω·m (sea water is about 0.2) to 10^6 Ω·m (dry rock), currents up to
+#: 1 MA, frequencies up to 1 kHz, voltages up to 100 MV.
+UNIT_RANGES = {"m": (-1e4, 1e4), "Ω·m": (1e-2, 1e6), "A": (0.0, 1e6), "Hz": (0.0, 1e3), "V": (0.0, 1e8)}
+#: Numbers in exponent form without a decimal point, which YAML 1.1 reads as text (e.g. 12e3).
+_EXPONENT_NUMBER = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)[eE][-+]?\d+$")
+#: Most grids, conductors or rods one list may hold.
+MAX_LIST_ITEMS = 2000
 
 
 class _DuplicateKey(Exception):
@@ -90,6 +99,13 @@ class Document:
         return CaseError(self.file, self.line(path), path, problem)
 
 
+def as_number(value: Any) -> Any:
+    """``value`` as a float when it is text in exponent form (12e3), which YAML 1.1 leaves as text."""
+    if isinstance(value, str) and _EXPONENT_NUMBER.match(value.strip()):
+        return float(value)
+    return value
+
+
 def fmt(value: Any) -> str:
     if isinstance(value, float):
         return f"{value:g}"
@@ -123,9 +139,14 @@ class Checks:
     def number(self, path: str, value: Any, unit: str, *, gt: float | None = None, ge: float | None = None,
                lt: float | None = None, le: float | None = None) -> float:
         u = f" {unit}" if unit else ""
+        if isinstance(value, str) and _EXPONENT_NUMBER.match(value.strip()):
+            value = float(value)              # YAML 1.1 reads 12e3 (no dot) as text; it is a number
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise self.doc.fail(path, f"must be a number{(' in' + u) if unit else ''}, got {fmt(value)}")
-        x = float(value)
+        try:
+            x = float(value)
+        except OverflowError:
+            x = math.inf
         if not math.isfinite(x):
             raise self.doc.fail(path, f"must be a finite number, got {fmt(value)}")
         if gt is not None and not x > gt:
@@ -136,16 +157,23 @@ class Checks:
             raise self.doc.fail(path, f"must be < {lt:g}{u}, got {fmt(value)}")
         if le is not None and not x <= le:
             raise self.doc.fail(path, f"must be <= {le:g}{u}, got {fmt(value)}")
+        if unit in UNIT_RANGES:
+            lo, hi = UNIT_RANGES[unit]
+            if not lo <= x <= hi:
+                raise self.doc.fail(path, f"= {x:g} {unit} is outside the accepted range {lo:g} to {hi:g} {unit}; "
+                                          "check the value and its unit")
         return x
 
-    def integer(self, path: str, value: Any, *, ge: int = 1) -> int:
+    def integer(self, path: str, value: Any, *, ge: int = 1, le: int | None = None) -> int:
         if isinstance(value, bool) or not isinstance(value, int):
-            if isinstance(value, float) and value.is_integer():
+            if isinstance(value, float) and math.isfinite(value) and value.is_integer():
                 value = int(value)
             else:
                 raise self.doc.fail(path, f"must be a whole number, got {fmt(value)}")
         if value < ge:
             raise self.doc.fail(path, f"must be >= {ge}, got {value}")
+        if le is not None and value > le:
+            raise self.doc.fail(path, f"must be <= {le:,}, got {value:,}")
         return int(value)
 
     def vector(self, path: str, value: Any, n: int, unit: str, what: str) -> tuple[float, ...]:
@@ -158,6 +186,8 @@ class Checks:
             return []
         if not isinstance(value, list):
             raise self.doc.fail(path, f"must be a list, got {type(value).__name__}")
+        if len(value) > MAX_LIST_ITEMS:
+            raise self.doc.fail(path, f"lists {len(value):,} items; at most {MAX_LIST_ITEMS:,} are accepted")
         return value
 
     def diameter(self, path: str, value: Any) -> float:

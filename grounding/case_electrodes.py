@@ -11,6 +11,10 @@ from .case_checks import Checks, fmt
 from .materials import MATERIALS
 
 
+#: Most meshes along one side of a grid (a spacing given where a count is asked for is the usual cause).
+MAX_MESHES = 1000
+
+
 class ElectrodeSections(Checks):
     """Readers of the electrode sections of a case."""
 
@@ -57,7 +61,7 @@ class ElectrodeSections(Checks):
         meshes = m["meshes"]
         if not isinstance(meshes, list) or len(meshes) != 2:
             raise self.doc.fail(f"{p}.meshes", f"must be a list of 2 whole numbers (along x, along y), got {fmt(meshes)}")
-        meshes = tuple(self.integer(f"{p}.meshes[{i}]", v) for i, v in enumerate(meshes))
+        meshes = tuple(self.integer(f"{p}.meshes[{i}]", v, le=MAX_MESHES) for i, v in enumerate(meshes))
         depth = self.depth(f"{p}.depth", self.number(f"{p}.depth", m["depth"], "m"))
         d = self.diameter(f"{p}.diameter", m["diameter"])
         return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p, name=self._label(p, m))

@@ -18,7 +18,7 @@ import numpy as np
 
 from .case import Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
     TouchArea
-from .case_checks import Document, fmt
+from .case_checks import Document, as_number, fmt
 from .case_electrodes import ElectrodeSections
 from .case_site import SiteSections
 from .errors import CaseError
@@ -290,7 +290,7 @@ class _CaseReader(ElectrodeSections, SiteSections):
                                 "body-current limit holds; give fault.shock_duration within that range")
         sf = self.number("fault.split_factor", m.get("split_factor", 1.0), "", gt=0, le=1)
         xr = m.get("x_over_r")
-        xr = None if xr is None else self.number("fault.x_over_r", xr, "", ge=0)
+        xr = None if xr is None else self.number("fault.x_over_r", xr, "", ge=0, le=200)
         f = self.number("fault.frequency", m.get("frequency", 50.0), "Hz", gt=0)
         return Fault(current=current, clearing_time=tf, shock_duration=ts, split_factor=sf, x_over_r=xr, frequency=f)
 
@@ -382,21 +382,25 @@ def sweep_settings(doc: "Document") -> list[tuple[str, list[tuple[str, Any]]]]:
             extra = set(values) - allowed
             if extra or not {"from", "to"} <= set(values) or ("step" in values) == ("count" in values):
                 raise doc.fail(path, "a range needs from, to and either step or count")
-            a, b = values["from"], values["to"]
-            if not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in (a, b)):
-                raise doc.fail(path, "range bounds must be numbers")
+            a, b = as_number(values["from"]), as_number(values["to"])
+            if not all(isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for x in (a, b)):
+                raise doc.fail(path, "range bounds must be finite numbers")
             if "step" in values:
-                step = values["step"]
-                if not isinstance(step, (int, float)) or step <= 0:
-                    raise doc.fail(f"{path}.step", f"must be > 0, got {fmt(step)}")
+                step = as_number(values["step"])
+                if isinstance(step, bool) or not isinstance(step, (int, float)) or not math.isfinite(step) or step <= 0:
+                    raise doc.fail(f"{path}.step", f"must be a number > 0, got {fmt(step)}")
+                count = (b - a) / step + 1
+                if not math.isfinite(count) or count > MAX_VARIANTS:
+                    raise doc.fail(f"{path}.step", f"= {step:g} makes more than {MAX_VARIANTS:,} values from {a:g} to "
+                                                   f"{b:g}; use a larger step")
                 n = int(math.floor((b - a) / step + 1e-9)) + 1
                 if n < 1:
                     raise doc.fail(path, "is empty: 'to' is below 'from'")
                 vals = [round(a + i * step, 12) for i in range(n)]
             else:
                 n = values["count"]
-                if not isinstance(n, int) or n < 1:
-                    raise doc.fail(f"{path}.count", f"must be a whole number >= 1, got {fmt(n)}")
+                if isinstance(n, bool) or not isinstance(n, int) or n < 1 or n > MAX_VARIANTS:
+                    raise doc.fail(f"{path}.count", f"must be a whole number from 1 to {MAX_VARIANTS:,}, got {fmt(n)}")
                 vals = [a] if n == 1 else [round(a + (b - a) * i / (n - 1), 12) for i in range(n)]
         elif isinstance(values, list) and values:
             vals = values

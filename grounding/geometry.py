@@ -7,6 +7,7 @@ than ``max_segment``. Coordinates are (x, y, z) in m with z the depth, positive 
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -280,6 +281,31 @@ def bonded_groups(touching: np.ndarray) -> np.ndarray:
     return labels
 
 
+#: Most segments a discretisation may make (estimated from the raw numbers before anything is built).
+MAX_SEGMENTS = 2_000_000
+
+
+def _estimate_size(case: Case) -> None:
+    """Refuse, from the case's numbers alone, a layout that would make too many conductors or segments."""
+    systems = [case.electrodes] + list(case.separate_electrodes)
+    lines = sum(g.meshes[0] + g.meshes[1] + 2 for e in systems for g in e.grids) + \
+        sum(len(e.conductors) + len(e.rods) for e in systems)
+    if lines > MAX_CONDUCTORS:
+        raise ModelTooLargeError(
+            f"{case.source}: the electrodes make {lines:,} straight conductors (grid lines, conductors and rods), "
+            f"more than {MAX_CONDUCTORS:,}; check the grids' meshes (a mesh count, not a spacing in mm?)")
+    h = case.discretization.max_segment
+    length = sum(g.size[0] * (g.meshes[1] + 1) + g.size[1] * (g.meshes[0] + 1) for e in systems for g in e.grids) + \
+        sum(math.dist(c.start, c.end) for e in systems for c in e.conductors) + \
+        sum(r.length for e in systems for r in e.rods)
+    estimate = length / h + 2 * lines
+    if estimate > MAX_SEGMENTS:
+        raise ModelTooLargeError(
+            f"{case.source}: discretization.max_segment = {h:g} m would cut {length:,.0f} m of electrode into about "
+            f"{estimate:,.0f} segments (at most {MAX_SEGMENTS:,}); use max_segment of at least "
+            f"{length / MAX_SEGMENTS:.2g} m")
+
+
 def _off_interfaces(lines, soil) -> tuple[tuple, list[str]]:
     """Horizontal conductors lying on a soil-layer interface (within their radius) are moved to lie one
     radius inside the more resistive of the two layers, so that each lies in one layer (on the interface
@@ -334,6 +360,7 @@ def segment(case: Case) -> Segments:
     Cuts every conductor at junctions and crossings with other conductors, at soil-layer
     interfaces, and into equal parts no longer than ``case.discretization.max_segment``.
     """
+    _estimate_size(case)
     lines = electrode_lines(case)
     if len(lines[0]) > MAX_CONDUCTORS:
         raise ModelTooLargeError(

@@ -138,14 +138,34 @@ def test_self_crossing_touch_area_refused():
 
 
 def test_absurd_mesh_count_refused_before_geometry():
-    """A mesh count that looks like a spacing in mm would make 200 002 grid lines: refused at once."""
+    """A mesh count that looks like a spacing in mm would make 200 002 grid lines: refused at load, located."""
+    msg = error_of(case_text("grids: [{origin: [0, 0], size: [20, 15], meshes: [100000, 100000], depth: 0.6, "
+                             "diameter: 0.01}]\n"))
+    assert "electrodes.grids[0].meshes[0] must be <= 1,000, got 100,000" in msg
+
+
+def test_too_many_segments_refused_before_they_are_built():
+    """Long conductors cut very finely: the segment count is estimated from the raw numbers first."""
     from grounding.errors import ModelTooLargeError
     from grounding.geometry import segment
 
-    case = parse_case(case_text("grids: [{origin: [0, 0], size: [20, 15], meshes: [100000, 100000], depth: 0.6, "
-                                "diameter: 0.01}]\n"), file="case.yaml")
-    with pytest.raises(ModelTooLargeError, match="200,002 straight conductors"):
+    rows = "".join(f"  - {{start: [0, {i}, 0.5], end: [9000, {i}, 0.5], diameter: 0.001}}\n" for i in range(300))
+    case = parse_case(case_text("conductors:\n" + rows, extra="discretization: {max_segment: 0.004}\n"))
+    with pytest.raises(ModelTooLargeError, match="segments"):
         segment(case)
+
+
+@pytest.mark.parametrize("text, message", [
+    ("{resistivity: 1e39}", "soil.resistivity = 1e+39 Ω·m is outside the accepted range"),
+    ("{resistivity: 100000000000000000000000000000000000000000000000000}", "outside the accepted range"),
+])
+def test_huge_numbers_are_located_refusals(text, message):
+    assert message in error_of(case_text(ROD, soil=text))
+
+
+def test_x_over_r_range():
+    assert "fault.x_over_r must be <= 200" in error_of(case_text(ROD, fault="{current: 1000, clearing_time: 0.5, "
+                                                                       "x_over_r: 5000}"))
 
 
 def test_title_must_be_text():

@@ -203,3 +203,16 @@ def test_rod_count_sweep(tmp_path):
     bad.write_text(SWEEP.split("sweep:")[0] + "sweep:\n  rods.count: [99]\n")
     with pytest.raises(CaseError, match="do not fit on the 8 perimeter nodes"):
         load_variants(bad)
+
+
+@pytest.mark.parametrize("rng, message", [
+    ("{from: 1, to: 10, step: 1e-300}", "use a larger step"),
+    ("{from: 1, to: 10, count: 100000000}", "whole number from 1 to"),
+    ("{from: 1, to: .inf, step: 1}", "finite numbers"),
+])
+def test_runaway_sweep_ranges_refused_quickly(tmp_path, rng, message):
+    """Regression (fuzzing): a tiny step or a huge count hung the sweep expansion."""
+    path = tmp_path / "s.yaml"
+    path.write_text(SWEEP.replace("grid.spacing: [10, 5]", f"grid.spacing: {rng}"))
+    with pytest.raises(CaseError, match=message):
+        load_variants(path)
