@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 from .sounding.fit import SoilFit
@@ -140,11 +141,27 @@ class Fault:
     frequency: float = 50.0
 
 
+#: Safety criteria a study can judge by.
+STANDARDS = ("ieee80", "en50522")
+
+
 @dataclass(frozen=True)
 class Criteria:
-    """Safety criteria: body weight (50 or 70 kg) for IEEE Std 80 Dalziel limits."""
+    """Safety criteria.
+
+    Attributes
+    ----------
+    body_weight : int
+        50 or 70 kg, for IEEE Std 80 Dalziel limits.
+    standards : tuple of str
+        ``ieee80`` and/or ``en50522``; the first one's verdicts are the summary's.
+    footwear_resistance : float
+        EN 50522 additional resistance of footwear R_a1, Ω.
+    """
 
     body_weight: int = 70
+    standards: tuple[str, ...] = ("ieee80",)
+    footwear_resistance: float = 1000.0
 
 
 @dataclass(frozen=True)
@@ -174,6 +191,12 @@ class Grid:
     diameter: float
     key: str = ""
     name: str = ""
+    cross_section: float | None = None
+
+    @property
+    def area(self) -> float:
+        """Conductor cross-section for sizing, m²: the nominal one, else the circle of the diameter."""
+        return self.cross_section if self.cross_section is not None else math.pi * self.diameter ** 2 / 4
 
 
 @dataclass(frozen=True)
@@ -186,6 +209,12 @@ class Conductor:
     diameter: float
     key: str = ""
     name: str = ""
+    cross_section: float | None = None
+
+    @property
+    def area(self) -> float:
+        """Conductor cross-section for sizing, m²: the nominal one, else the circle of the diameter."""
+        return self.cross_section if self.cross_section is not None else math.pi * self.diameter ** 2 / 4
 
 
 @dataclass(frozen=True)
@@ -197,6 +226,12 @@ class Rod:
     diameter: float
     key: str = ""
     name: str = ""
+    cross_section: float | None = None
+
+    @property
+    def area(self) -> float:
+        """Rod cross-section, m²: the nominal one, else the circle of the diameter."""
+        return self.cross_section if self.cross_section is not None else math.pi * self.diameter ** 2 / 4
 
 
 @dataclass(frozen=True)

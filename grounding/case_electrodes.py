@@ -50,8 +50,21 @@ class ElectrodeSections(Checks):
     def _label(self, p: str, m: dict) -> str:
         return self.name(f"{p}.name", m["name"]) if "name" in m else ""
 
+    def cross_section(self, p: str, m: dict, diameter: float) -> float | None:
+        """Nominal cross-section (m²) of a stranded or shaped conductor; it must fit in the circle of its
+        outer diameter."""
+        if "cross_section" not in m:
+            return None
+        a = self.number(f"{p}.cross_section", m["cross_section"], "m²", gt=0)
+        circle = math.pi * diameter ** 2 / 4
+        if a > circle * (1 + 1e-9):
+            raise self.doc.fail(f"{p}.cross_section", f"= {a * 1e6:g} mm² is larger than the circle of the diameter "
+                                                      f"{diameter * 1000:g} mm ({circle * 1e6:.1f} mm²); give the "
+                                                      "area in m² (e.g. 120e-6 for 120 mm²)")
+        return a
+
     def grid(self, p: str, value: Any) -> Grid:
-        m = self.mapping(p, value, ("origin", "size", "meshes", "depth", "diameter", "name"),
+        m = self.mapping(p, value, ("origin", "size", "meshes", "depth", "diameter", "name", "cross_section"),
                          ("origin", "size", "meshes", "depth", "diameter"))
         origin = self.vector(f"{p}.origin", m["origin"], 2, "m", "x, y")
         size = self.vector(f"{p}.size", m["size"], 2, "m", "along x, along y")
@@ -64,22 +77,27 @@ class ElectrodeSections(Checks):
         meshes = tuple(self.integer(f"{p}.meshes[{i}]", v, le=MAX_MESHES) for i, v in enumerate(meshes))
         depth = self.depth(f"{p}.depth", self.number(f"{p}.depth", m["depth"], "m"))
         d = self.diameter(f"{p}.diameter", m["diameter"])
-        return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p, name=self._label(p, m))
+        return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p, name=self._label(p, m),
+                    cross_section=self.cross_section(p, m, d))
 
     def conductor(self, p: str, value: Any) -> Conductor:
-        m = self.mapping(p, value, ("start", "end", "diameter", "name"), ("start", "end", "diameter"))
+        m = self.mapping(p, value, ("start", "end", "diameter", "name", "cross_section"),
+                         ("start", "end", "diameter"))
         a = self.vector(f"{p}.start", m["start"], 3, "m", "x, y, depth")
         b = self.vector(f"{p}.end", m["end"], 3, "m", "x, y, depth")
         self.depth(f"{p}.start[2]", a[2])
         self.depth(f"{p}.end[2]", b[2])
         if math.dist(a, b) <= 1e-6:
             raise self.doc.fail(p, "has zero length (start = end); give two different points")
-        return Conductor(a, b, self.diameter(f"{p}.diameter", m["diameter"]), key=p, name=self._label(p, m))
+        d = self.diameter(f"{p}.diameter", m["diameter"])
+        return Conductor(a, b, d, key=p, name=self._label(p, m), cross_section=self.cross_section(p, m, d))
 
     def rod(self, p: str, value: Any) -> Rod:
-        m = self.mapping(p, value, ("top", "length", "diameter", "name"), ("top", "length", "diameter"))
+        m = self.mapping(p, value, ("top", "length", "diameter", "name", "cross_section"),
+                         ("top", "length", "diameter"))
         top = self.vector(f"{p}.top", m["top"], 3, "m", "x, y, depth")
         if top[2] < 0:
             raise self.doc.fail(f"{p}.top[2]", f"depth must be >= 0 m (z is positive downward), got {top[2]:g}")
         length = self.number(f"{p}.length", m["length"], "m", gt=0)
-        return Rod(top, length, self.diameter(f"{p}.diameter", m["diameter"]), key=p, name=self._label(p, m))
+        d = self.diameter(f"{p}.diameter", m["diameter"])
+        return Rod(top, length, d, key=p, name=self._label(p, m), cross_section=self.cross_section(p, m, d))

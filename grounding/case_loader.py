@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .case import Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
+from .case import STANDARDS, Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
     TouchArea
 from .case_checks import Document, as_number, fmt
 from .case_electrodes import ElectrodeSections
@@ -105,6 +105,9 @@ class _CaseReader(ElectrodeSections, SiteSections):
                        for i, p in enumerate(self.sequence("probes", top.get("probes"))))
         costs = self.costs(top.get("costs"))
         notes = list(soil_fit.readings.notes) if soil_fit else []
+        if fault.x_over_r is None:
+            notes.append("fault.x_over_r is not given: the decrement factor Df = 1 was assumed (no DC offset), which "
+                         "understates IG where the X/R is large; give the X/R at the fault")
         if surface_layer is not None:
             notes.insert(0, f"the surface layer ({surface_layer.resistivity:g} Ω·m, {surface_layer.thickness * 1000:.0f} "
                             "mm) is assumed to cover the whole map, also outside the fence; where people stand on "
@@ -295,11 +298,26 @@ class _CaseReader(ElectrodeSections, SiteSections):
         return Fault(current=current, clearing_time=tf, shock_duration=ts, split_factor=sf, x_over_r=xr, frequency=f)
 
     def criteria(self, value: Any) -> Criteria:
-        m = self.mapping("criteria", value or {}, ("body_weight",))
+        m = self.mapping("criteria", value or {}, ("body_weight", "standard", "footwear_resistance"))
         w = m.get("body_weight", 70)
         if w not in (50, 70) or isinstance(w, bool):
             raise self.doc.fail("criteria.body_weight", f"must be 50 or 70 (kg, IEEE Std 80), got {fmt(w)}")
-        return Criteria(int(w))
+        given = m.get("standard", "ieee80")
+        items = given if isinstance(given, list) else [given]
+        if not items:
+            raise self.doc.fail("criteria.standard", "is empty; give ieee80, en50522 or both as a list")
+        for s in items:
+            if s not in STANDARDS:
+                raise self.doc.fail("criteria.standard", f"must be one of {', '.join(STANDARDS)} (or a list of them), "
+                                                         f"got {fmt(s)}")
+        if len(set(items)) != len(items):
+            raise self.doc.fail("criteria.standard", "lists a standard twice")
+        footwear = self.number("criteria.footwear_resistance", m.get("footwear_resistance", 1000.0), "Ω", ge=0,
+                               le=1e5)
+        if "footwear_resistance" in m and "en50522" not in items:
+            raise self.doc.fail("criteria.footwear_resistance", "is used by the en50522 criterion only; add it to "
+                                                                "criteria.standard or leave the key out")
+        return Criteria(int(w), tuple(items), footwear)
 
     def discretization(self, value: Any, electrodes: Electrodes, separate=()) -> Discretization:
         m = self.mapping("discretization", value or {}, ("max_segment",))

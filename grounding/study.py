@@ -24,7 +24,8 @@ from .safety.conductor import ConductorCheck, check_conductor
 from .case_site import shapely_polygon
 from .safety.ieee80 import Limits, decrement_factor
 from .safety.simplified import SimplifiedResult, simplified_method
-from .safety.site import Check, SeparateResult, ZoneVerdict, governing, separate_result, zone_limits
+from .safety.site import (Check, CriteriaResult, SeparateResult, ZoneVerdict, governing, separate_result,
+                          zone_limits)
 from .soil import SoilKernel, make_kernel
 from .solve import Solution, solve_equipotential
 from .surface import (Extreme, SeparateMetal, SurfacePotential, SurfaceResult, ZoneExtremes, Zoning, contour_lines,
@@ -91,6 +92,7 @@ class StudyResult:
     scenarios: tuple["StudyResult", ...] = ()
     convergence: "Convergence | None" = None
     uncertainty: object = None
+    criteria: tuple[CriteriaResult, ...] = ()
     cautions: tuple[str, ...] = CAUTIONS
 
     @property
@@ -119,7 +121,9 @@ class StudyResult:
         pass, in every scenario."""
         if self.scenarios:
             return all(r.passes for r in self.scenarios)
-        return bool(self.touch_ok and self.step_ok and self.mesh_ok is not False and self.separate_ok
+        if self.criteria:
+            return bool(self.conductor.ok and all(c.passes for c in self.criteria))
+        return bool(self.touch_ok and self.step_ok is not False and self.mesh_ok is not False and self.separate_ok
                     and self.conductor.ok)
 
     @property
@@ -143,9 +147,10 @@ class StudyResult:
         return bool(self.touch_check.ok)
 
     @property
-    def step_ok(self) -> bool:
-        """True when the worst step voltage of every zone is within that zone's limit."""
-        return bool(self.step_check.ok)
+    def step_ok(self) -> bool | None:
+        """True when the worst step voltage of every zone is within that zone's limit; None when the
+        standard sets no step limit (EN 50522)."""
+        return None if self.step_check.ok is None else bool(self.step_check.ok)
 
     @property
     def mesh_ok(self) -> bool | None:
@@ -157,7 +162,7 @@ class StudyResult:
         X, Y = np.meshgrid(self.surface.x, self.surface.y)
         labels = zoning(self.case).label(X, Y)
         touch = np.array([z.tolerable_touch for z in self.zones])
-        step = np.array([z.tolerable_step for z in self.zones])
+        step = np.array([np.nan if z.tolerable_step is None else z.tolerable_step for z in self.zones])
         return touch[labels], step[labels]
 
     def probe_touch_voltages(self) -> np.ndarray:
@@ -458,7 +463,7 @@ def combine_scenarios(results: list[StudyResult]) -> StudyResult:
                 if c.ok is False and best is None:
                     best = replace(c, scenario=r.scenario)
                 continue
-            q = c.worst.value / c.limit
+            q = c.worst.value / c.limit if c.limit else c.worst.value
             if ratio is None or q > ratio:
                 best, ratio = replace(c, scenario=r.scenario), q
         if best is None:
@@ -484,15 +489,10 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> S
     gpr = ig * solution.resistance
     currents = solution.currents(ig)
     surface = unit.surface.scaled(gpr)
-    limits = zone_limits(case.soil.top_resistivity, case.zones, fault.shock_duration)
-    weight = case.criteria.body_weight
-    zones = tuple(ZoneVerdict(z, lim, weight, ext) for z, lim, ext in zip(case.zones, limits, surface.zones))
-    touch, step, mesh = governing(zones, "touch"), governing(zones, "step"), governing(zones, "mesh", needed=False)
-    governing_limits = limits[[z.name for z in zones].index(touch.zone)]
-    separate = tuple(
-        separate_result(e.name, e.connection, gpr * (1.0 if e.connection == "bonded" else solution.group_potential[g]),
-                        gpr, _separate_current(e, g, segments, solution, ig), m.touch, zones)
-        for g, (e, m) in enumerate(zip(case.separate_electrodes, surface.metal), start=1))
+    judged = tuple(_judge(case, standard, surface, segments, solution, gpr, ig) for standard in case.criteria.standards)
+    first = judged[0]
+    zones, touch, step, mesh, separate = first.zones, first.touch, first.step, first.mesh, first.separate
+    governing_limits = zones[[z.name for z in zones].index(touch.zone)].limits
     contours = tuple((level, contour_lines(surface.x, surface.y, surface.potential, [level])[0])
                      for level in case.surface.contours)
     warnings = list(case.notes + segments.warnings)
@@ -508,16 +508,32 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> S
                             f"{np.min(surface.potential):,.0f} V): the whole map is above it; widen surface.margin "
                             "to draw the line")
     el = case.electrodes
-    horizontal = [g.diameter for g in el.grids] + [c.diameter for c in el.conductors]
+    horizontal = list(el.grids) + list(el.conductors)
+    smallest = min(horizontal or el.rods, key=lambda x: x.area)
     conductor = check_conductor(df * fault.current, fault.clearing_time, MATERIALS[el.material],
-                                el.ambient_temperature, el.max_temperature,
-                                min(horizontal) if horizontal else min(r.diameter for r in el.rods))
+                                el.ambient_temperature, el.max_temperature, smallest.diameter, smallest.area)
     return StudyResult(case=case, segments=segments, kernel=unit.kernel, solution=solution, decrement_factor=df,
                        grid_current=ig, ground_potential_rise=gpr, segment_currents=currents, surface=surface,
                        limits=governing_limits, simplified=simplified_method(case, ig), conductor=conductor,
                        discretization_error=unit.error, timings=dict(unit.timings),
                        warnings=tuple(warnings), zones=zones, touch_check=touch, step_check=step, mesh_check=mesh,
-                       separate=separate, contours=contours)
+                       separate=separate, contours=contours, criteria=judged)
+
+
+def _judge(case: Case, standard: str, surface: SurfaceResult, segments: Segments, solution: Solution, gpr: float,
+           ig: float) -> CriteriaResult:
+    """The verdicts of one standard on scaled surface fields."""
+    fault = case.fault
+    limits = zone_limits(case.soil.top_resistivity, case.zones, fault.shock_duration, standard,
+                         case.criteria.footwear_resistance)
+    weight = case.criteria.body_weight
+    zones = tuple(ZoneVerdict(z, lim, weight, ext) for z, lim, ext in zip(case.zones, limits, surface.zones))
+    touch, step, mesh = governing(zones, "touch"), governing(zones, "step"), governing(zones, "mesh", needed=False)
+    separate = tuple(
+        separate_result(e.name, e.connection, gpr * (1.0 if e.connection == "bonded" else solution.group_potential[g]),
+                        gpr, _separate_current(e, g, segments, solution, ig), m.touch, zones)
+        for g, (e, m) in enumerate(zip(case.separate_electrodes, surface.metal), start=1))
+    return CriteriaResult(standard, zones, touch, step, mesh, separate)
 
 
 def _separate_current(e, g: int, segments: Segments, solution: Solution, grid_current: float) -> float:

@@ -124,7 +124,7 @@ def _values(r: StudyResult) -> dict[str, float | None]:
         return None if check.worst is None else check.worst.value
 
     def ratio(check):
-        return None if check.worst is None else check.worst.value / check.limit
+        return None if check.worst is None or check.limit is None else check.worst.value / check.limit
 
     return {"grid_resistance": r.grid_resistance, "ground_potential_rise": r.ground_potential_rise,
             "touch": worst(r.touch_check), "step": worst(r.step_check), "mesh": worst(r.mesh_check),
@@ -173,9 +173,10 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
         prob = None
         if k in ("touch", "step", "mesh"):
             sr = np.array(sens[f"{k}_ratio"])
-            slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
-            q = math.log(base[f"{k}_ratio"])
-            prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
+            if base[f"{k}_ratio"] is not None and np.all(np.isfinite(sr)):
+                slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
+                q = math.log(base[f"{k}_ratio"])
+                prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
         out[k] = QuantityUncertainty(base[k], base[k] * math.expm1(sl), sl, prob, tuple(s.tolist()))
     return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out, len(x0),
                                  time.perf_counter() - t0)

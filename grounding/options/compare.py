@@ -26,9 +26,11 @@ class Option:
 
     @property
     def step_margin(self) -> float:
-        """(tolerable − worst) / tolerable for step voltage."""
-        m = self.result.step_check.margin
-        return -1.0 if m is None else m
+        """(tolerable − worst) / tolerable for step voltage; +inf where the standard sets no step limit."""
+        c = self.result.step_check
+        if c.limit is None:
+            return float("inf")
+        return -1.0 if c.margin is None else c.margin
 
     @property
     def worst_margin(self) -> float:

@@ -85,13 +85,14 @@ def _draw_zones(ax, r: StudyResult):
             verts += list(ring) + [ring[0]]
             codes += [MPath.MOVETO] + [MPath.LINETO] * (len(ring) - 1) + [MPath.CLOSEPOLY]
         patch = PathPatch(MPath(verts, codes), fc="none", ec="#7f7f7f", lw=0.8, hatch=ZONE_HATCHES[k % len(ZONE_HATCHES)],
-                          label=f"{z.name}: touch ≤ {v.tolerable_touch:,.0f} V, step ≤ {v.tolerable_step:,.0f} V",
+                          label=f"{z.name}: touch ≤ {v.tolerable_touch:,.0f} V" + (
+                              "" if v.tolerable_step is None else f", step ≤ {v.tolerable_step:,.0f} V"),
                           zorder=0)
         ax.add_patch(patch)
     if r.case.surface_zones:
         native = r.zones[-1]
-        ax.plot([], [], color="none", label=f"outside: native soil, touch ≤ {native.tolerable_touch:,.0f} V, "
-                                           f"step ≤ {native.tolerable_step:,.0f} V")
+        ax.plot([], [], color="none", label=f"outside: native soil, touch ≤ {native.tolerable_touch:,.0f} V" + (
+            "" if native.tolerable_step is None else f", step ≤ {native.tolerable_step:,.0f} V"))
 
 
 def _frame(ax, r: StudyResult):
@@ -235,7 +236,7 @@ def step_figure(r: StudyResult) -> Rendered:
     _, local = r.local_limits()
     fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
     im = ax.contourf(s.x, s.y, s.step, levels=20, cmap="cividis")
-    if np.max(s.step - local) > 0:
+    if np.isfinite(local).all() and np.max(s.step - local) > 0:
         ax.contour(s.x, s.y, s.step - local, levels=[0], colors="#d7301f", linewidths=1.6)
     _overlay_electrodes(ax, r)
     _frame(ax, r)
@@ -243,8 +244,11 @@ def step_figure(r: StudyResult) -> Rendered:
     cb.set_label(f"step voltage over {r.case.surface.step_distance:g} m (V)")
     worst = r.step_check.worst or s.max_step
     _mark(ax, worst, f"worst {worst.value:,.0f} V")
-    where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
-    ax.set_title(f"Step voltage; {where} ({r.body_weight} kg); {'PASS' if r.step_ok else 'FAIL'}", fontsize=9)
+    if limit is None:
+        ax.set_title("Step voltage (the standard sets no step limit; reported only)", fontsize=9)
+    else:
+        where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
+        ax.set_title(f"Step voltage; {where} ({r.body_weight} kg); {'PASS' if r.step_ok else 'FAIL'}", fontsize=9)
     fig.tight_layout()
     return Rendered("step", "Step voltage", fig, worst.value)
 

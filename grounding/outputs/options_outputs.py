@@ -38,6 +38,14 @@ def _governing(o: Option) -> str:
     return " / ".join(names)
 
 
+def _pct(margin: float) -> str:
+    return "—" if margin == float("inf") else f"{margin * 100:+6.0f}%"
+
+
+def _limit_margin(limit, margin) -> str:
+    return "no limit" if limit is None else f"{limit:,.0f} V / {margin * 100:+.0f}%"
+
+
 def _cost(o: Option) -> str:
     q = o.quantities
     return "—" if q.cost is None else f"{q.cost:,.0f} {q.currency}".strip()
@@ -51,7 +59,7 @@ def compare_table(options: list[Option], best: int | None, reason: str) -> str:
         ("Worst touch", [_v(o.result.worst_touch) for o in options]),
         ("  limit / margin", [f"{o.result.tolerable_touch:,.0f} V / {o.touch_margin * 100:+.0f}%" for o in options]),
         ("Worst step", [_v(o.result.worst_step) for o in options]),
-        ("  limit / margin", [f"{o.result.tolerable_step:,.0f} V / {o.step_margin * 100:+.0f}%" for o in options]),
+        ("  limit / margin", [_limit_margin(o.result.tolerable_step, o.step_margin) for o in options]),
         ("Worst mesh", [_v(o.result.mesh_check.worst.value) if o.result.mesh_check.worst else "—" for o in options]),
         ("Verdicts", [_verdicts(o) for o in options]),
         *([("Worst scenario", [_governing(o) or "—" for o in options])]
@@ -89,7 +97,7 @@ def sweep_table(options: list[Option]) -> str:
         mesh = o.result.mesh_check.worst
         out.append(f"{i:>4}  {'✓' if o.passes else '✗':<4} {o.result.grid_resistance:8.4f} "
                    f"{o.result.worst_touch:9,.0f} {o.touch_margin * 100:+6.0f}% "
-                   f"{o.result.worst_step:8,.0f} {o.step_margin * 100:+6.0f}% "
+                   f"{o.result.worst_step:8,.0f} {_pct(o.step_margin):>7} "
                    f"{(f'{mesh.value:,.0f}' if mesh else '—'):>8} "
                    f"{o.quantities.mass_kg:9,.0f} {_cost(o):>10}  " + (f"{_governing(o)[:15]:<16}" if scen else "")
                    + o.label)
@@ -134,7 +142,8 @@ def options_csv(options: list[Option]) -> bytes:
         r, q = o.result, o.quantities
         w.writerow([i, o.label, f"{r.grid_resistance:.6g}", f"{r.ground_potential_rise:.6g}",
                     f"{r.worst_touch:.6g}", f"{r.tolerable_touch:.6g}", f"{o.touch_margin:.4f}",
-                    f"{r.worst_step:.6g}", f"{r.tolerable_step:.6g}", f"{o.step_margin:.4f}",
+                    f"{r.worst_step:.6g}", "" if r.tolerable_step is None else f"{r.tolerable_step:.6g}",
+                    "" if r.tolerable_step is None else f"{o.step_margin:.4f}",
                     f"{r.mesh_check.worst.value:.6g}" if r.mesh_check.worst else "", int(o.passes),
                     f"{q.conductor_length_m:.2f}", q.rod_count, f"{q.rod_length_m:.2f}", f"{q.mass_kg:.2f}",
                     "" if q.cost is None else f"{q.cost:.2f}"])
@@ -211,7 +220,7 @@ def comparison_report(options: list[Option], best: int | None, reason: str, date
             ["GPR", *[_v(o.result.ground_potential_rise) for o in options]],
             ["Touch / limit", *[f"{_v(o.result.worst_touch)} / {o.result.tolerable_touch:,.0f}"
                                 for o in options]],
-            ["Step / limit", *[f"{_v(o.result.worst_step)} / {o.result.tolerable_step:,.0f}"
+            ["Step / limit", *[f"{_v(o.result.worst_step)} / " + ("none" if o.result.tolerable_step is None else f"{o.result.tolerable_step:,.0f}")
                                for o in options]],
             ["All pass", *["PASS" if o.passes else "FAIL" for o in options]],
             ["Metal", *[f"{o.quantities.mass_kg:,.0f} kg" for o in options]],

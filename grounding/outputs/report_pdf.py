@@ -65,7 +65,9 @@ def _styles():
     return s
 
 
-def _v(x: float) -> str:
+def _v(x: float | None) -> str:
+    if x is None:
+        return "none"                      # a limit the standard does not set
     return f"{x / 1000:,.2f} kV" if abs(x) >= 10_000 else f"{x:,.0f} V"
 
 
@@ -112,7 +114,7 @@ def _verdict(ok):
 
 
 def _margin(value, limit):
-    return f"{(limit - value) / limit * 100:+.0f} %"
+    return "" if limit is None else f"{(limit - value) / limit * 100:+.0f} %"
 
 
 def _verdict_rows(r: StudyResult):
@@ -142,6 +144,38 @@ def _verdict_rows(r: StudyResult):
     rows.append(["Conductor size", f"{c.actual_area_mm2:.1f} mm² fitted", f"{c.required_area_mm2:.1f} mm² needed",
                  _margin(c.required_area_mm2, c.actual_area_mm2) if c.actual_area_mm2 else "", _verdict(c.ok), ""])
     return rows
+
+
+def _criteria_story(r: StudyResult, st, P) -> list:
+    """The standards the study was judged by: EN 50522's basis and every further standard's verdicts."""
+    from ..safety.en50522 import UTP_TABLE
+
+    out = []
+    names = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
+    for c in r.criteria:
+        if c.standard == "en50522":
+            b = c.zones[[z.name for z in c.zones].index(c.touch.zone)].limits.basis
+            curve = ", ".join(f"{t:g} s: {u:g} V" for t, u in UTP_TABLE)
+            out.append(P(f"EN 50522: permissible touch voltage U_Tp = {_v(b.permissible_touch_voltage_v)} for tf = "
+                         f"{b.fault_duration_s:g} s (log–log interpolation of the curve {curve}); body impedance Z_B = "
+                         f"{b.body_impedance_ohm:,.0f} Ω (IEC/TS 60479-1 Table 1, hand to hand, 50 %, dry), body "
+                         f"current {b.body_current_a * 1000:.0f} mA; additional resistance R_a = footwear "
+                         f"{b.footwear_resistance_ohm:,.0f} Ω + 1.5 m⁻¹ · ρs = {b.surface_resistance_ohm:,.0f} Ω; "
+                         f"prospective permissible touch voltage U_vTp = {_v(b.prospective_touch_voltage_v)} in the "
+                         f"governing zone. EN 50522 sets no general step limit: the step voltage is reported without "
+                         "a verdict. The curve and impedance values were recalled from memory: check them against "
+                         "the standards.", "small"))
+    if len(r.criteria) > 1:
+        rows = [["Standard", "Touch / limit", "Step / limit", "Mesh / limit", "All"]]
+        for c in r.criteria:
+            def cell(check):
+                if check.worst is None:
+                    return "—"
+                return f"{_v(check.worst.value)} / {_v(check.limit)} {_verdict(check.ok)}"
+            rows.append([names[c.standard], cell(c.touch), cell(c.step), cell(c.mesh), _verdict(c.passes)])
+        out += [P("Each standard asked for, with its own verdicts (the table above is the first one's):", "small"),
+                _table(rows, [30 * mm, 42 * mm, 42 * mm, 42 * mm, 14 * mm], st, verdict_col=4), Spacer(1, 2 * mm)]
+    return out
 
 
 def _touch_area_text(surface) -> str:
@@ -251,7 +285,10 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     story += [Spacer(1, 4 * mm), _table(ident, [35 * mm, 135 * mm], st, header=False), Spacer(1, 6 * mm)]
     overall = r.passes
     story.append(P(f"<b>Overall: {'all criteria PASS' if overall else 'at least one criterion FAILS'}</b> "
-                   f"(IEEE Std 80, {r.body_weight} kg body, ts = {f.shock_duration:g} s)", "h2"))
+                   + (f"(IEEE Std 80, {r.body_weight} kg body, ts = {f.shock_duration:g} s)"
+                      if c.criteria.standards[0] == "ieee80" else
+                      f"(EN 50522, tf = {f.shock_duration:g} s, footwear {c.criteria.footwear_resistance:g} Ω)")
+                   + (" — further standards in section 3.2" if len(c.criteria.standards) > 1 else ""), "h2"))
     story += [_table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
               Spacer(1, 4 * mm)]
     story.append(P(f"Grid resistance Rg = <b>{r.grid_resistance:.4f} Ω</b>; grid current IG = "
@@ -365,6 +402,8 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                      [40 * mm, 30 * mm, 100 * mm], st),
               P("3.2  Touch, step and mesh voltages", "h2"),
               _table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4)]
+    if r.limits.standard == "en50522" or len(r.criteria) > 1:
+        story.extend(_criteria_story(r, st, P))
     story.append(P("± : estimated discretisation error of the worst voltage (the solve at twice the segment "
                    "length re-evaluated at the same point, first-order Richardson estimate, plus the change found "
                    "with a map of twice the spacing). A verdict marked ? has its limit inside that band: it is "
@@ -386,7 +425,8 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                     "largest voltage between metal tied to remote earth (0 V) and the ground within reach.", "small"),
                   _table(_separate_rows(r), [30 * mm, 20 * mm, 38 * mm, 22 * mm, 38 * mm, 22 * mm], st),
                   Spacer(1, 2 * mm)]
-    story += [P(f"Tolerable limits (Dalziel, IEEE Std 80): touch (1000 + 1.5 Cs ρs)·k/√ts, step (1000 + 6 Cs ρs)·k/√ts; "
+    if r.limits.standard == "ieee80":
+        story += [P(f"Tolerable limits (Dalziel, IEEE Std 80): touch (1000 + 1.5 Cs ρs)·k/√ts, step (1000 + 6 Cs ρs)·k/√ts; "
                 f"50 kg: touch {_v(r.limits.touch[50])}, step {_v(r.limits.step[50])}; "
                 f"70 kg: touch {_v(r.limits.touch[70])}, step {_v(r.limits.step[70])}"
                 + (f" (governing zone {r.touch_check.zone})." if len(r.zones) > 1 else "."))]

@@ -57,6 +57,36 @@ def _zones(r: StudyResult) -> list[dict]:
     return out
 
 
+def _criteria(r: StudyResult) -> list[dict]:
+    """One entry per standard asked for; the first one's verdicts are the summary's."""
+    from ..safety.en50522 import UTP_TABLE
+
+    out = []
+    for c in r.criteria:
+        basis = None
+        if c.standard == "en50522":
+            b = c.zones[[z.name for z in c.zones].index(c.touch.zone)].limits.basis
+            basis = {"fault_duration_s": b.fault_duration_s,
+                     "permissible_touch_voltage_v": _num(b.permissible_touch_voltage_v),
+                     "additional_resistance_ohm": _num(b.additional_resistance_ohm),
+                     "footwear_resistance_ohm": _num(b.footwear_resistance_ohm),
+                     "surface_resistance_ohm": _num(b.surface_resistance_ohm),
+                     "body_impedance_ohm": _num(b.body_impedance_ohm), "body_current_a": _num(b.body_current_a),
+                     "curve": [{"fault_duration_s": t, "permissible_touch_voltage_v": u} for t, u in UTP_TABLE],
+                     "sources": "U_Tp: EN 50522 Annex B; Z_B: IEC/TS 60479-1 Table 1 (hand to hand, 50 %, dry); "
+                                "values recalled from memory, check against the standards"}
+        elif c.zones:
+            lim = c.zones[[z.name for z in c.zones].index(c.touch.zone)].limits
+            basis = {"surface_layer_factor_cs": _num(lim.cs), "surface_resistivity_ohm_m": _num(lim.surface_resistivity),
+                     "body_weight_kg": r.body_weight, "shock_duration_s": r.case.fault.shock_duration}
+        out.append({"standard": c.standard, "tolerable_touch_voltage_v": _num(c.touch.limit),
+                    "tolerable_step_voltage_v": _num(c.step.limit), "max_touch_voltage_v": _value(c.touch.worst),
+                    "max_step_voltage_v": _value(c.step.worst), "touch_ok": c.touch.ok, "step_ok": c.step.ok,
+                    "mesh_ok": c.mesh.ok, "all_pass": bool(c.passes), "governing_zone": c.touch.zone,
+                    "basis": basis})
+    return out
+
+
 def _separate(r: StudyResult) -> list[dict]:
     return [{"name": e.name, "connection": e.connection, "potential_v": _num(e.potential),
              "potential_fraction_of_gpr": _num(e.potential_fraction), "net_current_a": _num(e.net_current),
@@ -127,11 +157,12 @@ def _summary(r: StudyResult) -> dict:
         "governing_zone": {"touch": t.zone, "step": st.zone, "mesh": me.zone if me.worst else None},
         "body_weight_kg": r.body_weight,
         "touch_ok": bool(r.touch_ok),
-        "step_ok": bool(r.step_ok),
+        "step_ok": r.step_ok,
         "mesh_ok": r.mesh_ok,
         "separate_electrodes_ok": bool(r.separate_ok),
         "all_pass": bool(r.passes),
         "zones": _zones(r),
+        "criteria": _criteria(r),
         "segments": len(r.segments),
         "electrode_length_m": _num(r.segments.total_length),
     }

@@ -29,7 +29,9 @@ def _heading(title: str) -> str:
     return f"\n{title}\n{'=' * len(title)}"
 
 
-def _volts(v: float) -> str:
+def _volts(v: float | None) -> str:
+    if v is None:
+        return "none"                      # a limit the standard does not set
     return f"{v / 1000:,.2f} kV" if abs(v) >= 10_000 else f"{v:,.0f} V"
 
 
@@ -78,11 +80,16 @@ def safety_lines(r: StudyResult) -> list[str]:
         out.append("  Zones (where people stand); each criterion is judged in every zone against that zone's limit:")
         out.append(f"    {'zone':<22}{'covering':<22}{'Cs':>6}{'touch limit':>13}{'step limit':>12}")
         for z in r.zones:
-            out.append(f"    {z.name[:21]:<22}{covering_text(z.zone)[:21]:<22}{z.limits.cs:>6.3f}"
+            cs = "—" if z.limits.standard == "en50522" else f"{z.limits.cs:.3f}"
+            out.append(f"    {z.name[:21]:<22}{covering_text(z.zone)[:21]:<22}{cs:>6}"
                        f"{_volts(z.tolerable_touch):>13}{_volts(z.tolerable_step):>12}")
     else:
         z = r.zones[0]
-        out.append(_row("Surface-layer factor Cs", f"{z.limits.cs:.3f}", f"ρs = {z.limits.surface_resistivity:g} Ω·m"))
+        if z.limits.standard == "en50522":
+            out.append(_row("Standing surface", f"ρs = {z.limits.surface_resistivity:g} Ω·m", "R_a2 = 1.5 m⁻¹ · ρs"))
+        else:
+            out.append(_row("Surface-layer factor Cs", f"{z.limits.cs:.3f}",
+                            f"ρs = {z.limits.surface_resistivity:g} Ω·m"))
     if r.case.surface_layer is not None and not r.case.surface_zones:
         out.append("  !! The surface layer is assumed to cover the WHOLE map, also outside the fence. Where people")
         out.append("     stand on native soil the limits are much lower: describe the site with surface_zones.")
@@ -93,13 +100,15 @@ def safety_lines(r: StudyResult) -> list[str]:
         if check.worst is None:
             why = "no closed mesh" if check.ok is None else "NOT EVALUATED (no map point)"
             return f"  {name:<15}{'—':>10}{'':>9}{_volts(check.limit):>11}{'':>8}  {_verdict(check.ok):<9}{why}"
-        margin = check.margin * 100
+        margin = "" if check.margin is None else f"{check.margin * 100:.0f}%"
         where = [check.zone] if several else []
         if check.scenario:
             where.append(f"scenario '{check.scenario}'")
         err = "" if check.error is None else _volts(check.error)
         verdict = _verdict(check.ok) + ("?" if check.limit_within_error else "")
-        return (f"  {name:<15}{_volts(check.worst.value):>10}{err:>9}{_volts(check.limit):>11}{margin:>7.0f}%  "
+        if check.limit is None:
+            where.append(f"no {name.split()[0].lower()} limit in {_STANDARD_NAMES.get(check.standard, check.standard)}")
+        return (f"  {name:<15}{_volts(check.worst.value):>10}{err:>9}{_volts(check.limit):>11}{margin:>8}  "
                 f"{verdict:<9}{_at(check.worst)}" + (f"  {', '.join(where)}" if where else ""))
 
     out.append(line("Touch voltage", r.touch_check))
@@ -116,8 +125,16 @@ def safety_lines(r: StudyResult) -> list[str]:
                              f"{crit} {_volts(ext.value)}/{_volts(limit)} {_verdict(z.ok(crit))}")
             out.append(f"    {z.name[:21]:<22}" + ", ".join(parts))
     else:
-        other = 50 if r.body_weight == 70 else 70
-        out.append(f"  Limits for {other} kg: touch {_volts(r.limits.touch[other])}, step {_volts(r.limits.step[other])}")
+        if r.limits.standard == "ieee80":
+            other = 50 if r.body_weight == 70 else 70
+            out.append(f"  Limits for {other} kg: touch {_volts(r.limits.touch[other])}, "
+                       f"step {_volts(r.limits.step[other])}")
+        if r.limits.basis is not None:
+            b = r.limits.basis
+            out.append(f"  EN 50522: U_Tp {_volts(b.permissible_touch_voltage_v)} for tf = {b.fault_duration_s:g} s; "
+                       f"Z_B {b.body_impedance_ohm:,.0f} Ω, I_B {b.body_current_a * 1000:.0f} mA;")
+            out.append(f"    R_a = footwear {b.footwear_resistance_ohm:,.0f} Ω + 1.5·ρs {b.surface_resistance_ohm:,.0f} Ω "
+                       f"→ U_vTp {_volts(b.prospective_touch_voltage_v)}")
     if r.separate:
         out.append("  Separate electrodes (touch = |metal potential − surface potential| within "
                    f"{r.case.surface.touch_reach:g} m)" + (f", case as written ('{r.scenario}'):" if r.scenarios else ":"))
@@ -135,6 +152,8 @@ def safety_lines(r: StudyResult) -> list[str]:
             if e.transferred_voltage is not None:
                 out.append(f"      transferred: up to {_volts(e.transferred_voltage)} between the metal (remote earth) "
                            f"and the ground within reach, at {_at(e.transferred)}")
+    if len(r.criteria) > 1:
+        out.extend(other_criteria_lines(r))
     if r.scenarios:
         out.extend(scenario_lines(r))
     if not r.passes:
@@ -160,6 +179,36 @@ def safety_lines(r: StudyResult) -> list[str]:
     if r.contours:
         out.append("  Potential contours: " + "; ".join(
             f"{_volts(level)}: {len(lines)} line(s)" for level, lines in r.contours))
+    return out
+
+
+_STANDARD_NAMES = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
+
+
+def standard_heading(r: StudyResult) -> str:
+    """How the summary's verdicts are judged, in words."""
+    f = r.case.fault
+    if r.case.criteria.standards[0] == "en50522":
+        return f"Safety (EN 50522, tf = {f.shock_duration:g} s, footwear {r.case.criteria.footwear_resistance:g} Ω)"
+    return f"Safety (IEEE Std 80, {r.body_weight} kg, ts = {f.shock_duration:g} s)"
+
+
+def other_criteria_lines(r: StudyResult) -> list[str]:
+    """The verdicts of every further standard asked for, beside the first."""
+    out = []
+    for c in r.criteria[1:]:
+        out.append(f"  Also judged by {_STANDARD_NAMES[c.standard]} (its own verdicts):")
+        for name, check in (("touch", c.touch), ("step", c.step), ("mesh", c.mesh)):
+            if check.worst is None:
+                continue
+            where = f" in {check.zone}" if len(c.zones) > 1 else ""
+            out.append(f"    {name:<6}{_volts(check.worst.value):>10} / {_volts(check.limit):>9}  {_verdict(check.ok)}"
+                       + (where if check.limit is not None else f"  (no {name} limit in this standard)"))
+        for e in c.separate:
+            if e.touch.worst is not None:
+                out.append(f"    touch near {e.name}: {_volts(e.touch.worst.value)} / {_volts(e.touch.limit)}  "
+                           f"{_verdict(e.touch.ok)}")
+        out.append(f"    all {_STANDARD_NAMES[c.standard]} criteria: {'PASS' if c.passes else 'FAIL'}")
     return out
 
 
@@ -245,7 +294,9 @@ def study_summary(r: StudyResult) -> str:
     out.append(_row("Fault current 3I0", f"{f.current / 1000:.2f} kA",
                     f"Sf = {f.split_factor:g}, X/R = {xr}, {f.frequency:g} Hz"))
     out.append(_row("Durations", f"tf = {f.clearing_time:g} s", f"ts = {f.shock_duration:g} s (body current)"))
-    out.append(_row("Body weight", f"{c.criteria.body_weight} kg", "IEEE Std 80, Dalziel"))
+    out.append(_row("Criteria", " + ".join(_STANDARD_NAMES[x] for x in c.criteria.standards),
+                    f"{c.criteria.body_weight} kg (IEEE Std 80)" if "ieee80" in c.criteria.standards else
+                    f"footwear {c.criteria.footwear_resistance:g} Ω"))
     rods = r.segments.is_rod
     out.append(_row("Electrodes", f"{r.segments.total_length:,.1f} m",
                     f"{len(el.grids)} grid(s), {len(el.conductors)} conductor(s), {len(el.rods)} rod(s); "
@@ -272,7 +323,7 @@ def study_summary(r: StudyResult) -> str:
                        f"{rd.segments} segments: {vals}")
         out.extend(textwrap.wrap(cv.note, WIDTH - 4, initial_indent="    ", subsequent_indent="    "))
 
-    out.append(_heading(f"Safety (IEEE Std 80, {r.body_weight} kg, ts = {f.shock_duration:g} s)"))
+    out.append(_heading(standard_heading(r)))
     out.extend(safety_lines(r))
 
     if r.uncertainty is not None:

@@ -56,9 +56,11 @@ class ConductorCheck:
 
 
 def check_conductor(current_a: float, duration: float, material: Material, ambient: float,
-                    max_temperature: float | None, smallest_diameter: float) -> ConductorCheck:
-    """Compare the smallest conductor (diameter in m) with the minimum area for the fault heat."""
+                    max_temperature: float | None, smallest_diameter: float,
+                    smallest_area: float | None = None) -> ConductorCheck:
+    """Compare the smallest conductor with the minimum area for the fault heat: its nominal cross-section
+    (m², e.g. of a stranded conductor) when given, else the circle of its diameter (m)."""
     tm = material.fusing_temperature if max_temperature is None else max_temperature
     need = minimum_area_mm2(current_a / 1000.0, duration, material, ambient, tm)
-    have = math.pi * (smallest_diameter * 1000.0) ** 2 / 4.0
+    have = smallest_area * 1e6 if smallest_area is not None else math.pi * (smallest_diameter * 1000.0) ** 2 / 4.0
     return ConductorCheck(current_a, need, have, tm, ambient, have >= need)

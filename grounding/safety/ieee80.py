@@ -64,13 +64,20 @@ class Limits:
     surface_resistivity : float
         ρs used in the limits, Ω·m (the top soil when there is no surface layer).
     touch, step : dict of int to float
-        Tolerable touch and step voltage per body weight (50, 70 kg), V.
+        Tolerable touch and step voltage per body weight (50, 70 kg), V; a step limit is None where the
+        standard sets none.
+    standard : str
+        ``ieee80`` or ``en50522``.
+    basis : object
+        How the limit was obtained, for standards that need more than Cs and ρs (EN 50522: TouchBasis).
     """
 
     cs: float
     surface_resistivity: float
     touch: dict[int, float]
-    step: dict[int, float]
+    step: dict[int, float | None]
+    standard: str = "ieee80"
+    basis: object = None
 
 
 def tolerable_limits(top_soil_resistivity: float, surface_layer, shock_duration: float) -> Limits:

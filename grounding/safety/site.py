@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 from ..case import SurfaceZone
 from ..surface import Extreme, ZoneExtremes
+from .en50522 import DEFAULT_FOOTWEAR, prospective_touch_voltage
 from .ieee80 import Limits, tolerable_limits
 
 #: Convergence order of the worst voltages in the segment length (first order, as measured for Rg and
@@ -50,16 +51,17 @@ class ZoneVerdict:
         return self.limits.touch[self.body_weight]
 
     @property
-    def tolerable_step(self) -> float:
-        """V."""
+    def tolerable_step(self) -> float | None:
+        """V; None where the standard sets no step limit."""
         return self.limits.step[self.body_weight]
 
     def ok(self, criterion: str) -> bool | None:
-        """Verdict of ``touch``, ``step`` or ``mesh`` in this zone; None where it was not evaluated."""
+        """Verdict of ``touch``, ``step`` or ``mesh`` in this zone; None where it was not evaluated or the
+        standard sets no limit."""
         ext = getattr(self.extremes, criterion)
-        if ext is None:
-            return None
         limit = self.tolerable_step if criterion == "step" else self.tolerable_touch
+        if ext is None or limit is None:
+            return None
         return bool(ext.value <= limit)
 
 
@@ -83,15 +85,16 @@ class Check:
     """
 
     worst: Extreme | None
-    limit: float
+    limit: float | None
     ok: bool | None
     zone: str
     scenario: str = ""
+    standard: str = "ieee80"
 
     @property
     def margin(self) -> float | None:
-        """(limit − worst) / limit, or None."""
-        return None if self.worst is None else (self.limit - self.worst.value) / self.limit
+        """(limit − worst) / limit, or None (nothing evaluated, or no limit)."""
+        return None if self.worst is None or self.limit is None else (self.limit - self.worst.value) / self.limit
 
     @property
     def error(self) -> float | None:
@@ -103,12 +106,26 @@ class Check:
     def limit_within_error(self) -> bool:
         """True when the limit lies inside the worst voltage's error band: the verdict could flip."""
         e = self.error
-        return e is not None and self.worst is not None and abs(self.worst.value - self.limit) <= e
+        return e is not None and self.worst is not None and self.limit is not None and \
+            abs(self.worst.value - self.limit) <= e
 
 
-def zone_limits(top_soil_resistivity: float, zones: tuple[SurfaceZone, ...], shock_duration: float) -> tuple[Limits, ...]:
-    """IEEE Std 80 limits for every zone: the zone's covering, or the native soil (Cs = 1)."""
-    return tuple(tolerable_limits(top_soil_resistivity, z.layer, shock_duration) for z in zones)
+def zone_limits(top_soil_resistivity: float, zones: tuple[SurfaceZone, ...], shock_duration: float,
+                standard: str = "ieee80", footwear: float = DEFAULT_FOOTWEAR) -> tuple[Limits, ...]:
+    """Limits for every zone: the zone's covering, or the native soil.
+
+    ``ieee80``: Dalziel's tolerable touch and step voltages with Cs (IEEE Std 80); ``en50522``: the
+    prospective permissible touch voltage with footwear and the standing surface's resistance, no step limit.
+    """
+    if standard == "ieee80":
+        return tuple(tolerable_limits(top_soil_resistivity, z.layer, shock_duration) for z in zones)
+    out = []
+    for z in zones:
+        rho_s = top_soil_resistivity if z.layer is None else z.layer.resistivity
+        basis = prospective_touch_voltage(shock_duration, footwear, rho_s)
+        u = basis.prospective_touch_voltage_v
+        out.append(Limits(1.0, rho_s, {50: u, 70: u}, {50: None, 70: None}, "en50522", basis))
+    return tuple(out)
 
 
 def governing(verdicts: tuple[ZoneVerdict, ...], criterion: str, needed: bool = True) -> Check:
@@ -123,16 +140,19 @@ def governing(verdicts: tuple[ZoneVerdict, ...], criterion: str, needed: bool = 
         if ext is None:
             continue
         limit = v.tolerable_step if criterion == "step" else v.tolerable_touch
-        ratio = ext.value / limit
+        ratio = ext.value / limit if limit is not None else ext.value      # no limit: the largest value
         if best_ratio is None or ratio > best_ratio:
             best, best_ratio = (v, ext, limit), ratio
+    standard = verdicts[0].limits.standard
     if best is None:
         first = verdicts[0]
         limit = first.tolerable_step if criterion == "step" else first.tolerable_touch
-        return Check(None, limit, False if needed else None, first.name)
+        return Check(None, limit, False if needed and limit is not None else None, first.name, standard=standard)
     v, ext, limit = best
+    if limit is None:
+        return Check(ext, None, None, v.name, standard=standard)
     oks = [v2.ok(criterion) for v2 in verdicts if v2.ok(criterion) is not None]
-    return Check(ext, limit, all(oks), v.name)
+    return Check(ext, limit, all(oks), v.name, standard=standard)
 
 
 @dataclass(frozen=True)
@@ -188,3 +208,21 @@ def separate_result(name: str, connection: str, potential: float, gpr: float, ne
                 transferred = t
     return SeparateResult(name, connection, potential, potential / gpr if gpr else 0.0, net_current, check,
                           zone_touch, transferred)
+
+
+@dataclass(frozen=True)
+class CriteriaResult:
+    """The verdicts of one standard: per zone, the governing check per criterion, separate electrodes."""
+
+    standard: str
+    zones: tuple[ZoneVerdict, ...]
+    touch: Check
+    step: Check
+    mesh: Check
+    separate: tuple[SeparateResult, ...]
+
+    @property
+    def passes(self) -> bool:
+        """Touch passes everywhere; step and mesh do not fail (None: no limit, no meshes); separate metal passes."""
+        return bool(self.touch.ok) and self.step.ok is not False and self.mesh.ok is not False and \
+            all(e.touch.ok for e in self.separate)
