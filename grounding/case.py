@@ -131,6 +131,10 @@ class Fault:
         Fault duration tf, s (decrement factor, conductor heating).
     shock_duration : float
         Shock duration ts, s (body-current limit).
+    sources : tuple of (name, current A, X/R or None)
+        The contributions 3·I0 is the sum of, when given per source.
+    split_basis : str
+        Where Sf came from, in words (empty: given as a number).
     """
 
     current: float
@@ -139,6 +143,8 @@ class Fault:
     split_factor: float = 1.0
     x_over_r: float | None = None
     frequency: float = 50.0
+    sources: tuple[tuple[str, float, float | None], ...] = ()
+    split_basis: str = ""
 
 
 #: Safety criteria a study can judge by.
@@ -192,6 +198,7 @@ class Grid:
     key: str = ""
     name: str = ""
     cross_section: float | None = None
+    material: str = ""
 
     @property
     def area(self) -> float:
@@ -210,6 +217,7 @@ class Conductor:
     key: str = ""
     name: str = ""
     cross_section: float | None = None
+    material: str = ""
 
     @property
     def area(self) -> float:
@@ -227,6 +235,7 @@ class Rod:
     key: str = ""
     name: str = ""
     cross_section: float | None = None
+    material: str = ""
 
     @property
     def area(self) -> float:

@@ -50,6 +50,36 @@ class ElectrodeSections(Checks):
     def _label(self, p: str, m: dict) -> str:
         return self.name(f"{p}.name", m["name"]) if "name" in m else ""
 
+    def element_material(self, p: str, m: dict) -> str:
+        """An element's own material (empty: the electrodes' material)."""
+        if "material" not in m:
+            return ""
+        material = m["material"]
+        if material not in MATERIALS:
+            near = difflib.get_close_matches(str(material), list(MATERIALS), n=1, cutoff=0.4)
+            hint = f"did you mean '{near[0]}'?" if near else f"choose one of {', '.join(MATERIALS)}"
+            raise self.doc.fail(f"{p}.material", f"'{material}' is not in the material table; {hint}")
+        return material
+
+    def size(self, p: str, m: dict) -> tuple[float, float | None]:
+        """(diameter for the field solution, m; nominal cross-section, m²) from ``diameter`` (and
+        ``cross_section``) or from ``tape: [width, thickness]`` (a flat strip: equivalent diameter width/2 from
+        the conformal map of a thin strip onto a circle, Dwight 1936; true area width × thickness)."""
+        if "tape" in m:
+            if "diameter" in m or "cross_section" in m:
+                raise self.doc.fail(f"{p}.tape", "cannot stand beside diameter or cross_section; a tape gives both")
+            w, t = self.vector(f"{p}.tape", m["tape"], 2, "m", "width, thickness")
+            if not 0 < t <= w:
+                raise self.doc.fail(f"{p}.tape", f"needs 0 < thickness <= width (m), got [{w:g}, {t:g}]")
+            if t > 0.25 * w:
+                raise self.doc.fail(f"{p}.tape", "is not a thin strip (thickness above a quarter of the width); give "
+                                                 "the diameter of a round conductor of the same girth instead")
+            return self.diameter(f"{p}.tape", w / 2), w * t
+        if "diameter" not in m:
+            raise self.doc.fail(p, "needs diameter (m) or tape: [width, thickness] (m)")
+        d = self.diameter(f"{p}.diameter", m["diameter"])
+        return d, self.cross_section(p, m, d)
+
     def cross_section(self, p: str, m: dict, diameter: float) -> float | None:
         """Nominal cross-section (m²) of a stranded or shaped conductor; it must fit in the circle of its
         outer diameter."""
@@ -64,8 +94,8 @@ class ElectrodeSections(Checks):
         return a
 
     def grid(self, p: str, value: Any) -> Grid:
-        m = self.mapping(p, value, ("origin", "size", "meshes", "depth", "diameter", "name", "cross_section"),
-                         ("origin", "size", "meshes", "depth", "diameter"))
+        m = self.mapping(p, value, ("origin", "size", "meshes", "depth", "diameter", "name", "cross_section", "tape",
+                                    "material"), ("origin", "size", "meshes", "depth"))
         origin = self.vector(f"{p}.origin", m["origin"], 2, "m", "x, y")
         size = self.vector(f"{p}.size", m["size"], 2, "m", "along x, along y")
         for i in range(2):
@@ -76,28 +106,29 @@ class ElectrodeSections(Checks):
             raise self.doc.fail(f"{p}.meshes", f"must be a list of 2 whole numbers (along x, along y), got {fmt(meshes)}")
         meshes = tuple(self.integer(f"{p}.meshes[{i}]", v, le=MAX_MESHES) for i, v in enumerate(meshes))
         depth = self.depth(f"{p}.depth", self.number(f"{p}.depth", m["depth"], "m"))
-        d = self.diameter(f"{p}.diameter", m["diameter"])
+        d, area = self.size(p, m)
         return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p, name=self._label(p, m),
-                    cross_section=self.cross_section(p, m, d))
+                    cross_section=area, material=self.element_material(p, m))
 
     def conductor(self, p: str, value: Any) -> Conductor:
-        m = self.mapping(p, value, ("start", "end", "diameter", "name", "cross_section"),
-                         ("start", "end", "diameter"))
+        m = self.mapping(p, value, ("start", "end", "diameter", "name", "cross_section", "tape", "material"),
+                         ("start", "end"))
         a = self.vector(f"{p}.start", m["start"], 3, "m", "x, y, depth")
         b = self.vector(f"{p}.end", m["end"], 3, "m", "x, y, depth")
         self.depth(f"{p}.start[2]", a[2])
         self.depth(f"{p}.end[2]", b[2])
         if math.dist(a, b) <= 1e-6:
             raise self.doc.fail(p, "has zero length (start = end); give two different points")
-        d = self.diameter(f"{p}.diameter", m["diameter"])
-        return Conductor(a, b, d, key=p, name=self._label(p, m), cross_section=self.cross_section(p, m, d))
+        d, area = self.size(p, m)
+        return Conductor(a, b, d, key=p, name=self._label(p, m), cross_section=area, material=self.element_material(p, m))
 
     def rod(self, p: str, value: Any) -> Rod:
-        m = self.mapping(p, value, ("top", "length", "diameter", "name", "cross_section"),
+        m = self.mapping(p, value, ("top", "length", "diameter", "name", "cross_section", "material"),
                          ("top", "length", "diameter"))
         top = self.vector(f"{p}.top", m["top"], 3, "m", "x, y, depth")
         if top[2] < 0:
             raise self.doc.fail(f"{p}.top[2]", f"depth must be >= 0 m (z is positive downward), got {top[2]:g}")
         length = self.number(f"{p}.length", m["length"], "m", gt=0)
         d = self.diameter(f"{p}.diameter", m["diameter"])
-        return Rod(top, length, d, key=p, name=self._label(p, m), cross_section=self.cross_section(p, m, d))
+        return Rod(top, length, d, key=p, name=self._label(p, m), cross_section=self.cross_section(p, m, d),
+                   material=self.element_material(p, m))

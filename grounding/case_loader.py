@@ -282,20 +282,60 @@ class _CaseReader(ElectrodeSections, SiteSections):
         return SurfaceLayer(rho, h)
 
     def fault(self, value: Any) -> Fault:
-        m = self.mapping("fault", value, ("current", "split_factor", "x_over_r", "frequency", "clearing_time",
-                                          "shock_duration"), ("current", "clearing_time"))
-        current = self.number("fault.current", m["current"], "A", gt=0)
+        m = self.mapping("fault", value, ("current", "sources", "split_factor", "split", "x_over_r", "frequency",
+                                          "clearing_time", "shock_duration"), ("clearing_time",))
+        if ("current" in m) == ("sources" in m):
+            raise self.doc.fail("fault", "needs either current (3·I0, A) or sources (a list of {name, current, x_over_r})")
+        sources = ()
+        if "sources" in m:
+            items = self.sequence("fault.sources", m["sources"])
+            if not items:
+                raise self.doc.fail("fault.sources", "is empty; list the contributions {name, current, x_over_r}")
+            out = []
+            for i, item in enumerate(items):
+                p = f"fault.sources[{i}]"
+                sm = self.mapping(p, item, ("name", "current", "x_over_r"), ("name", "current"))
+                xr_i = None if sm.get("x_over_r") is None else self.number(f"{p}.x_over_r", sm["x_over_r"], "", ge=0,
+                                                                             le=200)
+                out.append((self.name(f"{p}.name", sm["name"]), self.number(f"{p}.current", sm["current"], "A", gt=0),
+                            xr_i))
+            sources = tuple(out)
+            current = sum(c for _, c, _ in sources)
+            if "x_over_r" in m:
+                raise self.doc.fail("fault.x_over_r", "cannot stand beside fault.sources; give each source its x_over_r")
+        else:
+            current = self.number("fault.current", m["current"], "A", gt=0)
         tf = self.number("fault.clearing_time", m["clearing_time"], "s", gt=0, le=30)
         ts = self.number("fault.shock_duration", m["shock_duration"], "s", ge=0.03, le=3.0) \
             if "shock_duration" in m else tf
         if not 0.03 <= ts <= 3.0:
             raise self.doc.fail("fault.clearing_time", f"= {ts:g} s is outside 0.03 s to 3 s, where Dalziel's "
                                 "body-current limit holds; give fault.shock_duration within that range")
-        sf = self.number("fault.split_factor", m.get("split_factor", 1.0), "", gt=0, le=1)
-        xr = m.get("x_over_r")
-        xr = None if xr is None else self.number("fault.x_over_r", xr, "", ge=0, le=200)
+        basis = ""
+        if "split" in m:
+            if "split_factor" in m:
+                raise self.doc.fail("fault.split", "cannot stand beside fault.split_factor; give one or the other")
+            sm = self.mapping("fault.split", m["split"], ("remote_current", "local_current"),
+                              ("remote_current", "local_current"))
+            remote = self.number("fault.split.remote_current", sm["remote_current"], "A", gt=0)
+            local = self.number("fault.split.local_current", sm["local_current"], "A", ge=0)
+            sf = remote / (remote + local)
+            basis = (f"Sf = remote / (remote + local) = {remote:g} / ({remote:g} + {local:g}) A: the current fed from "
+                     "local sources circulates in the grid; only the remote contribution returns through the earth")
+        else:
+            sf = self.number("fault.split_factor", m.get("split_factor", 1.0), "", gt=0, le=1)
+        if sources:
+            given = [x for _, _, x in sources if x is not None]
+            xr = max(given) if given else None
+            names = ", ".join(f"{n} {c / 1000:g} kA" + (f" X/R {x:g}" if x is not None else "") for n, c, x in sources)
+            basis = (basis + "; " if basis else "") + (f"3I0 = sum of the sources ({names}), taken in phase "
+                                                       "(conservative); X/R the largest given")
+        else:
+            xr = m.get("x_over_r")
+            xr = None if xr is None else self.number("fault.x_over_r", xr, "", ge=0, le=200)
         f = self.number("fault.frequency", m.get("frequency", 50.0), "Hz", gt=0)
-        return Fault(current=current, clearing_time=tf, shock_duration=ts, split_factor=sf, x_over_r=xr, frequency=f)
+        return Fault(current=current, clearing_time=tf, shock_duration=ts, split_factor=sf, x_over_r=xr, frequency=f,
+                     sources=sources, split_basis=basis)
 
     def criteria(self, value: Any) -> Criteria:
         m = self.mapping("criteria", value or {}, ("body_weight", "standard", "footwear_resistance"))

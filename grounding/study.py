@@ -20,7 +20,7 @@ from .cautions import CAUTIONS
 from .errors import ModelTooLargeError
 from .geometry import Segments, segment
 from .materials import MATERIALS
-from .safety.conductor import ConductorCheck, check_conductor
+from .safety.conductor import ConductorCheck, check_conductor, governing_conductor
 from .case_site import shapely_polygon
 from .safety.ieee80 import Limits, decrement_factor
 from .safety.simplified import SimplifiedResult, simplified_method
@@ -509,9 +509,10 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> S
                             "to draw the line")
     el = case.electrodes
     horizontal = list(el.grids) + list(el.conductors)
-    smallest = min(horizontal or el.rods, key=lambda x: x.area)
-    conductor = check_conductor(df * fault.current, fault.clearing_time, MATERIALS[el.material],
-                                el.ambient_temperature, el.max_temperature, smallest.diameter, smallest.area)
+    conductor = governing_conductor([
+        check_conductor(df * fault.current, fault.clearing_time, MATERIALS[x.material or el.material],
+                        el.ambient_temperature, el.max_temperature, x.diameter, x.area, x.key)
+        for x in (horizontal or el.rods)])
     return StudyResult(case=case, segments=segments, kernel=unit.kernel, solution=solution, decrement_factor=df,
                        grid_current=ig, ground_potential_rise=gpr, segment_currents=currents, surface=surface,
                        limits=governing_limits, simplified=simplified_method(case, ig), conductor=conductor,

@@ -104,3 +104,41 @@ def test_cross_section_larger_than_its_circle_refused(tmp_path):
                               "cross_section: 120}]\n"))
     run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
     assert run.returncode == 2 and "larger than the circle" in run.stderr
+
+
+def test_per_element_material_changes_the_required_area():
+    """IEEE Std 80 sizing with each element's own constants: a zinc-coated steel conductor (fusing 419 °C) needs
+    far more area than annealed copper (1083 °C) for the same current (the standard's Table 1 constants,
+    recalled from memory)."""
+    base = ("grids: [{origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, diameter: 0.0135}]\n"
+            "conductors: [{start: [20, 10, 0.5], end: [30, 10, 0.5], diameter: 0.0135%s}]\n")
+    copper = run_study(parse_case(case_text(base % "", extra="surface: {resolution: 2.0}\n")), estimate_error=False)
+    steel = run_study(parse_case(case_text(base % ", material: zinc-coated-steel",
+                                           extra="surface: {resolution: 2.0}\n")), estimate_error=False)
+    assert steel.conductor.element == "electrodes.conductors[0]" and steel.conductor.material == "zinc-coated-steel"
+    assert steel.conductor.required_area_mm2 > 3 * copper.conductor.required_area_mm2
+
+
+def test_tape_conductor_equivalent_diameter():
+    """A thin strip of width w acts as a round wire of diameter w/2 (conformal map of a strip onto a circle;
+    Dwight 1936): a ring of 40 × 4 mm tape has the Rg of a ring of 20 mm round wire; sizing uses 160 mm²."""
+    from tests.helpers import ring_conductors
+
+    def ring(size: str) -> str:
+        return ring_conductors(20.0, 0.5, 0.02, 48).replace("diameter: 0.02", size)
+
+    tape = run_study(parse_case(case_text(ring("tape: [0.04, 0.004]"), extra="surface: {resolution: 2.0}\n")),
+                     estimate_error=False)
+    round_ = run_study(parse_case(case_text(ring("diameter: 0.02"), extra="surface: {resolution: 2.0}\n")),
+                       estimate_error=False)
+    assert tape.grid_resistance == pytest.approx(round_.grid_resistance, rel=1e-12)
+    assert tape.conductor.actual_area_mm2 == pytest.approx(160.0)
+
+
+def test_fault_sources_and_split_from_currents():
+    case = parse_case(case_text(GRID, fault="{sources: [{name: T1, current: 6000, x_over_r: 12}, "
+                                           "{name: line, current: 4000, x_over_r: 20}], "
+                                           "split: {remote_current: 4000, local_current: 6000}, clearing_time: 0.5}"))
+    f = case.fault
+    assert f.current == 10000 and f.x_over_r == 20 and f.split_factor == pytest.approx(0.4)
+    assert "remote" in f.split_basis and "T1" in f.split_basis

@@ -353,6 +353,8 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                   ["Clearing time tf", f"{f.clearing_time:g} s", "decrement factor, conductor heating"],
                   ["Decrement factor Df", f"{r.decrement_factor:.4f}", "√(1 + (Ta/tf)(1 − e^(−2tf/Ta))), Ta = (X/R)/(2πf)"],
                   ["Grid current IG", f"{r.grid_current / 1000:.3f} kA", "IG = Df · Sf · 3I0"]]
+    if f.split_basis:
+        fault_rows.append(["Basis", "", Paragraph(f.split_basis, st["small"])])
     story.append(_table(fault_rows, [40 * mm, 30 * mm, 100 * mm], st))
     story.append(P("1.3  Criteria and discretisation", "h2"))
     el = c.electrodes
@@ -450,7 +452,8 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                   _table(rows, [45 * mm, 35 * mm, 35 * mm, 40 * mm], st), image("uncertainty", 150 * mm)]
     cc = r.conductor
     story += [P("3.3  Conductor sizing", "h2"),
-              P(f"IEEE Std 80 equation for {el.material} with the standard's material constants: the current "
+              P(f"IEEE Std 80 equation for each conductor's material with the standard's constants; governing: "
+                f"{cc.element} ({cc.material or el.material}). The current "
                 f"Df · 3I0 = {cc.current_a / 1000:.2f} kA for tf = {f.clearing_time:g} s, from Ta = "
                 f"{cc.ambient_temperature:g} °C to Tm = {cc.max_temperature:g} °C needs "
                 f"<b>{cc.required_area_mm2:.1f} mm²</b>; the smallest conductor has {cc.actual_area_mm2:.1f} mm² "

@@ -217,7 +217,8 @@ def results_dict(r: StudyResult) -> dict:
                       "sizing_current_a": _num(r.conductor.current_a),
                       "max_temperature_c": r.conductor.max_temperature,
                       "ambient_temperature_c": r.conductor.ambient_temperature,
-                      "material": c.electrodes.material},
+                      "material": r.conductor.material or c.electrodes.material,
+                      "element": r.conductor.element},
         "diagnostics": {
             "assemble_s": _num(r.timings["assemble_s"], 4),
             "solve_s": _num(r.timings["solve_s"], 4),

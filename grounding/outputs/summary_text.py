@@ -293,6 +293,8 @@ def study_summary(r: StudyResult) -> str:
     xr = "none (Df = 1)" if f.x_over_r is None else f"{f.x_over_r:g}"
     out.append(_row("Fault current 3I0", f"{f.current / 1000:.2f} kA",
                     f"Sf = {f.split_factor:g}, X/R = {xr}, {f.frequency:g} Hz"))
+    if f.split_basis:
+        out.extend(textwrap.wrap(f.split_basis, WIDTH - 4, initial_indent="    ", subsequent_indent="    "))
     out.append(_row("Durations", f"tf = {f.clearing_time:g} s", f"ts = {f.shock_duration:g} s (body current)"))
     out.append(_row("Criteria", " + ".join(_STANDARD_NAMES[x] for x in c.criteria.standards),
                     f"{c.criteria.body_weight} kg (IEEE Std 80)" if "ieee80" in c.criteria.standards else
@@ -348,7 +350,8 @@ def study_summary(r: StudyResult) -> str:
     out.append(_row("Sizing current", f"{cc.current_a / 1000:.2f} kA", f"Df · 3I0 for tf = {f.clearing_time:g} s"))
     out.append(_row("Required area", f"{cc.required_area_mm2:.1f} mm²",
                     f"Tm = {cc.max_temperature:g} °C, Ta = {cc.ambient_temperature:g} °C"))
-    out.append(_row("Smallest conductor", f"{cc.actual_area_mm2:.1f} mm²", _verdict(cc.ok)))
+    out.append(_row("Governing conductor", f"{cc.actual_area_mm2:.1f} mm²",
+                    f"{_verdict(cc.ok)}: {cc.element} ({cc.material}), least area for what its material needs"))
 
     if c.probes:
         out.append(_heading("Probes"))

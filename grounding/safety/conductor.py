@@ -53,14 +53,22 @@ class ConductorCheck:
     max_temperature: float
     ambient_temperature: float
     ok: bool
+    element: str = ""
+    material: str = ""
 
 
 def check_conductor(current_a: float, duration: float, material: Material, ambient: float,
                     max_temperature: float | None, smallest_diameter: float,
-                    smallest_area: float | None = None) -> ConductorCheck:
-    """Compare the smallest conductor with the minimum area for the fault heat: its nominal cross-section
-    (m², e.g. of a stranded conductor) when given, else the circle of its diameter (m)."""
-    tm = material.fusing_temperature if max_temperature is None else max_temperature
+                    smallest_area: float | None = None, element: str = "") -> ConductorCheck:
+    """Compare a conductor with the minimum area for the fault heat: its nominal cross-section (m², e.g. of a
+    stranded conductor) when given, else the circle of its diameter (m). Tm is the material's fusing
+    temperature, or ``max_temperature`` when that is lower."""
+    tm = material.fusing_temperature if max_temperature is None else min(max_temperature, material.fusing_temperature)
     need = minimum_area_mm2(current_a / 1000.0, duration, material, ambient, tm)
     have = smallest_area * 1e6 if smallest_area is not None else math.pi * (smallest_diameter * 1000.0) ** 2 / 4.0
-    return ConductorCheck(current_a, need, have, tm, ambient, have >= need)
+    return ConductorCheck(current_a, need, have, tm, ambient, have >= need, element, material.name)
+
+
+def governing_conductor(checks: list[ConductorCheck]) -> ConductorCheck:
+    """The element with the least area relative to what its material needs (ties: the first)."""
+    return min(checks, key=lambda c: c.actual_area_mm2 / c.required_area_mm2)
