@@ -5,6 +5,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 from ..case import Case
 from ..geometry import Segments
 from ..materials import MATERIALS
@@ -45,6 +47,13 @@ def quantities(r: StudyResult) -> Quantities:
     return layout_quantities(r.case, r.segments, r.surface.touch_area)
 
 
+def _kg_per_m(element, default_material: str, radius: float) -> float:
+    """kg per metre of an element: its nominal area (or the circle of its radius) times its material's density."""
+    if element is None:
+        return math.pi * radius ** 2 * MATERIALS[default_material].density
+    return element.area * MATERIALS[element.material or default_material].density
+
+
 def layout_quantities(c: Case, seg: Segments, touch_area) -> Quantities:
     """Quantities of a layout from its geometry alone (no solve needed). Conductor lengths come from the
     merged, noded geometry, so metal shared by two electrodes is counted once; separate electrodes (fences,
@@ -57,8 +66,12 @@ def layout_quantities(c: Case, seg: Segments, touch_area) -> Quantities:
     rod = seg.is_rod
     conductor_len = float(seg.length[~rod & keep].sum())
     rod_len = float(seg.length[rod & keep].sum())
-    area_per_m = math.pi * seg.radius ** 2
-    mass = float((seg.length * area_per_m)[keep].sum()) * MATERIALS[c.electrodes.material].density
+    # mass per metre of each conductor from its element's nominal area (tape, stranded) and own material
+    el = c.electrodes
+    elements = {x.key: x for x in el.grids + el.conductors + el.rods}
+    per_m = np.array([_kg_per_m(elements.get(k.split(" + ")[0]), el.material, r)
+                      for k, r in zip(seg.conductors.keys, seg.conductors.radius)])
+    mass = float((seg.length * per_m[seg.conductor])[keep].sum())
     rod_count = int((seg.conductors.is_rod & own).sum())
     covered = [(shapely_polygon(z.area).area, z.layer.thickness) for z in c.surface_zones if z.layer is not None]
     if c.surface_layer is not None:
