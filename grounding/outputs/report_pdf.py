@@ -498,6 +498,16 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         "touch voltage inside the grid meshes.",
         "Validity: conductor impedance neglected (equipotential electrodes); power-frequency earth fault; soil "
         "as given (its data dominate the answer); Dalziel's limits for 0.03 s ≤ ts ≤ 3 s.",
+        "Criteria: IEEE Std 80 (Dalziel's body current for a 50 or 70 kg body, 1000 Ω body resistance, the feet's "
+        "resistance 1.5 Cs ρs in parallel for touch and 6 Cs ρs in series for step) and, where asked, EN 50522 "
+        "(the permissible touch voltage U_Tp(tf) with the body impedance of IEC/TS 60479-1 and the additional "
+        "resistance of footwear and the standing surface, 1.5 m⁻¹ · ρs; no step limit). Each surface zone has its "
+        "own limits; a step belongs to the zone of its foot with the lower limit; every criterion must pass in "
+        "every zone and every scenario.",
+        "How sure: the worst voltages carry a discretisation-error estimate (the solve at twice the segment "
+        "length and the search on a map of twice the spacing); a limit inside that band makes the verdict "
+        "marginal. Where the soil's parameter uncertainty is known, it is carried to σ and to the probability "
+        "that each limit is exceeded (first order in the log-parameters, log-normal results).",
     ):
         story.append(P(text))
     story.append(P("6.1  Validation (computed now, with the same code)", "h2"))
