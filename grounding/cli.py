@@ -273,7 +273,7 @@ def sweep(case_file, by, json_file, csv_file, plot_file, quiet, workers, cluster
 @click.option("--by", type=click.Choice(["material", "cost"]), default="material", show_default=True,
               help="What to minimise.")
 @click.option("--out", "out_file", type=click.Path(dir_okay=False),
-              help="Where to write the chosen layout's case file (default CASE-design.yaml beside CASE).")
+              help="Where to write the chosen layout's case file (default CASE-design.yaml in the current folder).")
 @_parallel_options
 def design(case_file, by, out_file, quiet, workers, cluster):
     """Search CASE's sweep space for the least material (or cost) that passes every criterion."""
@@ -296,7 +296,7 @@ def design(case_file, by, out_file, quiet, workers, cluster):
         files = []
         if found.best is not None:
             chosen = next(v for v in variants if v.label == found.best.label)
-            out = out_file or str(Path(case_file).with_name(Path(case_file).stem + "-design.yaml"))
+            out = out_file or Path(case_file).stem + "-design.yaml"          # in the current folder
             files.append((out, design_case_yaml(chosen, case_file, out)))
         _write_all(files, [case_file] + _inputs_of(variants[0].case))
     except GroundingError as exc:

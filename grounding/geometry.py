@@ -177,7 +177,8 @@ def merge_collinear(start, end, radius, keys, is_rod, group=None) -> tuple[Condu
             out_k.append(" + ".join(ks)); out_rod.append(bool(all(is_rod[i] for i in cur)))
             out_g.append(int(group_in[m0]))
             if len(cur) > 1:
-                warnings.append(f"{' and '.join(ks)} overlap along a shared line ({b - a:.2f} m); "
+                shared = sum(hi[i] - lo[i] for i in cur) - (b - a)       # metal counted twice before merging
+                warnings.append(f"{' and '.join(ks)} overlap along a shared line ({shared:.2f} m); "
                                 "merged into one conductor so no metal is counted twice")
 
         for i in members[1:]:

@@ -152,6 +152,34 @@ def metal_footprint(segments: Segments, mask: np.ndarray, reach: float) -> tuple
     return meshes, unary_union(parts) if parts else Polygon()
 
 
+def describe_place(segments: Segments, meshes: shapely.Geometry, x: float, y: float) -> str:
+    """Where a surface point lies relative to the main system, in words: inside a grid mesh, beside the free
+    end of a conductor (a lead-out tip), or outside the meshes beside a conductor or rod."""
+    if not meshes.is_empty and meshes.buffer(1e-6).covers(shapely.Point(x, y)):
+        return "inside a grid mesh"
+    c = segments.conductors
+    main = np.flatnonzero(c.group == 0)
+    p = np.array([x, y])
+    a, b = c.start[main, :2], c.end[main, :2]
+    d = b - a
+    L2 = np.einsum("ij,ij->i", d, d)
+    t = np.clip(np.einsum("ij,ij->i", p - a, d) / np.where(L2 > 0, L2, 1.0), 0.0, 1.0)
+    foot = a + t[:, None] * d
+    dist = np.linalg.norm(foot - p, axis=1)
+    k = int(np.argmin(dist))
+    key = c.keys[main[k]].split(" + ")[0]
+    if c.is_rod[main[k]]:
+        return f"{dist[k]:.1f} m from the rod {key}, outside the grid meshes"
+    if t[k] in (0.0, 1.0):
+        end = foot[k]
+        others = np.delete(np.arange(len(main)), k)
+        touching = np.min(np.linalg.norm(np.vstack([a[others], b[others]]) - end, axis=1)) if len(others) else np.inf
+        near_line = np.min(dist[others]) if len(others) else np.inf
+        if touching > 1e-3 and near_line > 1e-3:
+            return f"{dist[k]:.1f} m beyond the free end of {key} (a lead-out tip), outside the grid meshes"
+    return f"{dist[k]:.1f} m outside the grid meshes, beside {key}"
+
+
 def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geometry, shapely.Geometry]:
     """The touch area of the main (energised) system and its grid meshes, as shapely geometries in the
     x–y plane (m).

@@ -59,7 +59,7 @@ def best_option(options: list[Option], by: str) -> tuple[int | None, str]:
     idx = list(range(len(options)))
     if by in ("cost", "material"):
         if by == "cost" and any(o.quantities.cost is None for o in options):
-            return None, "no winner by cost: not every case gives unit prices (costs block)"
+            return None, "not every case gives unit prices (costs block) to rank by cost"
         passing = [i for i in idx if options[i].passes]
         if not passing:
             return None, "no option passes every criterion"

@@ -210,10 +210,23 @@ def touch_figure(r: StudyResult) -> Rendered:
     fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
     im = ax.contourf(s.x, s.y, s.touch, levels=20, cmap="cividis")
     excess = np.where(np.isnan(s.touch), -np.inf, s.touch - local)
+    handles = []
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+    for poly in getattr(s.touch_area, "geoms", [s.touch_area]):
+        if poly.is_empty:
+            continue
+        for ring in [poly.exterior, *poly.interiors]:
+            xs, ys = ring.xy
+            ax.plot(xs, ys, color="#f0f0f0", lw=0.9, ls=(0, (2, 2)))
+    handles.append(Line2D([], [], color="#7f7f7f", lw=0.9, ls=(0, (2, 2)), label="touch-area edge"))
     if np.nanmax(excess) > 0:
         ax.contourf(s.x, s.y, excess, levels=[0, np.inf], colors="none", hatches=["////"])
         ax.contour(s.x, s.y, np.where(np.isnan(s.touch), -local, s.touch - local), levels=[0], colors="#d7301f",
-                   linewidths=1.6)
+                   linewidths=1.8)
+        handles += [Line2D([], [], color="#d7301f", lw=1.8, label="tolerable-limit contour"),
+                    Patch(facecolor="none", hatch="////", edgecolor="black", label="above the limit")]
+    ax.legend(handles=handles, fontsize=7, loc="lower right", framealpha=0.9)
     _overlay_electrodes(ax, r)
     _frame(ax, r)
     cb = fig.colorbar(im, ax=ax, shrink=0.85)
@@ -262,7 +275,7 @@ def profile_figure(r: StudyResult) -> Rendered:
     ax.plot(p.distance, gpr - p.potential, color="#b35806", lw=1.2, ls="--", label="GPR − potential")
     ax.axhline(gpr, color="gray", lw=0.8, ls=":", label=f"GPR {gpr:,.0f} V")
     ax.axhline(r.tolerable_touch, color="#d7301f", lw=1.0, label=f"tolerable touch {r.tolerable_touch:,.0f} V")
-    ax.set_xlabel(f"distance along the line from ({p.x[0]:.1f}, {p.y[0]:.1f}) m to ({p.x[-1]:.1f}, {p.y[-1]:.1f}) m (m)")
+    ax.set_xlabel(f"distance (m) along the line from ({p.x[0]:.1f}, {p.y[0]:.1f}) to ({p.x[-1]:.1f}, {p.y[-1]:.1f})")
     ax.set_ylabel("V")
     ax.set_ylim(0, 1.08 * gpr)
     ax.grid(alpha=0.3)

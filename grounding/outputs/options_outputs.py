@@ -72,7 +72,7 @@ def compare_table(options: list[Option], best: int | None, reason: str) -> str:
     ]
     width = max(18, max(len(c) for _, cells in rows for c in cells) + 2)
     head = f"{'':<18}" + "".join(f"{f'option {i + 1}' + (' *' if i == best else ''):>{width}}" for i in range(len(options)))
-    out = [head]
+    out = []
     for i, o in enumerate(options, start=1):
         out.append(f"  option {i}: {o.label}")
     out.append("")

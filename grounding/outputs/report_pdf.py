@@ -109,6 +109,11 @@ def _caution_box(st):
     return t
 
 
+def _pm(u: float) -> str:
+    """A relative 1-σ as ±x %, or 'unresolved' where the readings do not resolve the parameter (as the terminal)."""
+    return "unresolved" if not u < 1.0 else f"±{u * 100:.0f}%"
+
+
 def _verdict(ok):
     return "n/a" if ok is None else ("PASS" if ok else "FAIL")
 
@@ -312,8 +317,8 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                        f"{fit.reason}."))
         rows = [["Model", "Layers (ρ Ω·m / h m, 1-σ)", "RMS misfit", "BIC"]]
         for n, m in sorted(fit.models.items()):
-            desc = "; ".join(f"{l.resistivity:.0f} ±{min(l.resistivity_uncertainty, 9.99) * 100:.0f}%"
-                             + (f" / {l.thickness:.2f} ±{min(l.thickness_uncertainty, 9.99) * 100:.0f}%"
+            desc = "; ".join(f"{l.resistivity:.0f} {_pm(l.resistivity_uncertainty)}"
+                             + (f" / {l.thickness:.2f} {_pm(l.thickness_uncertainty)}"
                                 if l.thickness is not None else "") for l in m.layers)
             rows.append([f"{n}-layer{' ✓' if n == fit.recommended else ''}", Paragraph(desc, st["small"]),
                          f"{m.rms_misfit_percent:.1f} %", f"{m.bic:.1f}"])

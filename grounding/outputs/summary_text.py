@@ -114,6 +114,10 @@ def safety_lines(r: StudyResult) -> list[str]:
     out.append(line("Touch voltage", r.touch_check))
     out.append(line("Step voltage", r.step_check))
     out.append(line("Mesh voltage", r.mesh_check))
+    if r.touch_check.worst is not None:
+        from ..surface import describe_place
+        w = r.touch_check.worst
+        out.append(f"  The worst touch voltage is {describe_place(r.segments, r.surface.meshes, w.x, w.y)}.")
     if several:
         out.append("  Per zone (worst in the zone / the zone's limit)"
                    + (f", case as written ('{r.scenario}'):" if r.scenarios else ":"))

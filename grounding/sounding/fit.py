@@ -222,7 +222,10 @@ def fit_soil(readings: Readings, layers: int | str = "auto") -> SoilFit:
         noise = _noise(refit[rec].fun, 2 * rec - 1)
         models = {n: _model(readings, n, refit[n], noise) for n in counts}
     if len(counts) == 1:
-        rec, reason = counts[0], f"{counts[0]}-layer model requested"
+        rec = counts[0]
+        reason = (f"{rec}-layer model requested" if layers != "auto" else
+                  f"only a {rec}-layer model: {m} readings are too few for more layers (a {rec + 1}-layer model needs "
+                  f"at least {2 * (rec + 1)})")
     else:
         rec, why = _recommend(models)
         parts = "; ".join(f"{k}-layer BIC {models[k].bic:.1f}, misfit {models[k].rms_misfit_percent:.1f} %"

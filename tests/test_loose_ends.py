@@ -1,0 +1,72 @@
+"""Small things a new user tripped over, one regression test each."""
+
+from __future__ import annotations
+
+import pytest
+
+from grounding.case_loader import parse_case
+from grounding.geometry import segment
+from grounding.study import run_study
+from tests.conftest import case_text
+
+
+def test_merge_note_gives_the_shared_length():
+    """Two grids sharing a 40 m edge: the note said the merged line's whole length (e.g. 90 m)."""
+    case = parse_case(case_text("""\
+        grids:
+          - {origin: [0, 0], size: [50, 40], meshes: [5, 4], depth: 0.5, diameter: 0.01}
+          - {origin: [50, 0], size: [40, 40], meshes: [4, 4], depth: 0.5, diameter: 0.01}
+        """))
+    notes = [w for w in segment(case).warnings if "overlap along a shared line" in w]
+    assert notes and all("(40.00 m)" in w for w in notes)
+
+
+def test_auto_fit_with_few_readings_says_why_one_layer(tmp_path):
+    from grounding.sounding.fit import fit_soil
+    from grounding.sounding.readings import load_readings
+
+    path = tmp_path / "r.csv"
+    path.write_text("spacing,resistance\n1,20\n2,9\n4,4.2\n")
+    fit = fit_soil(load_readings(path, "wenner"), "auto")
+    assert "requested" not in fit.reason and "too few" in fit.reason
+
+
+def test_report_says_unresolved_like_the_terminal():
+    from grounding.outputs.report_pdf import _pm
+
+    assert _pm(float("inf")) == "unresolved" and _pm(1.5) == "unresolved" and _pm(0.12) == "±12%"
+
+
+def test_compare_table_has_one_header_and_a_clean_no_winner(tmp_path):
+    from grounding.options.compare import best_option, make_options
+    from grounding.outputs.options_outputs import compare_table
+
+    r = run_study(parse_case(case_text("rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}]\n",
+                                       extra="surface: {resolution: 1.0}\n")), estimate_error=False)
+    options = make_options(["a", "b"], [r, r])
+    best, reason = best_option(options, "cost")
+    text = compare_table(options, best, reason)
+    head = [line for line in text.splitlines() if "option 1" in line and "option 2" in line]
+    assert len(head) == 1
+    assert "No winner: no winner" not in text
+
+
+def test_profile_axis_label_has_one_unit():
+    from grounding.outputs.figures import profile_figure
+
+    r = run_study(parse_case(case_text("rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}]\n",
+                                       extra="surface: {resolution: 1.0}\n")), estimate_error=False)
+    label = profile_figure(r).figure.axes[0].get_xlabel()
+    assert label.count("(m)") == 1 and not label.endswith("m (m)")
+
+
+def test_worst_touch_place_in_words():
+    from grounding.outputs.summary_text import study_summary
+
+    r = run_study(parse_case(case_text("""\
+        grids: [{origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, diameter: 0.01}]
+        conductors: [{start: [20, 10, 0.5], end: [30, 10, 0.5], diameter: 0.01}]
+        """, extra="surface: {resolution: 0.5}\n")), estimate_error=False)
+    text = study_summary(r)
+    assert "The worst touch voltage is" in text
+    assert "lead-out tip" in text or "outside the grid meshes" in text or "inside a grid mesh" in text
