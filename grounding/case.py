@@ -170,8 +170,20 @@ class Criteria:
     footwear_resistance: float = 1000.0
 
 
+class _Sized:
+    """Cross-section of an element with a ``diameter`` (m) and an optional nominal ``cross_section`` (m²)."""
+
+    diameter: float
+    cross_section: float | None
+
+    @property
+    def area(self) -> float:
+        """Cross-section for sizing and quantities, m²: the nominal one, else the circle of the diameter."""
+        return self.cross_section if self.cross_section is not None else math.pi * self.diameter ** 2 / 4
+
+
 @dataclass(frozen=True)
-class Grid:
+class Grid(_Sized):
     """A rectangular mesh of buried conductors.
 
     Attributes
@@ -200,14 +212,9 @@ class Grid:
     cross_section: float | None = None
     material: str = ""
 
-    @property
-    def area(self) -> float:
-        """Conductor cross-section for sizing, m²: the nominal one, else the circle of the diameter."""
-        return self.cross_section if self.cross_section is not None else math.pi * self.diameter ** 2 / 4
-
 
 @dataclass(frozen=True)
-class Conductor:
+class Conductor(_Sized):
     """A straight buried conductor from ``start`` to ``end`` (x, y, depth in m), diameter in m;
     ``name`` is optional (touch areas may refer to it)."""
 
@@ -219,14 +226,9 @@ class Conductor:
     cross_section: float | None = None
     material: str = ""
 
-    @property
-    def area(self) -> float:
-        """Conductor cross-section for sizing, m²: the nominal one, else the circle of the diameter."""
-        return self.cross_section if self.cross_section is not None else math.pi * self.diameter ** 2 / 4
-
 
 @dataclass(frozen=True)
-class Rod:
+class Rod(_Sized):
     """A vertical rod: ``top`` (x, y, depth in m), length and diameter in m; ``name`` optional."""
 
     top: Point3
@@ -236,11 +238,6 @@ class Rod:
     name: str = ""
     cross_section: float | None = None
     material: str = ""
-
-    @property
-    def area(self) -> float:
-        """Rod cross-section, m²: the nominal one, else the circle of the diameter."""
-        return self.cross_section if self.cross_section is not None else math.pi * self.diameter ** 2 / 4
 
 
 @dataclass(frozen=True)

@@ -29,7 +29,7 @@ from ..cautions import CAUTIONS
 from ..study import StudyResult
 from ..validation import validation_checks
 from .figures import all_figures, png_bytes
-from .summary_text import covering_text, soil_text
+from .summary_text import UNCERTAINTY_LABELS, covering_text, soil_text
 
 INK = colors.HexColor("#1c2833")
 ACCENT = colors.HexColor("#1f3b73")
@@ -440,9 +440,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     if r.uncertainty is not None:
         u = r.uncertainty
         rows = [["Quantity", "Computed", "1-σ", "P(limit exceeded)"]]
-        labels = {"grid_resistance": "Grid resistance Rg", "ground_potential_rise": "GPR", "touch": "Worst touch",
-                  "step": "Worst step", "mesh": "Worst mesh"}
-        for key, label in labels.items():
+        for key, label in UNCERTAINTY_LABELS.items():
             q = u.quantities[key]
             if q.value is None or q.sigma is None:
                 continue

@@ -235,15 +235,18 @@ def scenario_lines(r: StudyResult) -> list[str]:
     return out
 
 
+#: Results the soil uncertainty is carried to, as printed.
+UNCERTAINTY_LABELS = {"grid_resistance": "Grid resistance Rg", "ground_potential_rise": "GPR", "touch": "Worst touch",
+                      "step": "Worst step", "mesh": "Worst mesh"}
+
+
 def uncertainty_lines(r: StudyResult) -> list[str]:
     """σ of Rg, GPR and the worst voltages, and the probability that each limit is exceeded."""
     u = r.uncertainty
     out = [f"  From {u.source}: " + ", ".join(f"{n} ± {math.expm1(s) * 100:.0f} %"
                                               for n, s in zip(u.parameters, u.sigma_log)),
            f"  {'':<22}{'value':>10}{'1-σ':>10}{'P(limit exceeded)':>20}"]
-    names = {"grid_resistance": "Grid resistance Rg", "ground_potential_rise": "GPR", "touch": "Worst touch",
-             "step": "Worst step", "mesh": "Worst mesh"}
-    for key, label in names.items():
+    for key, label in UNCERTAINTY_LABELS.items():
         q = u.quantities[key]
         if q.value is None or q.sigma is None:
             continue
