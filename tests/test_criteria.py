@@ -154,3 +154,10 @@ def test_quantities_use_the_nominal_area():
                   estimate_error=False)
     q = quantities(r)
     assert q.mass_kg == pytest.approx(120.0 * 120e-6 * MATERIALS["copper-annealed"].density, rel=1e-9)
+
+
+def test_fault_source_with_zero_current_refused(tmp_path):
+    path = tmp_path / "c.yaml"
+    path.write_text(case_text(GRID, fault="{sources: [{name: T1, current: 0}], clearing_time: 0.5}"))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and "fault.sources[0].current must be > 0" in run.stderr, run.stderr
