@@ -80,9 +80,9 @@ class _CaseReader(ElectrodeSections, SiteSections):
                                        "criteria", "electrodes", "separate_electrodes", "discretization", "surface",
                                        "probes", "costs", "sweep", "scenarios"),
                            ("format", "soil", "fault", "electrodes"))
-        fmt = top["format"]
-        if fmt not in SUPPORTED_FORMATS:
-            raise self.doc.fail("format", f"must be 1 (the only case-file format), got {fmt(fmt)}")
+        version = top["format"]
+        if version not in SUPPORTED_FORMATS or isinstance(version, bool):
+            raise self.doc.fail("format", f"must be 1 (the only case-file format), got {fmt(version)}")
         title = top.get("title", Path(self.doc.file).stem)
         if isinstance(title, (list, dict)) or title is None:
             raise self.doc.fail("title", "must be one line of text")
