@@ -70,3 +70,19 @@ def test_worst_touch_place_in_words():
     text = study_summary(r)
     assert "The worst touch voltage is" in text
     assert "lead-out tip" in text or "outside the grid meshes" in text or "inside a grid mesh" in text
+
+
+def test_pdf_metadata_date_is_the_study_date():
+    import io
+
+    import pypdf
+
+    from grounding.outputs.report_pdf import build_report
+
+    r = run_study(parse_case(case_text("rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}]\n",
+                                       extra="surface: {resolution: 1.0}\n")), estimate_error=False)
+    pdf = build_report(r, date="2026-12-02")
+    meta = pypdf.PdfReader(io.BytesIO(pdf)).metadata
+    assert meta["/CreationDate"].startswith("D:20261202") and meta["/Producer"].startswith("grounding ")
+    assert meta["/Author"] == ""
+    assert pdf == build_report(r, date="2026-12-02")

@@ -252,6 +252,11 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     def decorate(canvas, doc):
         canvas.saveState()
         w, h = A4
+        # metadata: creation date = the study date on the cover (still byte-identical for the same date),
+        # the tool and its version as producer
+        stamp = "D:" + date.replace("-", "")[:8].ljust(8, "0") + "000000+00'00'"
+        canvas._doc.info._dateFormatter = lambda *args: stamp
+        canvas._doc.info.producer = f"grounding {__version__}"
         canvas.setStrokeColor(ACCENT)
         canvas.setLineWidth(1.5)
         canvas.line(18 * mm, h - 14 * mm, w - 18 * mm, h - 14 * mm)
@@ -272,7 +277,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         canvas.restoreState()
 
     doc = BaseDocTemplate(buf, pagesize=A4, leftMargin=20 * mm, rightMargin=20 * mm, topMargin=20 * mm,
-                          bottomMargin=22 * mm, title=f"Earthing grid study: {c.title}", author="grounding",
+                          bottomMargin=22 * mm, title=f"Earthing grid study: {c.title}", author="",
                           subject="Earthing grid study for review", creator=f"grounding {__version__}",
                           invariant=1)
     frame = Frame(doc.leftMargin, doc.bottomMargin, doc.width, doc.height, id="body")
