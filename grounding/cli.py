@@ -147,8 +147,10 @@ def soil(readings_file, array, layers, traverses, json_file, plot_file):
             files.append((json_file, soil_json(fits, readings.source, readings.sha256)))
         if plot_file:
             if len(fits) > 1:
-                raise GroundingError("--plot draws one sounding; use --traverses together, or fit each file alone")
-            files.append((plot_file, png_bytes(fit_figure(next(iter(fits.values()))))))
+                from .outputs.soil_outputs import traverses_figure
+                files.append((plot_file, png_bytes(traverses_figure(fits))))
+            else:
+                files.append((plot_file, png_bytes(fit_figure(next(iter(fits.values()))))))
         _write_all(files, [readings_file])
     except GroundingError as exc:
         _fail(exc)

@@ -86,3 +86,16 @@ def test_pdf_metadata_date_is_the_study_date():
     assert meta["/CreationDate"].startswith("D:20261202") and meta["/Producer"].startswith("grounding ")
     assert meta["/Author"] == ""
     assert pdf == build_report(r, date="2026-12-02")
+
+
+def test_soil_plot_with_separate_traverses_marks_each(tmp_path):
+    from click.testing import CliRunner
+
+    from grounding.cli import main
+    from tests.test_cli import ROOT
+
+    out = tmp_path / "t.png"
+    res = CliRunner().invoke(main, ["soil", str(ROOT / "cases" / "kestrel-bend-wenner.csv"), "--traverses", "separate",
+                                    "--plot", str(out)])
+    assert res.exit_code == 0, res.output
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

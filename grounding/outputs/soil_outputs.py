@@ -138,3 +138,36 @@ def fit_figure(fit: SoilFit, title: str = ""):
     ax.set_title(title or f"{r.array.capitalize()} sounding and fitted models", fontsize=10)
     fig.tight_layout()
     return fig
+
+
+#: Marker and colour per traverse when several are drawn on one plot.
+TRAVERSE_STYLES = (("o", "#1f3b73"), ("s", "#b35806"), ("^", "#1b7837"), ("D", "#5e3c99"), ("v", "#d7301f"))
+
+
+def traverses_figure(fits: dict):
+    """Several traverses fitted separately on one log–log plot: each traverse's readings with its own marker
+    and its recommended model's curve in the same colour."""
+    fig, ax = plt.subplots(figsize=(6.5, 4.2), dpi=160)
+    array = None
+    for k, (name, fit) in enumerate(sorted(fits.items())):
+        marker, color = TRAVERSE_STYLES[k % len(TRAVERSE_STYLES)]
+        r = fit.readings
+        array = r.array
+        ax.loglog(r.spacing, r.apparent_resistivity, marker, color=color, ms=4.5, ls="none", label=f"{name}: readings")
+        dense = np.geomspace(r.spacing.min() / 1.3, r.spacing.max() * 1.3, 120)
+        if r.array == WENNER:
+            cr = Readings(WENNER, dense, None, np.ones_like(dense), ("",) * len(dense), tuple(range(len(dense))), "")
+        else:
+            ratio = np.median(r.potential_half / r.spacing)
+            cr = Readings(r.array, dense, dense * ratio, np.ones_like(dense), ("",) * len(dense),
+                          tuple(range(len(dense))), "")
+        m = fit.best
+        ax.loglog(dense, forward(cr, m.resistivities, m.thicknesses), color=color, lw=1.6,
+                  label=f"{name}: {fit.recommended}-layer, misfit {m.rms_misfit_percent:.1f} %")
+    ax.set_xlabel("electrode spacing a (m)" if array == WENNER else "AB/2 (m)")
+    ax.set_ylabel("apparent resistivity (Ω·m)")
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize=7)
+    ax.set_title("Traverses fitted separately", fontsize=10)
+    fig.tight_layout()
+    return fig
