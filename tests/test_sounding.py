@@ -195,3 +195,12 @@ def test_case_with_missing_readings_file(tmp_path):
         "electrodes:\n  rods: [{top: [0, 0, 0], length: 3, diameter: 0.016}]\n")
     with pytest.raises(CaseError, match=r"case.yaml:2: soil.readings file .* not found"):
         load_case(tmp_path / "case.yaml")
+
+
+def test_repeated_column_refused():
+    """Regression (fuzzing): a repeated column silently mispaired readings with --traverses separate."""
+    from grounding.errors import CaseError
+    from grounding.sounding.readings import parse_readings
+
+    with pytest.raises(CaseError, match="appears twice in the header"):
+        parse_readings("traverse,spacing,resistance,traverse\neast,1,20,north\neast,2,9,north\n", "r.csv")

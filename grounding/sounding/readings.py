@@ -112,6 +112,10 @@ def parse_readings(text: str, file: str = "<readings>", array: str | None = None
             near = difflib.get_close_matches(c, KNOWN_COLUMNS, n=1, cutoff=0.5)
             hint = f"did you mean '{near[0]}'?" if near else f"known columns: {', '.join(KNOWN_COLUMNS)}"
             raise CaseError(file, head_line, f"column '{c}'", f"is not a known column; {hint}")
+    repeated = sorted({c for c in columns if columns.count(c) > 1})
+    if repeated:
+        raise CaseError(file, head_line, f"column '{repeated[0]}'", "appears twice in the header; give each column "
+                                                                   "once (readings would be paired wrongly)")
     detected = SCHLUMBERGER if "current_half_spacing" in columns else WENNER if "spacing" in columns else None
     if array is None:
         array = detected
