@@ -496,6 +496,14 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> S
     contours = tuple((level, contour_lines(surface.x, surface.y, surface.potential, [level])[0])
                      for level in case.surface.contours)
     warnings = list(case.notes + segments.warnings)
+    if case.soil_fit is not None:
+        pts = np.vstack([segments.start[:, :2], segments.end[:, :2]])
+        diagonal = float(np.linalg.norm(pts.max(axis=0) - pts.min(axis=0)))
+        largest = float(np.max(case.soil_fit.readings.spacing))
+        if largest < diagonal:
+            warnings.append(f"the sounding's largest spacing ({largest:g} m) is shorter than the site's diagonal "
+                            f"({diagonal:.0f} m): the deep soil that governs Rg of a site this size is not measured "
+                            "(common practice: spacings up to about the diagonal of the grid)")
     for z in zones:
         if z.zone.area is not None and z.extremes.step is None:
             warnings.append(f"surface zone '{z.name}' holds no point of the surface map; its step voltage was not "

@@ -115,5 +115,28 @@ def test_cli_writes_report_plots_and_csv(tmp_path):
     assert res.exit_code == 0, res.output
     assert (tmp_path / "r.pdf").read_bytes().startswith(b"%PDF")
     assert sorted(p.name for p in (tmp_path / "figs").iterdir()) == \
-        ["plan.png", "potential.png", "profile.png", "step.png", "touch.png"]
+        ["leakage.png", "plan.png", "potential.png", "profile.png", "step.png", "touch.png"]
     assert (tmp_path / "m.csv").stat().st_size > 0
+
+
+def test_report_lists_every_rod_coordinate_and_reading(tmp_path):
+    """A reviewer can check the layout and the sounding without the case file: every rod's top and every
+    reading is in the text of the PDF."""
+    import io
+
+    import pypdf
+
+    from grounding import load_case, run_study
+    from grounding.outputs.report_pdf import build_report
+
+    from pathlib import Path
+
+    case = load_case(Path(__file__).resolve().parents[1] / "cases" / "kestrel-bend-fitted.yaml")
+    r = run_study(case, estimate_error=False)
+    text = " ".join(p.extract_text() for p in pypdf.PdfReader(io.BytesIO(build_report(r, date="2026-12-02"))).pages)
+    for rod in case.electrodes.rods:
+        assert "rod, top ({:g}, {:g}, {:g})".format(*rod.top) in text
+    rd = case.soil_fit.readings
+    for s, rho in zip(rd.spacing, rd.apparent_resistivity):
+        assert f"{rho:.4g}" in text
+    assert "largest spacing" in text

@@ -317,9 +317,45 @@ def uncertainty_figure(r: StudyResult) -> Rendered | None:
     return Rendered("uncertainty", "Soil uncertainty", fig, q.value)
 
 
+def leakage_figure(r: StudyResult) -> Rendered:
+    """Leakage current per unit length along every conductor (A/m), on the plan: the end and corner effect."""
+    from matplotlib.collections import LineCollection
+
+    seg = r.segments
+    density = r.segment_currents / seg.length
+    fig, ax = plt.subplots(figsize=(FIGSIZE[0], 4.6), dpi=DPI)
+    horizontal = ~seg.is_rod
+    lines = np.stack([seg.start[horizontal, :2], seg.end[horizontal, :2]], axis=1)
+    lc = LineCollection(lines, array=density[horizontal], cmap="viridis", linewidths=3.0)
+    ax.add_collection(lc)
+    rods = seg.is_rod
+    if rods.any():
+        # a rod's leakage per metre, shown at its top as the mean over its segments
+        top = {}
+        for k in np.flatnonzero(rods):
+            top.setdefault(int(seg.conductor[k]), []).append(density[k])
+        xy = np.array([seg.conductors.start[k, :2] for k in top])
+        ax.scatter(xy[:, 0], xy[:, 1], c=[np.mean(v) for v in top.values()], cmap="viridis", s=40, marker="s",
+                   edgecolors="black", linewidths=0.6, norm=lc.norm, zorder=3)
+    pts = np.vstack([seg.start[:, :2], seg.end[:, :2]])
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    pad = 0.05 * max(hi - lo) + 0.5
+    ax.set_xlim(lo[0] - pad, hi[0] + pad)
+    ax.set_ylim(lo[1] - pad, hi[1] + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel("x (m)")
+    ax.set_ylabel("y (m)")
+    cb = fig.colorbar(lc, ax=ax, shrink=0.85)
+    cb.set_label("leakage current per metre (A/m)")
+    ax.set_title(f"Leakage current along the conductors (IG = {r.grid_current / 1000:,.2f} kA; squares: rods, "
+                 "mean per metre)", fontsize=9)
+    fig.tight_layout()
+    return Rendered("leakage", "Leakage current", fig, float(density.max()))
+
+
 def all_figures(r: StudyResult) -> list[Rendered]:
     """Every figure of a study, in report order."""
-    figs = [plan_figure(r), potential_figure(r), touch_figure(r), step_figure(r), profile_figure(r)]
+    figs = [plan_figure(r), potential_figure(r), touch_figure(r), step_figure(r), profile_figure(r), leakage_figure(r)]
     u = uncertainty_figure(r)
     return figs + ([u] if u is not None else [])
 

@@ -71,9 +71,10 @@ def _v(x: float | None) -> str:
     return f"{x / 1000:,.2f} kV" if abs(x) >= 10_000 else f"{x:,.0f} V"
 
 
-def _table(rows, widths, st, header=True, verdict_col=None, row_heights=None):
+def _table(rows, widths, st, header=True, verdict_col=None, row_heights=None, font_small=False):
+    size = 7.5 if font_small else 8.5
     style = [
-        ("FONT", (0, 0), (-1, -1), st["reg"], 8.5),
+        ("FONT", (0, 0), (-1, -1), st["reg"], size),
         ("TEXTCOLOR", (0, 0), (-1, -1), INK),
         ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
         ("LINEBELOW", (0, 0), (-1, -1), 0.25, colors.HexColor("#c5cbd3")),
@@ -81,7 +82,7 @@ def _table(rows, widths, st, header=True, verdict_col=None, row_heights=None):
         ("BOTTOMPADDING", (0, 0), (-1, -1), 2.5),
     ]
     if header:
-        style += [("FONT", (0, 0), (-1, 0), st["bold"], 8.5), ("BACKGROUND", (0, 0), (-1, 0), PALE),
+        style += [("FONT", (0, 0), (-1, 0), st["bold"], size), ("BACKGROUND", (0, 0), (-1, 0), PALE),
                   ("LINEBELOW", (0, 0), (-1, 0), 0.8, ACCENT)]
     if verdict_col is not None:
         for i, row in enumerate(rows[1:] if header else rows, start=1 if header else 0):
@@ -91,7 +92,7 @@ def _table(rows, widths, st, header=True, verdict_col=None, row_heights=None):
             elif cell.startswith("PASS"):
                 style.append(("BACKGROUND", (verdict_col, i), (verdict_col, i), PASS_BG))
     # long text wraps inside its column instead of running past the margin
-    cell_style = ParagraphStyle("cell", fontName=st["reg"], fontSize=8.5, leading=10.5, textColor=INK)
+    cell_style = ParagraphStyle("cell", fontName=st["reg"], fontSize=size, leading=size + 2, textColor=INK)
     rows = [[Paragraph(c, cell_style) if isinstance(c, str) and len(c) * 1.55 * mm > w else c
              for c, w in zip(row, widths)] for row in rows]
     t = Table(rows, colWidths=widths, rowHeights=row_heights, hAlign="LEFT", repeatRows=1 if header else 0)
@@ -181,6 +182,29 @@ def _criteria_story(r: StudyResult, st, P) -> list:
         out += [P("Each standard asked for, with its own verdicts (the table above is the first one's):", "small"),
                 _table(rows, [30 * mm, 42 * mm, 42 * mm, 42 * mm, 14 * mm], st, verdict_col=4), Spacer(1, 2 * mm)]
     return out
+
+
+def _size_text(x, default_material: str) -> str:
+    size = f"d {x.diameter * 1000:g} mm" + (f", {x.cross_section * 1e6:g} mm²" if x.cross_section else "")
+    return size + (f", {x.material}" if x.material and x.material != default_material else "")
+
+
+def _electrode_rows(c) -> list[list[str]]:
+    """Every grid, conductor and rod with its coordinates, for a reviewer without the case file."""
+    rows = [["Element", "Geometry", "Size"]]
+    systems = [("", c.electrodes)] + [(f"{e.name} ({e.connection}): ", e) for e in c.separate_electrodes]
+    for prefix, el in systems:
+        for g in el.grids:
+            rows.append([prefix + (g.name or g.key), f"grid, origin ({g.origin[0]:g}, {g.origin[1]:g}), size "
+                         f"{g.size[0]:g} × {g.size[1]:g}, {g.meshes[0]} × {g.meshes[1]} meshes, depth {g.depth:g}",
+                         _size_text(g, c.electrodes.material)])
+        for k in el.conductors:
+            rows.append([prefix + (k.name or k.key), "from ({:g}, {:g}, {:g}) to ({:g}, {:g}, {:g})".format(*k.start, *k.end),
+                         _size_text(k, c.electrodes.material)])
+        for rd in el.rods:
+            rows.append([prefix + (rd.name or rd.key), f"rod, top ({rd.top[0]:g}, {rd.top[1]:g}, {rd.top[2]:g}), "
+                         f"length {rd.length:g}", _size_text(rd, c.electrodes.material)])
+    return rows
 
 
 def _touch_area_text(surface) -> str:
@@ -332,6 +356,15 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         fig = fit_figure(fit)
         wi, hi = fig.get_size_inches()
         story.append(Image(io.BytesIO(png_bytes(fig)), width=140 * mm, height=140 * mm * hi / wi))
+        rd = fit.readings
+        rows = [["Line", "Traverse", "Spacing m", "ρa Ω·m", "Model − reading"]]
+        for i in range(len(rd)):
+            rows.append([str(rd.rows[i]), rd.traverse[i] or "—", f"{rd.spacing[i]:g}",
+                         f"{rd.apparent_resistivity[i]:.4g}",
+                         f"{math.expm1(fit.best.residuals[i]) * 100:+.1f} %" + (" (down-weighted)"
+                                                                                 if fit.best.down_weighted[i] else "")])
+        story += [P("The readings and the recommended model's residual at each:", "small"),
+                  _table(rows, [18 * mm, 26 * mm, 26 * mm, 30 * mm, 50 * mm], st, font_small=True)]
         down = [i for i in range(len(fit.readings)) if fit.best.down_weighted[i]]
         if down:
             story.append(P("Down-weighted readings: " + ", ".join(
@@ -396,6 +429,9 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     story += [PageBreak(), P("2  Electrode plan", "h1"), image("plan"),
               P("To scale; +y is taken as north. Rods are dots, probes triangles (P1, P2, …)."),
               Spacer(1, 3 * mm)]
+    story += [P("2.1  Electrode coordinates (m)", "h2"), _table(_electrode_rows(c), [42 * mm, 104 * mm, 24 * mm], st,
+                                                              font_small=True), Spacer(1, 3 * mm),
+              image("leakage", 150 * mm)]
     if c.probes:
         rows = [["Probe", "x m", "y m", "Surface potential", "Touch voltage"]]
         for k, ((x, y), v, t) in enumerate(zip(c.probes, s.probe_potential, r.probe_touch_voltages()), start=1):
