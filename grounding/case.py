@@ -252,6 +252,8 @@ class Electrodes:
         °C, for conductor sizing.
     max_temperature : float or None
         Maximum allowable conductor temperature, °C; None means the material's fusing temperature.
+    drawing : (file, SHA-256, note) or None
+        The DXF drawing some of the conductors and rods were read from.
     """
 
     material: str
@@ -260,6 +262,7 @@ class Electrodes:
     rods: tuple[Rod, ...] = ()
     ambient_temperature: float = 40.0
     max_temperature: float | None = None
+    drawing: tuple[str, str, str] | None = None
 
 
 #: How a separate electrode is connected: not at all, to remote earth, or to the main system.

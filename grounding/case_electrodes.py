@@ -20,13 +20,18 @@ class ElectrodeSections(Checks):
 
     def electrodes(self, value: Any, soil: Soil) -> Electrodes:
         m = self.mapping("electrodes", value, ("material", "grids", "conductors", "rods", "ambient_temperature",
-                                               "max_temperature"))
+                                               "max_temperature", "drawing"))
         material = m.get("material", "copper-annealed")
         if material not in MATERIALS:
             near = difflib.get_close_matches(str(material), list(MATERIALS), n=1, cutoff=0.4)
             hint = f"did you mean '{near[0]}'?" if near else f"choose one of {', '.join(MATERIALS)}"
             raise self.doc.fail("electrodes.material", f"'{material}' is not in the material table; {hint}")
         grids, conductors, rods = self.metal("electrodes", m)
+        drawing = None
+        if "drawing" in m:
+            drawn_conductors, drawn_rods, (file, sha), notes = self.drawing(m["drawing"])
+            conductors, rods = conductors + drawn_conductors, rods + drawn_rods
+            drawing = (file, sha, notes[0])
         if not (grids or conductors or rods):
             raise self.doc.fail("electrodes", "has no electrodes; give at least one of grids, conductors or rods")
         ta = self.number("electrodes.ambient_temperature", m.get("ambient_temperature", 40.0), "°C", gt=-60, lt=80)
@@ -35,7 +40,7 @@ class ElectrodeSections(Checks):
             tm = self.number("electrodes.max_temperature", tm, "°C", gt=ta,
                              le=MATERIALS[material].fusing_temperature)
         return Electrodes(material=material, grids=grids, conductors=conductors, rods=rods,
-                          ambient_temperature=ta, max_temperature=tm)
+                          ambient_temperature=ta, max_temperature=tm, drawing=drawing)
 
     def metal(self, path: str, m: dict) -> tuple[tuple[Grid, ...], tuple[Conductor, ...], tuple[Rod, ...]]:
         """The grids, conductors and rods listed in mapping ``m`` at ``path``."""

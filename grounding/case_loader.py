@@ -19,6 +19,7 @@ import numpy as np
 from .case import STANDARDS, Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
     TouchArea
 from .case_checks import Document, as_number, fmt
+from .case_drawing import DrawingSections
 from .case_electrodes import ElectrodeSections
 from .case_site import SiteSections
 from .errors import CaseError
@@ -63,7 +64,7 @@ def parse_case(text: str, file: str = "<case>", sha256: str = "") -> Case:
     return _CaseReader(doc).read(sha256 or hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
-class _CaseReader(ElectrodeSections, SiteSections):
+class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
     """Walks the document section by section; validation happens here once, then data is trusted."""
 
     def __init__(self, doc: Document, fits: dict | None = None):
@@ -105,6 +106,8 @@ class _CaseReader(ElectrodeSections, SiteSections):
                        for i, p in enumerate(self.sequence("probes", top.get("probes"))))
         costs = self.costs(top.get("costs"))
         notes = list(soil_fit.readings.notes) if soil_fit else []
+        if electrodes.drawing is not None:
+            notes.append(electrodes.drawing[2])
         if fault.x_over_r is None:
             notes.append("fault.x_over_r is not given: the decrement factor Df = 1 was assumed (no DC offset), which "
                          "understates IG where the X/R is large; give the X/R at the fault")

@@ -66,10 +66,12 @@ def main():
 @click.option("--report", "report_file", type=click.Path(dir_okay=False), help="Also write the review report (PDF).")
 @click.option("--plots", "plots_dir", type=click.Path(file_okay=False), help="Also write the figures as PNG files here.")
 @click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write the surface map as CSV.")
+@click.option("--dxf", "dxf_file", type=click.Path(dir_okay=False),
+              help="Also write a DXF drawing (electrodes, zones, contours, touch-limit line, worst points; metres).")
 @click.option("--converge", is_flag=True,
               help="Halve the segments and the map spacing until the worst voltages change by less than 1 %.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
-def study(case_file, json_file, report_file, plots_dir, csv_file, converge, quiet):
+def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, converge, quiet):
     """Run a study of CASE (YAML) and print the summary."""
     from .outputs.summary_text import study_summary
     from .study import converge_study, run_study
@@ -84,7 +86,7 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, converge, quie
         from .uncertainty import propagate_soil_uncertainty
         result = _replace(result, uncertainty=propagate_soil_uncertainty(result, bar))
         bar.close()
-        written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case))
+        written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file)
     except GroundingError as exc:
         bar.close()
         _fail(exc)
@@ -93,7 +95,7 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, converge, quie
         click.echo(f"Written: {path}")
 
 
-def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=()) -> list[str]:
+def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=(), dxf_file=None) -> list[str]:
     """Build every requested output in memory first, then write each atomically."""
     from pathlib import Path
 
@@ -104,13 +106,19 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=(
     if csv_file:
         from .outputs.surface_csv import surface_csv
         files.append((csv_file, surface_csv(result)))
+    if dxf_file:
+        from .outputs.drawing_dxf import study_dxf
+        files.append((dxf_file, study_dxf(result)))
     if plots_dir:
         from .outputs.figures import all_figures, png_bytes
         folder = Path(plots_dir)
         if not folder.parent.is_dir():
             raise GroundingError(f"{plots_dir}: parent folder '{folder.parent}' does not exist")
         folder.mkdir(exist_ok=True)
-        files += [(str(folder / f"{f.name}.png"), png_bytes(f.figure)) for f in all_figures(result)]
+        from .outputs.figures import svg_bytes
+        for f in all_figures(result):
+            files.append((str(folder / f"{f.name}.svg"), svg_bytes(f.figure, close=False)))
+            files.append((str(folder / f"{f.name}.png"), png_bytes(f.figure)))
     if report_file:
         from .outputs.report_pdf import build_report
         files.append((report_file, build_report(result)))
@@ -329,6 +337,8 @@ def _inputs_of(*cases) -> list[str]:
         if c is None:
             continue
         out.append(c.source)
+        if c.electrodes.drawing is not None:
+            out.append(c.electrodes.drawing[0])
         if c.soil_fit is not None:
             out.append(c.soil_fit.readings.source)
         for sc in c.scenarios:

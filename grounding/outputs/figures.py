@@ -360,6 +360,18 @@ def all_figures(r: StudyResult) -> list[Rendered]:
     return figs + ([u] if u is not None else [])
 
 
+def svg_bytes(fig: Figure, close: bool = True) -> bytes:
+    """The figure as SVG bytes (vector; deterministic: no date, fixed ids)."""
+    import matplotlib as mpl
+
+    buf = io.BytesIO()
+    with mpl.rc_context({"svg.hashsalt": "grounding", "svg.fonttype": "path"}):
+        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
+    if close:
+        plt.close(fig)
+    return buf.getvalue()
+
+
 def png_bytes(fig: Figure) -> bytes:
     """The figure as PNG bytes (deterministic for the same figure)."""
     buf = io.BytesIO()

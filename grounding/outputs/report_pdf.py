@@ -313,6 +313,9 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     story += [Spacer(1, 8 * mm), P("Earthing grid study", "subtitle"), P(c.title, "title")]
     ident = [["Site", c.site or "—"], ["Date", date], ["Tool", f"grounding {__version__}"],
              ["Case file", c.source], ["Case SHA-256", c.sha256]]
+    if c.electrodes.drawing is not None:
+        ident.append(["Drawing file", c.electrodes.drawing[0]])
+        ident.append(["Drawing SHA-256", c.electrodes.drawing[1]])
     if c.soil_fit is not None:
         ident.append(["Readings file", c.soil_fit.readings.source])
         ident.append(["Readings SHA-256", c.soil_fit.readings.sha256])
