@@ -114,8 +114,10 @@ def test_cli_writes_report_plots_and_csv(tmp_path):
                                     "--plots", str(tmp_path / "figs"), "--csv", str(tmp_path / "m.csv")])
     assert res.exit_code == 0, res.output
     assert (tmp_path / "r.pdf").read_bytes().startswith(b"%PDF")
+    names = ["leakage", "plan", "potential", "profile", "step", "touch"]
     assert sorted(p.name for p in (tmp_path / "figs").iterdir()) == \
-        ["leakage.png", "plan.png", "potential.png", "profile.png", "step.png", "touch.png"]
+        sorted([f"{n}.png" for n in names] + [f"{n}.svg" for n in names])
+    assert (tmp_path / "figs" / "plan.svg").read_text().lstrip().startswith("<?xml")
     assert (tmp_path / "m.csv").stat().st_size > 0
 
 
