@@ -421,9 +421,26 @@ def run() -> None:
     except Exception as exc:  # noqa: BLE001 - the safety net is the point
         if os.environ.get("GROUNDING_DEBUG"):
             raise
-        click.echo(f"internal error: {type(exc).__name__}: {exc}; this is a defect of grounding, not of your "
-                   "input: please report it with the case file (GROUNDING_DEBUG=1 shows the traceback)", err=True)
+        detail = " ".join(str(exc).split())[:300]
+        click.echo(f"internal error: {type(exc).__name__}: {detail}; this is a defect of grounding {__version__}, not "
+                   f"of your input: please report it with the case file{_input_digest()} (GROUNDING_DEBUG=1 shows the "
+                   "traceback)", err=True)
         sys.exit(1)
+
+
+def _input_digest() -> str:
+    """' (SHA-256 …)' of the first input file on the command line, to name it in a defect report."""
+    import hashlib
+    from pathlib import Path
+
+    for arg in sys.argv[2:]:
+        p = Path(arg)
+        try:
+            if p.is_file() and p.stat().st_size < 50_000_000:
+                return f" (SHA-256 {hashlib.sha256(p.read_bytes()).hexdigest()[:16]}…)"
+        except OSError:
+            continue
+    return ""
 
 
 if __name__ == "__main__":
