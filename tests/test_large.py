@@ -47,3 +47,27 @@ def test_single_thread_only_for_large_factorisations_on_avx512_kernels(monkeypat
     monkeypatch.setattr(threadpoolctl, "threadpool_info",
                         lambda: [{"internal_api": "openblas", "architecture": "Haswell", "num_threads": 2}])
     assert isinstance(blas_threads_for(20_000), nullcontext)
+
+
+def test_a_2200_segment_study_runs_within_2_gb_of_address_space(tmp_path):
+    """Resource test: under a 2 GB address-space limit (ulimit -v) a 2 200-segment study runs, or is refused in
+    one line; never a MemoryError traceback or a signal."""
+    import resource
+    import subprocess
+    import sys
+
+    path = tmp_path / "r.yaml"
+    path.write_text(BIG.replace("size: [200, 200], meshes: [40, 40]", "size: [100, 100], meshes: [10, 10]")
+                    + "surface: {resolution: 1.0}\n")
+
+    def limit():
+        resource.setrlimit(resource.RLIMIT_AS, (2 * 10 ** 9, 2 * 10 ** 9))
+
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "study", str(path), "--quiet"], capture_output=True,
+                         text=True, preexec_fn=limit, timeout=600)
+    assert run.returncode in (0, 2), run.stderr
+    if run.returncode == 2:
+        assert len(run.stderr.strip().splitlines()) == 1
+    else:
+        assert "2200 segments" in run.stdout
+    assert "Traceback" not in run.stderr and "internal error" not in run.stderr
