@@ -414,8 +414,7 @@ class Zoning:
         """The part of ``geometry`` in zone k (approximately, for choosing candidate points)."""
         if self.areas[k] is not None:
             return geometry.intersection(self.areas[k])
-        others = [a for a in self.areas if a is not None]
-        return geometry.difference(unary_union(others)) if others else geometry
+        return geometry.difference(self.union) if self.order else geometry
 
 
 #: Most points sampled along the edge of an area when searching its worst point.
@@ -684,16 +683,10 @@ REFINE_SHARE = 0.1
 
 def steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None" = None, k: int = 0,
              directions: int = EXACT_STEP_DIRECTIONS) -> np.ndarray:
-    """See below; ``potential`` is any vectorised function of (M, 2) points (the exact potential, or a
-    spline of the map for a cheap search)."""
-    return _steps_at(potential, xy, step_len, zoning, k, directions)
-
-
-def _steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None" = None, k: int = 0,
-              directions: int = EXACT_STEP_DIRECTIONS) -> np.ndarray:
-    """Largest potential difference (V) between each point and the points one step away, exactly, over
-    2·``directions`` directions; with ``zoning``, only steps that belong to zone k (the zone of the more
-    severe foot) count (−inf where none does). ``xy`` has shape (M, 2)."""
+    """Largest potential difference (V) between each point and the points one step away, over
+    2·``directions`` directions. ``potential`` is any vectorised function of (M, 2) points (the exact
+    potential, or a spline of the map for a cheap search). With ``zoning``, only steps that belong to
+    zone k (the zone of the more severe foot) count (−inf where none does). ``xy`` has shape (M, 2)."""
     xy = np.atleast_2d(np.asarray(xy, float))
     ang = np.pi * np.arange(directions) / directions
     d = step_len * np.concatenate([np.column_stack([np.cos(ang), np.sin(ang)]),

@@ -123,7 +123,7 @@ def _margin(value, limit):
     return "" if limit is None else f"{(limit - value) / limit * 100:+.0f} %"
 
 
-def _verdict_rows(r: StudyResult):
+def _verdict_rows(r: StudyResult, st):
     several = len(r.zones) > 1
     rows = [["Criterion", "Worst computed", "Tolerable", "Margin", "Verdict",
              "Where (x, y) m" + (" / zone" if several else "")]]
@@ -140,7 +140,7 @@ def _verdict_rows(r: StudyResult):
         value = _v(w.value) + ("" if check.error is None else f" ± {_v(check.error)}")
         verdict = _verdict(check.ok) + (" ?" if check.limit_within_error else "")
         rows.append([name, value, _v(check.limit), _margin(w.value, check.limit), verdict,
-                     Paragraph(where, _styles()["small"])])
+                     Paragraph(where, st["small"])])
     for e in r.separate:
         t = e.touch
         rows.append([f"Touch, {e.name}"[:28], _v(t.worst.value) if t.worst else "—", _v(t.limit),
@@ -326,7 +326,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                       if c.criteria.standards[0] == "ieee80" else
                       f"(EN 50522, tf = {f.shock_duration:g} s, footwear {c.criteria.footwear_resistance:g} Ω)")
                    + (" — further standards in section 3.2" if len(c.criteria.standards) > 1 else ""), "h2"))
-    story += [_table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
+    story += [_table(_verdict_rows(r, st), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
               Spacer(1, 4 * mm)]
     story.append(P(f"Grid resistance Rg = <b>{r.grid_resistance:.4f} Ω</b>; grid current IG = "
                    f"<b>{r.grid_current / 1000:.3f} kA</b>; ground potential rise GPR = <b>{_v(r.ground_potential_rise)}</b>."))
@@ -452,7 +452,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                       ["Solve residual", f"{r.solution.relative_residual:.1e}", "‖R i − 1‖ / √N after Cholesky"]],
                      [40 * mm, 30 * mm, 100 * mm], st),
               P("3.2  Touch, step and mesh voltages", "h2"),
-              _table(_verdict_rows(r), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4)]
+              _table(_verdict_rows(r, st), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4)]
     if r.limits.standard == "en50522" or len(r.criteria) > 1:
         story.extend(_criteria_story(r, st, P))
     story.append(P("± : estimated discretisation error of the worst voltage (the solve at twice the segment "
