@@ -15,6 +15,43 @@ from .materials import MATERIALS
 MAX_MESHES = 1000
 
 
+#: One circular mil in m² (π/4 · (25.4e-6 m)²).
+CIRCULAR_MIL = math.pi / 4 * 25.4e-6 ** 2
+
+
+def awg_diameter(gauge: int) -> float:
+    """Diameter (m) of AWG gauge ``gauge`` (0 for 1/0, −1 for 2/0, … −3 for 4/0): the defining rule
+    d = 0.127 mm · 92^((36 − n)/39) of the American Wire Gauge (ASTM B258)."""
+    return 0.127e-3 * 92 ** ((36 - gauge) / 39)
+
+
+def trade_size_area(text: str) -> float | None:
+    """Area (m²) of a conductor size written as the trade writes it: '4 AWG', '4/0 AWG', '250 kcmil'
+    (or 'MCM'); None when the text is not such a size. AWG areas are of a solid wire of the gauge's diameter
+    (a stranded conductor of that gauge has the same nominal area)."""
+    import re
+
+    t = " ".join(text.strip().lower().split())
+    m = re.fullmatch(r"(\d+(?:\.\d+)?) ?(kcmil|mcm)", t)
+    if m:
+        return float(m.group(1)) * 1000 * CIRCULAR_MIL
+    m = re.fullmatch(r"(\d{1,2})/0 ?awg", t)
+    if m and 1 <= int(m.group(1)) <= 4:
+        return math.pi / 4 * awg_diameter(1 - int(m.group(1))) ** 2
+    m = re.fullmatch(r"(\d{1,2}) ?awg", t)
+    if m and int(m.group(1)) <= 40:
+        return math.pi / 4 * awg_diameter(int(m.group(1))) ** 2
+    return None
+
+
+def _looks_numeric(text: str) -> bool:
+    try:
+        float(text)
+        return True
+    except ValueError:
+        return False
+
+
 class ElectrodeSections(Checks):
     """Readers of the electrode sections of a case."""
 
@@ -90,7 +127,14 @@ class ElectrodeSections(Checks):
         outer diameter."""
         if "cross_section" not in m:
             return None
-        a = self.number(f"{p}.cross_section", m["cross_section"], "m²", gt=0)
+        value = m["cross_section"]
+        if isinstance(value, str) and not _looks_numeric(value):
+            a = trade_size_area(value)
+            if a is None:
+                raise self.doc.fail(f"{p}.cross_section", f"'{value}' is not a size this tool reads; give m² (e.g. "
+                                                          "120e-6), an AWG size ('2 AWG', '4/0 AWG') or kcmil ('250 kcmil')")
+        else:
+            a = self.number(f"{p}.cross_section", value, "m²", gt=0)
         circle = math.pi * diameter ** 2 / 4
         if a > circle * (1 + 1e-9):
             raise self.doc.fail(f"{p}.cross_section", f"= {a * 1e6:g} mm² is larger than the circle of the diameter "

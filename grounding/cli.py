@@ -68,10 +68,12 @@ def main():
 @click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write the surface map as CSV.")
 @click.option("--dxf", "dxf_file", type=click.Path(dir_okay=False),
               help="Also write a DXF drawing (electrodes, zones, contours, touch-limit line, worst points; metres).")
+@click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
+              help="us: also print conductor areas in kcmil.")
 @click.option("--converge", is_flag=True,
               help="Halve the segments and the map spacing until the worst voltages change by less than 1 %.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
-def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, converge, quiet):
+def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, units, converge, quiet):
     """Run a study of CASE (YAML) and print the summary."""
     from .outputs.summary_text import study_summary
     from .study import converge_study, run_study
@@ -90,7 +92,7 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, conv
     except GroundingError as exc:
         bar.close()
         _fail(exc)
-    click.echo(study_summary(result))
+    click.echo(study_summary(result, units))
     for path in written:
         click.echo(f"Written: {path}")
 

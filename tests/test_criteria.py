@@ -161,3 +161,29 @@ def test_fault_source_with_zero_current_refused(tmp_path):
     path.write_text(case_text(GRID, fault="{sources: [{name: T1, current: 0}], clearing_time: 0.5}"))
     run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
     assert run.returncode == 2 and "fault.sources[0].current must be > 0" in run.stderr, run.stderr
+
+
+@pytest.mark.parametrize("size, mm2", [("4/0 AWG", 107.2), ("1/0 AWG", 53.5), ("2 AWG", 33.6), ("250 kcmil", 126.7),
+                                       ("500 MCM", 253.4)])
+def test_trade_sizes(size, mm2):
+    """AWG areas from the gauge's defining rule d = 0.127 mm · 92^((36 − n)/39) (ASTM B258); 1 kcmil =
+    1000 circular mils = 0.5067 mm². Tabulated areas recalled from memory: 4/0 AWG 107.2 mm², 1/0 AWG
+    53.5 mm², 2 AWG 33.6 mm²."""
+    from grounding.case_electrodes import trade_size_area
+
+    assert trade_size_area(size) * 1e6 == pytest.approx(mm2, abs=0.1)
+
+
+def test_trade_size_in_a_case_and_kcmil_printed(tmp_path):
+    from grounding.outputs.summary_text import study_summary
+
+    case = parse_case(case_text("grids: [{origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, "
+                                "diameter: 0.0134, cross_section: 4/0 AWG}]\n", extra="surface: {resolution: 2.0}\n"))
+    r = run_study(case, estimate_error=False)
+    assert r.conductor.actual_area_mm2 == pytest.approx(107.2, abs=0.1)
+    assert "(212 kcmil)" in study_summary(r, "us") and "kcmil" not in study_summary(r)
+    path = tmp_path / "c.yaml"
+    path.write_text(case_text("grids: [{origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, "
+                              "diameter: 0.0134, cross_section: 4/0 gauge}]\n"))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and "is not a size this tool reads" in run.stderr

@@ -267,7 +267,7 @@ def _probability(p: float) -> str:
     return f"{p * 100:.1f} %"
 
 
-def study_summary(r: StudyResult) -> str:
+def study_summary(r: StudyResult, units: str = "si") -> str:
     """The readable summary printed by ``grounding study``."""
     c, s, f = r.case, r.surface, r.case.fault
     el = c.electrodes
@@ -355,9 +355,10 @@ def study_summary(r: StudyResult) -> str:
     out.append(_heading("Conductor sizing (IEEE Std 80 eq. for fusing / max temperature)"))
     cc = r.conductor
     out.append(_row("Sizing current", f"{cc.current_a / 1000:.2f} kA", f"Df · 3I0 for tf = {f.clearing_time:g} s"))
-    out.append(_row("Required area", f"{cc.required_area_mm2:.1f} mm²",
+    kcmil = (lambda a: f" ({a / 0.506707:.0f} kcmil)") if units == "us" else (lambda a: "")
+    out.append(_row("Required area", f"{cc.required_area_mm2:.1f} mm²{kcmil(cc.required_area_mm2)}",
                     f"Tm = {cc.max_temperature:g} °C, Ta = {cc.ambient_temperature:g} °C"))
-    out.append(_row("Governing conductor", f"{cc.actual_area_mm2:.1f} mm²",
+    out.append(_row("Governing conductor", f"{cc.actual_area_mm2:.1f} mm²{kcmil(cc.actual_area_mm2)}",
                     f"{_verdict(cc.ok)}: {cc.element} ({cc.material}), least area for what its material needs"))
 
     if c.probes:
