@@ -524,11 +524,15 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         story.append(P(f"Not applicable: {simp.reason}."))
 
     # ---- 4 figures ----------------------------------------------------------------------------
-    story += [PageBreak(), P("4  Surface potentials", "h1"), image("potential", 160 * mm), image("profile", 160 * mm),
-              PageBreak(), P("5  Touch and step voltages", "h1"), image("touch", 160 * mm),
-              P("Hatched: touch voltage above the tolerable limit; red line: the limit contour; ✕: the worst point "
-                "(refined by a local search on the exact potential).", "small"),
-              image("step", 160 * mm)]
+    # two figures a page, each with its heading kept on the same page as the figure
+    story += [PageBreak(), P("4  Surface potentials", "h1"),
+              KeepTogether([P("4.1  Surface potential", "h2"), image("potential", 140 * mm)]),
+              KeepTogether([P("4.2  Potential profile", "h2"), image("profile", 150 * mm)]),
+              PageBreak(), P("5  Touch and step voltages", "h1"),
+              KeepTogether([P("5.1  Touch voltage", "h2"), image("touch", 140 * mm),
+                            P("Hatched: touch voltage above the tolerable limit; red line: the limit contour; ✕: the "
+                              "worst point (refined by a local search on the exact potential).", "small")]),
+              KeepTogether([P("5.2  Step voltage", "h2"), image("step", 140 * mm)])]
 
     # ---- 6 method -----------------------------------------------------------------------------
     story += [PageBreak(), P("6  Method and assumptions", "h1")]
