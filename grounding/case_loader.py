@@ -277,12 +277,9 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         if value is None:
             return None
         m = self.mapping("surface_layer", value, ("resistivity", "thickness"), ("resistivity", "thickness"))
-        rho = self.number("surface_layer.resistivity", m["resistivity"], "Ω·m", gt=0)
-        h = self.number("surface_layer.thickness", m["thickness"], "m", gt=0)
-        if h > 1.0:
-            raise self.doc.fail("surface_layer.thickness", f"= {h:g} m is too thick for a surface layer "
-                                "(the Cs derating is for layers of a few cm to 0.3 m); model it as a soil layer")
-        return SurfaceLayer(rho, h)
+        if m["resistivity"] is None:
+            raise self.doc.fail("surface_layer.resistivity", "must be a number in Ω·m, got None")
+        return self.layer("surface_layer", m)
 
     def fault(self, value: Any) -> Fault:
         m = self.mapping("fault", value, ("current", "sources", "split_factor", "split", "x_over_r", "frequency",

@@ -28,18 +28,17 @@ class SiteSections(Checks):
 
     def area(self, path: str, m: dict, key: str = "polygon") -> Area:
         """``polygon`` (or ``key``) and optional ``holes`` of mapping ``m`` as a valid :class:`Area`."""
+        from shapely.geometry import Polygon
         from shapely.validation import explain_validity
 
         shell = self.ring(f"{path}.{key}", m[key])
         holes = tuple(self.ring(f"{path}.holes[{i}]", h) for i, h in enumerate(self.sequence(f"{path}.holes",
                                                                                               m.get("holes"))))
         area = Area(shell, holes)
-        from shapely.geometry import Polygon
-
-        if not Polygon(shell).is_valid or Polygon(shell).area <= 0:
-            raise self.doc.fail(f"{path}.{key}", f"is not a simple polygon ({explain_validity(Polygon(shell))}); "
-                                                   "list the corners in order around the area without crossings")
         outer = Polygon(shell)
+        if not outer.is_valid or outer.area <= 0:
+            raise self.doc.fail(f"{path}.{key}", f"is not a simple polygon ({explain_validity(outer)}); "
+                                                   "list the corners in order around the area without crossings")
         for i, h in enumerate(holes):
             hp = Polygon(h)
             if not hp.is_valid or hp.area <= 0:

@@ -24,8 +24,8 @@ from .safety.conductor import ConductorCheck, check_conductor, governing_conduct
 from .case_site import shapely_polygon
 from .safety.ieee80 import Limits, decrement_factor
 from .safety.simplified import SimplifiedResult, simplified_method
-from .safety.site import (Check, CriteriaResult, SeparateResult, ZoneVerdict, governing, separate_result,
-                          zone_limits)
+from .safety.site import (Check, CriteriaResult, SeparateResult, ZoneVerdict, governing, least_margin,
+                          separate_result, zone_limits)
 from .soil import SoilKernel, make_kernel
 from .solve import Solution, solve_equipotential
 from .surface import (Extreme, SeparateMetal, SurfacePotential, SurfaceResult, ZoneExtremes, Zoning, contour_lines,
@@ -121,10 +121,7 @@ class StudyResult:
         pass, in every scenario."""
         if self.scenarios:
             return all(r.passes for r in self.scenarios)
-        if self.criteria:
-            return bool(self.conductor.ok and all(c.passes for c in self.criteria))
-        return bool(self.touch_ok and self.step_ok is not False and self.mesh_ok is not False and self.separate_ok
-                    and self.conductor.ok)
+        return bool(self.conductor.ok and all(c.passes for c in self.criteria))
 
     @property
     def body_weight(self) -> int:
@@ -159,8 +156,7 @@ class StudyResult:
 
     def local_limits(self) -> tuple[np.ndarray, np.ndarray]:
         """Tolerable touch and step voltage (V) at every map point, from the zone it lies in; shape of the map."""
-        X, Y = np.meshgrid(self.surface.x, self.surface.y)
-        labels = zoning(self.case).label(X, Y)
+        labels = self.surface.zone_labels
         touch = np.array([z.tolerable_touch for z in self.zones])
         step = np.array([np.nan if z.tolerable_step is None else z.tolerable_step for z in self.zones])
         return touch[labels], step[labels]
@@ -456,20 +452,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
 def combine_scenarios(results: list[StudyResult]) -> StudyResult:
     """The first result, with every scenario's result attached and the checks of the governing scenario."""
     def worst(name: str) -> Check:
-        best, ratio = None, None
-        for r in results:
-            c = getattr(r, name)
-            if c.worst is None:
-                if c.ok is False and best is None:
-                    best = replace(c, scenario=r.scenario)
-                continue
-            q = c.worst.value / c.limit if c.limit else c.worst.value
-            if ratio is None or q > ratio:
-                best, ratio = replace(c, scenario=r.scenario), q
-        if best is None:
-            return replace(getattr(results[0], name), scenario=results[0].scenario)
-        oks = [getattr(r, name).ok for r in results if getattr(r, name).ok is not None]
-        return replace(best, ok=all(oks) if oks else None)
+        return least_margin([replace(getattr(r, name), scenario=r.scenario) for r in results])
 
     first = results[0]
     return replace(first, touch_check=worst("touch_check"), step_check=worst("step_check"),

@@ -22,6 +22,7 @@ from shapely.ops import polygonize, unary_union
 
 from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, near_term_sum
 from .case import SurfaceMap
+from .case_site import shapely_polygon
 from .geometry import Segments
 from .integrals import GAUSS2, line_integral
 from .soil.base import DEPTH_QUANTUM, SoilKernel
@@ -130,10 +131,6 @@ def _near_point_values(p, segments: Segments, kernel: SoilKernel, j) -> np.ndarr
     return exact / L + _gauss_point_values(kernel.remainder, p, a, b)
 
 
-def _area_polygon(area) -> Polygon:
-    return Polygon(area.shell, [list(h) for h in area.holes])
-
-
 def metal_footprint(segments: Segments, mask: np.ndarray, reach: float) -> tuple[shapely.Geometry, shapely.Geometry]:
     """Plan view of the conductors selected by ``mask``: (meshes they form, everything within ``reach``
     of them), shapely geometries in the x–y plane (m)."""
@@ -200,7 +197,7 @@ def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geome
     parts = []
     for t in surface.touch_areas:
         if t.area is not None:
-            parts.append(_area_polygon(t.area))
+            parts.append(shapely_polygon(t.area))
         else:
             sel = main & (c.matching(t.metal) if t.metal else True)
             parts.extend(metal_footprint(segments, sel, t.reach))
@@ -265,8 +262,9 @@ class SurfaceResult:
     zones : tuple of ZoneExtremes
         Worst touch, step and mesh voltages per zone (one zone: the whole map).
     metal : tuple of MetalTouch
-        Per separate electrode: worst touch voltage per zone within reach of it, and the largest
-        surface potential along it.
+        Per separate electrode: worst touch voltage per zone within reach of it.
+    zone_labels : ndarray of int, shape of the map
+        The zone each map point stands in (index into ``zones``).
     """
 
     x: np.ndarray
@@ -283,6 +281,7 @@ class SurfaceResult:
     profile: "Profile"
     zones: tuple["ZoneExtremes", ...] = ()
     metal: tuple["MetalTouch", ...] = ()
+    zone_labels: np.ndarray | None = None
 
     def scaled(self, factor: float) -> "SurfaceResult":
         """Every voltage multiplied by ``factor`` (fields are linear in the GPR; locations are unchanged)."""
@@ -291,7 +290,8 @@ class SurfaceResult:
                              self.touch_area, self.meshes, _scale(self.max_touch, factor),
                              _scale(self.max_step, factor), _scale(self.max_mesh, factor),
                              self.probe_potential * factor, Profile(p.distance, p.x, p.y, p.potential * factor),
-                             tuple(z.scaled(factor) for z in self.zones), tuple(m.scaled(factor) for m in self.metal))
+                             tuple(z.scaled(factor) for z in self.zones), tuple(m.scaled(factor) for m in self.metal),
+                             self.zone_labels)
 
 
 def _scale(ext: "Extreme | None", factor: float) -> "Extreme | None":
@@ -505,7 +505,8 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
 
     zone_touch = [worst_main(area, in_area, k) for k in range(len(zoning))]
     zone_mesh = [worst_main(meshes, in_mesh, k) if in_mesh.any() else None for k in range(len(zoning))]
-    step, zone_step = _step_voltages(x, y, V, surface.step_distance, potential, zoning, labels, check_map)
+    step, zone_step = _step_voltages(x, y, V, surface.step_distance, potential, zoning, labels,
+                                     coarse if check_map else None)
     zones = tuple(ZoneExtremes(t, st, m) for t, st, m in zip(zone_touch, zone_step, zone_mesh))
     max_touch = _largest(zone_touch)
     if max_touch is None:                                  # no touch area at all: nothing to report
@@ -517,7 +518,7 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     px, py = x0 + f * (x1 - x0), y0 + f * (y1 - y0)
     profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, potential(np.column_stack([px, py])))
     return SurfaceResult(x, y, V, touch, step, area, meshes, max_touch, _largest(zone_step), _largest(zone_mesh),
-                         probe_v, profile, zones, metal_touch)
+                         probe_v, profile, zones, metal_touch, labels)
 
 
 def _distinct(points, resolution: float) -> list[tuple[float, float]]:
@@ -630,9 +631,10 @@ def _better(value: float, x: float, y: float, best: Extreme) -> bool:
 
 
 def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray,
-                   check_map: bool = False):
+                   coarse: np.ndarray | None = None):
     """Step-voltage map from a bicubic spline of the potential, and the worst step per zone checked
-    exactly and refined. A step belongs to the zone of the foot with the more severe zone."""
+    exactly and refined, and again from the ``coarse`` map points when given (``Extreme.map_check``). A step
+    belongs to the zone of the foot with the more severe zone."""
     resolution = float(x[1] - x[0]) if len(x) > 1 else 1.0
     spline = RectBivariateSpline(x, y, V.T, kx=3, ky=3)
 
@@ -659,15 +661,13 @@ def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zonin
                 per_zone[k] = np.maximum(per_zone[k], np.where(owner == k, dv, 0.0))
     # exact check around the best few map points of each zone: both ends of the step evaluated directly
     out = []
-    coarse = np.zeros(X.shape, bool)
-    coarse[::2, ::2] = True
     for k in range(nz):
         if nz > 1 and not ((labels == k).any() or (per_zone[k] > 0).any()):
             out.append(None)
             continue
-        best = _exact_step(per_zone[k], X, Y, step_len, potential, zoning, labels, k, resolution, smooth)
-        if best is not None and check_map:
-            check = _exact_step(np.where(coarse, per_zone[k], 0.0), X, Y, step_len, potential, zoning, labels, k,
+        best = _exact_step(per_zone[k], X, Y, step_len, potential, zoning, k, resolution, smooth)
+        if best is not None and coarse is not None:
+            check = _exact_step(np.where(coarse, per_zone[k], 0.0), X, Y, step_len, potential, zoning, k,
                                 2 * resolution, smooth)
             best = replace(best, map_check=None if check is None else check.value)
         out.append(best)
@@ -707,7 +707,7 @@ def step_at(potential, px: float, py: float, step_len: float) -> float:
     return float(steps_at(potential, np.array([[px, py]]), step_len)[0])
 
 
-def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, labels, k: int, resolution: float,
+def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, k: int, resolution: float,
                 smooth=None) -> Extreme | None:
     """The best few map points of ``values`` checked exactly (both feet evaluated directly); those within
     REFINE_SHARE of the best refined by a zoom search of the step voltage on ``smooth`` (a bicubic spline of
@@ -722,10 +722,9 @@ def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, labels, k: in
     if not np.isfinite(first).any():
         return None
     best = None
-    keep = _distinct([tuple(p) for p, v0 in zip(xy, first) if v0 >= (1 - REFINE_SHARE) * np.max(first)], resolution)
-    for (px, py), v0 in zip(xy, first):
-        if (float(px), float(py)) not in keep:
-            continue
+    start = {(float(p[0]), float(p[1])): float(v0) for p, v0 in zip(xy, first)}
+    for px, py in _distinct([p for p, v0 in start.items() if v0 >= (1 - REFINE_SHARE) * np.max(first)], resolution):
+        v0 = start[(px, py)]
         _, qx, qy = _refine(lambda p: steps_at(search, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
                             float(px), float(py), 0.5 * resolution, lambda x, y: np.ones(np.shape(x), bool),
                             points=5, levels=5)

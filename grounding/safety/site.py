@@ -7,7 +7,7 @@ nowhere does not pass (there is no evidence for it).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from ..case import SurfaceZone
 from ..surface import Extreme, ZoneExtremes
@@ -134,25 +134,36 @@ def governing(verdicts: tuple[ZoneVerdict, ...], criterion: str, needed: bool = 
     ``needed`` says whether a criterion evaluated nowhere fails (touch, step) or is not applicable
     (mesh voltage of a layout without meshes).
     """
-    best, best_ratio = None, None
-    for v in verdicts:
-        ext = getattr(v.extremes, criterion)
-        if ext is None:
-            continue
-        limit = v.tolerable_step if criterion == "step" else v.tolerable_touch
-        ratio = ext.value / limit if limit is not None else ext.value      # no limit: the largest value
-        if best_ratio is None or ratio > best_ratio:
-            best, best_ratio = (v, ext, limit), ratio
     standard = verdicts[0].limits.standard
-    if best is None:
+
+    def limit_of(v: ZoneVerdict):
+        return v.tolerable_step if criterion == "step" else v.tolerable_touch
+
+    checks = [Check(getattr(v.extremes, criterion), limit_of(v), v.ok(criterion), v.name, standard=standard)
+              for v in verdicts if getattr(v.extremes, criterion) is not None]
+    if not checks:
         first = verdicts[0]
-        limit = first.tolerable_step if criterion == "step" else first.tolerable_touch
+        limit = limit_of(first)
         return Check(None, limit, False if needed and limit is not None else None, first.name, standard=standard)
-    v, ext, limit = best
-    if limit is None:
-        return Check(ext, None, None, v.name, standard=standard)
-    oks = [v2.ok(criterion) for v2 in verdicts if v2.ok(criterion) is not None]
-    return Check(ext, limit, all(oks), v.name, standard=standard)
+    return least_margin(checks)
+
+
+def least_margin(checks) -> Check:
+    """Of several checks of one criterion (per zone, per scenario), the one with the least margin: the
+    largest worst/limit (without a limit, the largest value). Its verdict is the verdict of them all: True
+    only if every check with a verdict passes, None if none has one. Checks evaluated nowhere take no part in
+    the choice but keep their failing verdict; when no check was evaluated, the first failing one (or the
+    first) is returned as it is."""
+    evaluated = [c for c in checks if c.worst is not None]
+    if not evaluated:
+        return next((c for c in checks if c.ok is False), checks[0])
+    best, best_ratio = None, None
+    for c in evaluated:
+        ratio = c.worst.value / c.limit if c.limit is not None else c.worst.value
+        if best_ratio is None or ratio > best_ratio:
+            best, best_ratio = c, ratio
+    oks = [c.ok for c in checks if c.ok is not None]
+    return replace(best, ok=all(oks) if oks else None)
 
 
 @dataclass(frozen=True)
