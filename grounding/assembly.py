@@ -119,6 +119,12 @@ def near_values(segments: Segments, kernel: SoilKernel, i: np.ndarray, j: np.nda
     return exact / (L[i] * L[j]) + _gauss2x2(kernel.remainder, ai, bi, a[j], b[j])
 
 
+def middle_values(segments: Segments, kernel: SoilKernel, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    """Galerkin R_ij (Ω) for middle pairs: 2 × 2 Gauss–Legendre points of the full kernel."""
+    a, b = segments.start, segments.end
+    return _gauss2x2(kernel.potential, a[i], b[i], a[j], b[j])
+
+
 def far_matrix(segments: Segments, kernel: SoilKernel, progress: Progress | None = None) -> np.ndarray:
     """The full kernel between all segment midpoints, Ω, shape (N, N) (diagonal meaningless)."""
     mid = segments.midpoint
@@ -183,10 +189,9 @@ def assemble(segments: Segments, kernel: SoilKernel, options: AssemblyOptions = 
     """
     R = far_matrix(segments, kernel, progress)
     near, middle = near_pairs(segments, options)
-    a, b = segments.start, segments.end
     for start in range(0, len(middle), PAIR_CHUNK):
         p = middle[start:start + PAIR_CHUNK]
-        v = _gauss2x2(kernel.potential, a[p[:, 0]], b[p[:, 0]], a[p[:, 1]], b[p[:, 1]])
+        v = middle_values(segments, kernel, p[:, 0], p[:, 1])
         R[p[:, 0], p[:, 1]] = v
         R[p[:, 1], p[:, 0]] = v
     for start in range(0, len(near), PAIR_CHUNK):

@@ -149,6 +149,8 @@ class Fault:
 
 #: Safety criteria a study can judge by.
 STANDARDS = ("ieee80", "en50522")
+#: Solvers of the electrode system (see :class:`Discretization`).
+SOLVERS = ("auto", "dense", "iterative")
 
 
 @dataclass(frozen=True)
@@ -321,9 +323,19 @@ class TouchArea:
 
 @dataclass(frozen=True)
 class Discretization:
-    """Segmentation control: longest segment, m."""
+    """Segmentation control and solver choice.
+
+    Attributes
+    ----------
+    max_segment : float
+        Longest segment, m.
+    solver : str
+        ``auto`` (the dense Cholesky solve up to a size where it is fast and safe, the compressed
+        operator with conjugate gradients above), ``dense`` or ``iterative``.
+    """
 
     max_segment: float = 1.0
+    solver: str = "auto"
 
 
 @dataclass(frozen=True)

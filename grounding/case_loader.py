@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .case import STANDARDS, Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
+from .case import SOLVERS, STANDARDS, Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
     TouchArea
 from .case_checks import Document, as_number, fmt
 from .case_drawing import DrawingSections
@@ -360,13 +360,16 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         return Criteria(int(w), tuple(items), footwear)
 
     def discretization(self, value: Any, electrodes: Electrodes, separate=()) -> Discretization:
-        m = self.mapping("discretization", value or {}, ("max_segment",))
+        m = self.mapping("discretization", value or {}, ("max_segment", "solver"))
         s = self.number("discretization.max_segment", m.get("max_segment", 1.0), "m", gt=0)
         diameters = [x.diameter for e in (electrodes, *separate) for x in e.grids + e.conductors + e.rods]
         if s < 4 * max(diameters):
             raise self.doc.fail("discretization.max_segment", f"= {s:g} m is shorter than 4 conductor diameters "
                                 f"({4 * max(diameters):g} m); the thin-wire kernel needs longer segments")
-        return Discretization(s)
+        solver = m.get("solver", "auto")
+        if solver not in SOLVERS:
+            raise self.doc.fail("discretization.solver", f"= {solver!r} is not a solver; use one of {', '.join(SOLVERS)}")
+        return Discretization(s, solver)
 
     def surface(self, value: Any, electrodes: Electrodes, separate=()) -> SurfaceMap:
         p = "surface"

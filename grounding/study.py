@@ -14,8 +14,9 @@ from typing import Callable
 
 import numpy as np
 
-from .assembly import AssemblyOptions, assemble, matrix_memory_bytes
-from .case import Case, Discretization
+from .assembly import AssemblyOptions, matrix_memory_bytes
+from .operators import compressed_memory_bytes, compressed_operator, dense_operator
+from .case import Case
 from .cautions import CAUTIONS
 from .errors import ModelTooLargeError
 from .geometry import Segments, segment
@@ -27,7 +28,7 @@ from .safety.simplified import SimplifiedResult, simplified_method
 from .safety.site import (Check, CriteriaResult, SeparateResult, ZoneVerdict, governing, least_margin,
                           separate_result, zone_limits)
 from .soil import SoilKernel, make_kernel
-from .solve import Solution, solve_equipotential
+from .solve import Solution, solve_operator
 from .surface import (Extreme, SeparateMetal, SurfacePotential, SurfaceResult, ZoneExtremes, Zoning, contour_lines,
                       map_axes, step_at, surface_fields)
 
@@ -39,6 +40,9 @@ CONVERGENCE_ORDER = 1.0
 MEMORY_SHARE = 0.5
 #: Most surface-map points a study evaluates.
 MAX_MAP_POINTS = 1_000_000
+#: Largest system the ``auto`` solver factorises densely; above it the compressed operator and conjugate
+#: gradients are faster (see DEVELOPERS.md, "Large sites", for the measured crossover).
+DENSE_LIMIT = 8_000
 
 
 @dataclass(frozen=True)
@@ -174,18 +178,31 @@ def available_memory() -> int:
         return 8 * 2 ** 30
 
 
+def solver_kind(case: Case, n_segments: int) -> str:
+    """``dense`` or ``iterative``: the case's ``discretization.solver``, with ``auto`` resolved by size."""
+    chosen = case.discretization.solver
+    if chosen == "auto":
+        return "dense" if n_segments <= DENSE_LIMIT else "iterative"
+    return chosen
+
+
 def check_model_size(case: Case, segments: Segments) -> None:
-    """Refuse a discretisation whose dense matrices would not fit in memory."""
+    """Refuse a discretisation whose solver would not fit in memory, saying what each solver would need."""
     n = len(segments)
-    need = matrix_memory_bytes(n)
+    kind = solver_kind(case, n)
+    dense, compressed = matrix_memory_bytes(n), compressed_memory_bytes(n)
+    need = dense if kind == "dense" else compressed
     limit = MEMORY_SHARE * available_memory()
     if need > limit:
-        n_max = int(np.sqrt(limit / matrix_memory_bytes(1)))
-        suggest = case.discretization.max_segment * n / n_max
+        gib = 2 ** 30
+        if kind == "dense" and compressed <= limit:
+            fix = "use discretization.solver: iterative (or auto)"
+        else:
+            fix = f"use max_segment of at least {case.discretization.max_segment * need / limit:.2g} m"
         raise ModelTooLargeError(
             f"{case.source}: discretization.max_segment = {case.discretization.max_segment:g} m gives {n:,} "
-            f"segments; the dense matrix and its factor would need {need / 2 ** 30:.1f} GiB, more than the "
-            f"{limit / 2 ** 30:.1f} GiB this machine can spare; use max_segment of at least {suggest:.2g} m")
+            f"segments; the {kind} solve would need {need / gib:.1f} GiB (dense: {dense / gib:.1f} GiB, iterative: "
+            f"{compressed / gib:.1f} GiB), more than the {limit / gib:.1f} GiB this machine can spare; {fix}")
     x, y = map_axes(segments, case.surface)
     if len(x) * len(y) > MAX_MAP_POINTS:
         raise ModelTooLargeError(
@@ -200,10 +217,12 @@ def _solve(case: Case, progress: Progress | None = None):
     check_model_size(case, segments)
     kernel = make_kernel(case.soil, case.discretization.max_segment)
     t0 = time.perf_counter()
-    R = assemble(segments, kernel, AssemblyOptions(), progress)
+    build = dense_operator if solver_kind(case, len(segments)) == "dense" else compressed_operator
+    operator = build(segments, kernel, AssemblyOptions(), progress)
     t1 = time.perf_counter()
-    solution = solve_equipotential(R, segments.group, connections(case))
+    solution = solve_operator(operator, segments.group, connections(case), progress)
     t2 = time.perf_counter()
+    solution = replace(solution, solver={**solution.solver, "operator_mb": round(operator.nbytes / 1e6, 1)})
     return segments, kernel, solution, {"assemble_s": t1 - t0, "solve_s": t2 - t1}
 
 
@@ -235,7 +254,8 @@ def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int
     """Second solve at twice the segment length (about an eighth of the cost) and Richardson's estimate
     of the error of Rg; with the unit ``surface`` of the fine solve, also the worst voltages of every zone
     re-evaluated at the same points from the coarse solve (``Extreme.segment_check``)."""
-    coarse_case = replace(case, discretization=Discretization(2 * case.discretization.max_segment))
+    coarse_case = replace(case, discretization=replace(case.discretization,
+                                                            max_segment=2 * case.discretization.max_segment))
     segments, kernel, coarse, _ = _solve(coarse_case)
     if len(segments) == fine_segments:
         return DiscretizationError(coarse.resistance, None, None,
@@ -386,7 +406,7 @@ class Convergence:
 def refined(case: Case, max_segment: float, resolution: float) -> Case:
     """The case (and every scenario of it) with another segment length and map spacing, m."""
     def one(c: Case) -> Case:
-        return replace(c, discretization=Discretization(max_segment), surface=replace(c.surface, resolution=resolution))
+        return replace(c, discretization=replace(c.discretization, max_segment=max_segment), surface=replace(c.surface, resolution=resolution))
     return replace(one(case), scenarios=tuple(replace(sc, case=one(sc.case)) for sc in case.scenarios))
 
 

@@ -234,6 +234,8 @@ def results_dict(r: StudyResult) -> dict:
                             "touch_v": _num(rd.touch), "step_v": _num(rd.step), "mesh_v": _num(rd.mesh)}
                            for rd in r.convergence.rounds]},
             "solve_relative_residual": _num(r.solution.relative_residual, 3),
+            "solver": _solver(r),
+            "peak_memory_mb": _num(peak_memory_mb(), 1),
             "max_segment_m": c.discretization.max_segment,
             "soil_kernel": r.kernel.describe(),
         },
@@ -241,6 +243,26 @@ def results_dict(r: StudyResult) -> dict:
         "warnings": list(r.warnings),
         "cautions": list(r.cautions),
     }
+
+
+def _solver(r: StudyResult) -> dict:
+    info = dict(r.solution.solver or {"kind": "dense"})
+    out = {"kind": info.get("kind"), "iterations": info.get("iterations"),
+           "relative_residual": _num(info.get("relative_residual", r.solution.relative_residual), 3),
+           "operator_mb": info.get("operator_mb")}
+    return out
+
+
+def peak_memory_mb() -> float | None:
+    """Peak resident memory of this process so far, MB (None where the platform does not say)."""
+    try:
+        import resource
+        import sys
+
+        peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+        return peak / 1e6 if sys.platform == "darwin" else peak / 1e3     # bytes on macOS, kB on Linux
+    except (ImportError, OSError, ValueError):
+        return None
 
 
 def results_json(r: StudyResult) -> bytes:

@@ -25,6 +25,16 @@ def caution_box(cautions=CAUTIONS) -> str:
     return "\n".join(lines)
 
 
+def solver_text(r: StudyResult) -> str:
+    """How the electrode system was solved, in words: kind, iterations, residual."""
+    info = r.solution.solver or {"kind": "dense"}
+    if info.get("kind") == "iterative":
+        return (f"{len(r.segments):,} segments, compressed operator ({info.get('operator_mb', 0):,.0f} MB) and "
+                f"conjugate gradients, {info.get('iterations')} iterations, relative residual "
+                f"{r.solution.relative_residual:.1e}")
+    return f"{len(r.segments):,} segments, dense Cholesky solve, relative residual {r.solution.relative_residual:.1e}"
+
+
 def _heading(title: str) -> str:
     return f"\n{title}\n{'=' * len(title)}"
 
@@ -372,7 +382,7 @@ def study_summary(r: StudyResult, units: str = "si") -> str:
             out.extend(textwrap.wrap(w, WIDTH - 4, initial_indent="  - ", subsequent_indent="    "))
     t = r.timings
     out.append(f"\nTimings: assemble {t['assemble_s']:.2f} s, solve {t['solve_s']:.2f} s, "
-               f"surface {t['surface_s']:.2f} s; solve residual {r.solution.relative_residual:.1e}")
+               f"surface {t['surface_s']:.2f} s; {solver_text(r)}")
     out.append("")
     out.append(caution_box())
     return "\n".join(out)

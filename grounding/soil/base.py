@@ -187,7 +187,17 @@ class SoilKernel(ABC):
 
     @staticmethod
     def _by_depth(factory, r, z, zp) -> np.ndarray:
-        r, z, zp = np.broadcast_arrays(np.asarray(r, float), np.asarray(z, float), np.asarray(zp, float))
+        z, zp = np.asarray(z, float), np.asarray(zp, float)
+        lz, _ = _levels(z.ravel())
+        lp, _ = _levels(zp.ravel())
+        if len(lz) == 1 and len(lp) == 1:            # one depth pair: no grouping, no broadcast copies
+            shape = np.broadcast_shapes(np.shape(r), z.shape, zp.shape)
+            f = factory(lz[0] * DEPTH_QUANTUM, lp[0] * DEPTH_QUANTUM)
+            if f is None:
+                return np.zeros(shape)
+            return np.broadcast_to(f(np.broadcast_to(np.asarray(r, float), shape).copy()), shape).copy() \
+                if np.shape(r) != shape else f(np.array(r, float))
+        r, z, zp = np.broadcast_arrays(np.asarray(r, float), z, zp)
         out = np.zeros(r.shape)
         if r.size == 0:
             return out

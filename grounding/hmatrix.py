@@ -1,0 +1,385 @@
+"""Hierarchical matrices: a kernel matrix K_ij = G(x_i, y_j) with its far blocks interpolated.
+
+The points are ordered by a cluster tree (recursive bisection of the bounding box along its longest
+side; points in different soil layers are split apart first, so that no cluster straddles an
+interface, where the kernel has a kink). A pair of clusters (T, S) is *admissible* when the distance
+between their boxes is at least ``1/eta`` times the larger box diagonal; the block partition is the
+coarsest one made of admissible blocks and of pairs of leaves (Hackbusch, *Hierarchical Matrices*,
+Springer 2015, ch. 5).
+
+An admissible block is replaced by its tensor-product Chebyshev interpolation (Börm & Grasedyck,
+"Low-rank approximation of integral operators by interpolation", Computing 72, 2004):
+
+    K|_{T×S} ≈ U_T · G(ξ_T, ξ_S) · U_Sᵀ,
+
+U_T the Lagrange polynomials of cluster T's nodes ξ_T evaluated at its points. In a coordinate where a
+cluster's points take at most as many distinct values as it would have nodes (all segments of a flat
+grid at one depth, conductors on a few lines), the distinct values themselves are the nodes and the
+interpolation in that coordinate is exact. The kernel is only ever evaluated point to point, so one
+implementation serves every soil model.
+
+All three factors are stored as sparse matrices, so that K x = N x + Uᵀ (C (V x)) costs a few sparse
+products: N the leaf pairs that are not admissible (evaluated exactly), C the node-to-node couplings.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import scipy.sparse as sp
+
+#: G(r, z, z'): horizontal distance r and depths z, z' (m) of point pairs, broadcast → kernel values.
+Kernel = Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray]
+Progress = Callable[[str, float], None]
+
+#: Chebyshev nodes per horizontal coordinate of a cluster.
+NODES_XY = 5
+#: Chebyshev nodes in depth for clusters whose points lie at more distinct depths.
+NODES_Z = 4
+#: Admissibility: box distance ≥ larger box diagonal / ETA.
+ETA = 1.5
+#: Largest cluster that is not split further.
+LEAF_SIZE = 32
+#: Kernel values evaluated per chunk while building.
+CHUNK = 2_000_000
+#: Coordinates that differ by less than this are one value (m).
+QUANTUM = 1e-9
+
+
+@dataclass(frozen=True)
+class ClusterTree:
+    """Clusters of points; cluster c holds the points ``order[start[c]:stop[c]]``.
+
+    Attributes
+    ----------
+    order : ndarray of int, shape (n,)
+        The points in tree order.
+    start, stop : ndarray of int, shape (C,)
+        Each cluster's range in ``order``.
+    lo, hi : ndarray, shape (C, 3)
+        Bounding box of each cluster, m.
+    children : ndarray of int, shape (C, 2)
+        The two children of each cluster, −1 for leaves.
+    roots : ndarray of int
+        The clusters without parent (one per soil layer holding points).
+    """
+
+    order: np.ndarray
+    start: np.ndarray
+    stop: np.ndarray
+    lo: np.ndarray
+    hi: np.ndarray
+    children: np.ndarray
+    roots: np.ndarray
+
+    @property
+    def size(self) -> np.ndarray:
+        """Points per cluster."""
+        return self.stop - self.start
+
+    @property
+    def is_leaf(self) -> np.ndarray:
+        """True for clusters without children."""
+        return self.children[:, 0] < 0
+
+    def members(self, c: int) -> np.ndarray:
+        """Indices of the points of cluster c."""
+        return self.order[self.start[c]:self.stop[c]]
+
+
+def cluster_tree(points: np.ndarray, layer: np.ndarray | None = None, leaf_size: int = LEAF_SIZE) -> ClusterTree:
+    """Recursive bisection of ``points`` (m, shape (n, 3)); ``layer`` (int per point) keeps layers apart."""
+    points = np.asarray(points, float)
+    n = len(points)
+    layer = np.zeros(n, int) if layer is None else np.asarray(layer, int)
+    order = np.argsort(layer, kind="stable")
+    start, stop, children = [], [], []
+    roots = []
+    bounds = np.flatnonzero(np.diff(layer[order])) + 1
+    for a, b in zip(np.r_[0, bounds], np.r_[bounds, n]):
+        roots.append(len(start))
+        start.append(int(a)); stop.append(int(b)); children.append([-1, -1])
+    todo = list(roots)
+    while todo:
+        c = todo.pop()
+        a, b = start[c], stop[c]
+        if b - a <= leaf_size:
+            continue
+        idx = order[a:b]
+        p = points[idx]
+        extent = p.max(axis=0) - p.min(axis=0)
+        axis = int(np.argmax(extent))
+        if extent[axis] <= QUANTUM:
+            continue                                   # coincident points: nothing to split
+        half = (b - a) // 2
+        part = np.argpartition(p[:, axis], half)
+        order[a:b] = idx[part]
+        kids = []
+        for lo_, hi_ in ((a, a + half), (a + half, b)):
+            kids.append(len(start))
+            start.append(lo_); stop.append(hi_); children.append([-1, -1])
+        children[c] = kids
+        todo.extend(kids)
+    start, stop = np.array(start), np.array(stop)
+    lo = np.empty((len(start), 3))
+    hi = np.empty((len(start), 3))
+    ordered = points[order]
+    for c in range(len(start)):
+        seg = ordered[start[c]:stop[c]]
+        lo[c] = seg.min(axis=0)
+        hi[c] = seg.max(axis=0)
+    return ClusterTree(order, start, stop, lo, hi, np.array(children, int).reshape(-1, 2), np.array(roots, int))
+
+
+def block_partition(target: ClusterTree, source: ClusterTree, eta: float = ETA,
+                    symmetric: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Admissible cluster pairs and pairs of leaves that are not, each an (k, 2) array (target, source).
+
+    With ``symmetric`` (target and source the same tree) only one of the pairs (t, s) and (s, t) is returned."""
+    pairs = np.array([(t, s) for t in target.roots for s in source.roots if not (symmetric and t > s)],
+                     int).reshape(-1, 2)
+    far, near = [], []
+    while len(pairs):
+        t, s = pairs[:, 0], pairs[:, 1]
+        gap = np.maximum(0.0, np.maximum(source.lo[s] - target.hi[t], target.lo[t] - source.hi[s]))
+        dist = np.linalg.norm(gap, axis=1)
+        diam = np.maximum(np.linalg.norm(target.hi[t] - target.lo[t], axis=1),
+                          np.linalg.norm(source.hi[s] - source.lo[s], axis=1))
+        ok = eta * dist >= diam
+        far.append(pairs[ok & (dist > 0)])
+        rest = pairs[~(ok & (dist > 0))]
+        t, s = rest[:, 0], rest[:, 1]
+        lt, ls = target.is_leaf[t], source.is_leaf[s]
+        near.append(rest[lt & ls])
+        nxt = []
+        both = ~lt & ~ls
+        for a in (0, 1):
+            for b in (0, 1):
+                # a diagonal pair (t, t) of a symmetric matrix splits into (1, 1), (1, 2), (2, 2) only
+                sel = both & (t != s) if (symmetric and a > b) else both
+                nxt.append(np.column_stack([target.children[t[sel], a], source.children[s[sel], b]]))
+        only_t = ~lt & ls
+        only_s = lt & ~ls
+        for a in (0, 1):
+            nxt.append(np.column_stack([target.children[t[only_t], a], s[only_t]]))
+            nxt.append(np.column_stack([t[only_s], source.children[s[only_s], a]]))
+        pairs = np.vstack(nxt)
+    return np.vstack(far), np.vstack(near)
+
+
+def _chebyshev(lo: float, hi: float, p: int) -> np.ndarray:
+    k = np.arange(p)
+    return 0.5 * (lo + hi) + 0.5 * (hi - lo) * np.cos((2 * k + 1) * np.pi / (2 * p))
+
+
+def _axis_basis(v: np.ndarray, p: int) -> tuple[np.ndarray, np.ndarray]:
+    """Nodes in one coordinate and the interpolation weights of values v at them, shape (len(v), k)."""
+    q = np.round(v / QUANTUM)
+    distinct, inverse = np.unique(q, return_inverse=True)
+    if len(distinct) <= p:
+        w = np.zeros((len(v), len(distinct)))
+        w[np.arange(len(v)), inverse.ravel()] = 1.0
+        return distinct * QUANTUM, w
+    nodes = _chebyshev(v.min(), v.max(), p)
+    gap = nodes[:, None] - nodes[None, :]
+    np.fill_diagonal(gap, 1.0)
+    factor = (v[:, None, None] - nodes[None, None, :]) / gap[None, :, :]     # (n, k, j)
+    idx = np.arange(p)
+    factor[:, idx, idx] = 1.0
+    return nodes, factor.prod(axis=2)
+
+
+@dataclass(frozen=True)
+class ClusterBasis:
+    """Interpolation nodes of clusters and the sparse map from point values to node values.
+
+    Attributes
+    ----------
+    nodes : ndarray, shape (m, 3)
+        All clusters' nodes, m.
+    first, count : ndarray of int, shape (C,)
+        Where each cluster's nodes start in ``nodes`` and how many it has (0 when unused).
+    matrix : scipy.sparse.csr_matrix, shape (m, n)
+        Row k holds the weights of the points of node k's cluster (U_Tᵀ stacked).
+    """
+
+    nodes: np.ndarray
+    first: np.ndarray
+    count: np.ndarray
+    matrix: sp.csr_matrix
+
+
+def cluster_basis(tree: ClusterTree, points: np.ndarray, used: np.ndarray,
+                  nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z) -> ClusterBasis:
+    """Tensor-product interpolation bases of the clusters ``used`` (indices into the tree)."""
+    first = np.zeros(len(tree.start), int)
+    count = np.zeros(len(tree.start), int)
+    node_list, rows, cols, vals = [], [], [], []
+    m = 0
+    for c in np.unique(used):
+        idx = tree.members(c)
+        p = points[idx]
+        axes = [_axis_basis(p[:, d], nodes_xy if d < 2 else nodes_z) for d in range(3)]
+        (nx, wx), (ny, wy), (nz, wz) = axes
+        w = (wx[:, :, None, None] * wy[:, None, :, None] * wz[:, None, None, :]).reshape(len(idx), -1)
+        gx, gy, gz = np.meshgrid(nx, ny, nz, indexing="ij")
+        k = w.shape[1]
+        node_list.append(np.column_stack([gx.ravel(), gy.ravel(), gz.ravel()]))
+        first[c], count[c] = m, k
+        rows.append(np.repeat(np.arange(m, m + k)[None, :], len(idx), axis=0).ravel().astype(np.int32))
+        cols.append(np.repeat(idx[:, None], k, axis=1).ravel().astype(np.int32))
+        vals.append(w.ravel())
+        m += k
+    nodes = np.vstack(node_list) if node_list else np.zeros((0, 3))
+    cat = (lambda x, t: np.concatenate(x) if x else np.zeros(0, t))
+    matrix = sp.csr_matrix((cat(vals, float), (cat(rows, np.int32), cat(cols, np.int32))), shape=(m, len(points)))
+    matrix.sum_duplicates()
+    return ClusterBasis(nodes, first, count, matrix)
+
+
+def _pair_values(kernel: Kernel, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """G between point arrays of equal leading shape x (…, 3) and y (…, 3), non-finite values → 0."""
+    r = np.hypot(x[..., 0] - y[..., 0], x[..., 1] - y[..., 1])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        v = kernel(r, x[..., 2], y[..., 2])
+    v[~np.isfinite(v)] = 0.0
+    return v
+
+
+def _block_entries(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s_first, s_count, s_pts,
+                   t_index, s_index, symmetric: bool, progress: Progress | None, label: str):
+    """COO entries (rows, cols, values) of dense blocks between ranges of two point sets.
+
+    ``t_first``/``t_count`` give each target cluster's range in ``t_index`` (into ``t_pts``), likewise
+    for the sources. Blocks are grouped by shape and evaluated in chunks."""
+    rows, cols, vals = [], [], []
+    if len(blocks) == 0:
+        z = np.zeros(0, np.int32)
+        return z, z, np.zeros(0)
+    shape = t_count[blocks[:, 0]].astype(np.int64) * (1 << 20) + s_count[blocks[:, 1]]
+    done, total = 0, int(np.sum(t_count[blocks[:, 0]].astype(np.int64) * s_count[blocks[:, 1]]))
+    for key in np.unique(shape):
+        grp = blocks[shape == key]
+        a, b = int(key >> 20), int(key & ((1 << 20) - 1))
+        if a == 0 or b == 0:
+            continue
+        per = max(1, CHUNK // (a * b))
+        for k in range(0, len(grp), per):
+            g = grp[k:k + per]
+            it = t_index[t_first[g[:, 0]][:, None] + np.arange(a)[None, :]]        # (g, a)
+            js = s_index[s_first[g[:, 1]][:, None] + np.arange(b)[None, :]]        # (g, b)
+            v = _pair_values(kernel, t_pts[it][:, :, None, :], s_pts[js][:, None, :, :])
+            I = np.broadcast_to(it[:, :, None], v.shape)
+            J = np.broadcast_to(js[:, None, :], v.shape)
+            if symmetric:
+                diag = g[:, 0] == g[:, 1]
+                if diag.any():
+                    v[diag] = 0.5 * (v[diag] + np.swapaxes(v[diag], 1, 2))
+                off = ~diag
+                rows += [I.ravel(), J[off].ravel()]
+                cols += [J.ravel(), I[off].ravel()]
+                vals += [v.ravel(), v[off].ravel()]
+            else:
+                rows.append(I.ravel()); cols.append(J.ravel()); vals.append(v.ravel())
+            done += len(g) * a * b
+            if progress:
+                progress(label, done / total)
+    return (np.concatenate(rows).astype(np.int32), np.concatenate(cols).astype(np.int32), np.concatenate(vals))
+
+
+@dataclass(frozen=True)
+class HMatrix:
+    """K ≈ near + Uᵀ · coupling · V, K of shape (M, N) (see the module text).
+
+    Attributes
+    ----------
+    near : scipy.sparse.csr_matrix, shape (M, N)
+        Kernel values of point pairs in leaf pairs that are not admissible (coincident points: 0).
+    target_basis : ClusterBasis
+        Node bases of the target clusters (U stacked, shape (m_t, M)).
+    coupling : scipy.sparse.csr_matrix, shape (m_t, m_s)
+        Kernel values between the nodes of admissible cluster pairs.
+    source_basis : ClusterBasis
+        Node bases of the source clusters (V, shape (m_s, N)).
+    admissible_blocks, near_blocks : int
+        Counts of the two kinds of blocks.
+    target_tree, source_tree : ClusterTree
+        The cluster trees (the same object for a symmetric matrix).
+    """
+
+    near: sp.csr_matrix
+    target_basis: ClusterBasis
+    coupling: sp.csr_matrix
+    source_basis: ClusterBasis
+    admissible_blocks: int
+    near_blocks: int
+    target_tree: ClusterTree
+    source_tree: ClusterTree
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.near.shape
+
+    def far(self, x: np.ndarray) -> np.ndarray:
+        """The interpolated part alone, Uᵀ C V x."""
+        return self.target_basis.matrix.T @ (self.coupling @ (self.source_basis.matrix @ x))
+
+    def matvec(self, x: np.ndarray) -> np.ndarray:
+        """K x (x of shape (N,) or (N, k))."""
+        return self.near @ x + self.far(x)
+
+    @property
+    def nbytes(self) -> int:
+        """Memory held by the sparse factors, bytes."""
+        mats = (self.near, self.coupling, self.target_basis.matrix, self.source_basis.matrix)
+        return int(sum(m.data.nbytes + m.indices.nbytes + m.indptr.nbytes for m in mats))
+
+
+def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | None = None,
+                  target_layer: np.ndarray | None = None, source_layer: np.ndarray | None = None,
+                  eta: float = ETA, leaf_size: int = LEAF_SIZE, nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z,
+                  progress: Progress | None = None, label: str = "compress") -> HMatrix:
+    """Hierarchical approximation of K_ij = kernel(x_i, y_j).
+
+    Parameters
+    ----------
+    kernel : callable
+        G(r, z, z') for horizontal distance r and depths z (target), z' (source), m → kernel units.
+    targets : ndarray, shape (M, 3)
+        Target points x_i, m.
+    sources : ndarray, shape (N, 3), optional
+        Source points y_j, m; None means the targets (a symmetric matrix, its diagonal set to 0).
+    target_layer, source_layer : ndarray of int, optional
+        Soil layer of each point; clusters never mix layers.
+    eta : float
+        Admissibility parameter (larger: more blocks compressed, less accurate).
+    leaf_size : int
+        Largest cluster not split.
+    nodes_xy, nodes_z : int
+        Chebyshev nodes per horizontal coordinate and in depth.
+    progress : callable, optional
+        Called as progress(label, fraction).
+    """
+    symmetric = sources is None
+    targets = np.asarray(targets, float)
+    t_tree = cluster_tree(targets, target_layer, leaf_size)
+    if symmetric:
+        sources, s_tree = targets, t_tree
+    else:
+        sources = np.asarray(sources, float)
+        s_tree = cluster_tree(sources, source_layer, leaf_size)
+    far, near = block_partition(t_tree, s_tree, eta, symmetric)
+    tb = cluster_basis(t_tree, targets, far[:, 0] if not symmetric else far.ravel(), nodes_xy, nodes_z)
+    sb = tb if symmetric else cluster_basis(s_tree, sources, far[:, 1], nodes_xy, nodes_z)
+    r, c, v = _block_entries(kernel, far, tb.first, tb.count, tb.nodes, sb.first, sb.count, sb.nodes,
+                             np.arange(len(tb.nodes)), np.arange(len(sb.nodes)), symmetric, progress, label)
+    coupling = sp.csr_matrix((v, (r, c)), shape=(len(tb.nodes), len(sb.nodes)))
+    del r, c, v
+    r, c, v = _block_entries(kernel, near, t_tree.start, t_tree.size, targets, s_tree.start, s_tree.size, sources,
+                             t_tree.order, s_tree.order, symmetric, progress, label)
+    if symmetric:
+        v[r == c] = 0.0
+    near_m = sp.csr_matrix((v, (r, c)), shape=(len(targets), len(sources)))
+    return HMatrix(near_m, tb, coupling, sb, len(far), len(near), t_tree, s_tree)
