@@ -13,9 +13,8 @@ An admissible block is replaced by its tensor-product Chebyshev interpolation (B
     K|_{T×S} ≈ U_T · G(ξ_T, ξ_S) · U_Sᵀ,
 
 U_T the Lagrange polynomials of cluster T's nodes ξ_T evaluated at its points. In a coordinate where a
-cluster's points take at most as many distinct values as it would have nodes (all segments of a flat
-grid at one depth, conductors on a few lines), the distinct values themselves are the nodes and the
-interpolation in that coordinate is exact. The kernel is only ever evaluated point to point, so one
+cluster's points all agree (all segments of a flat grid at one depth, a run of one straight conductor),
+one node suffices and the interpolation in that coordinate is exact. The kernel is only ever evaluated point to point, so one
 implementation serves every soil model.
 
 All three factors are stored as sparse matrices, so that K x = N x + Uᵀ (C (V x)) costs a few sparse
@@ -169,26 +168,23 @@ def block_partition(target: ClusterTree, source: ClusterTree, eta: float = ETA,
     return np.vstack(far), np.vstack(near)
 
 
-def _chebyshev(lo: float, hi: float, p: int) -> np.ndarray:
+def _chebyshev(lo: np.ndarray, hi: np.ndarray, p: int) -> np.ndarray:
+    """p Chebyshev nodes of the first kind on each interval [lo, hi], shape (g, p)."""
     k = np.arange(p)
-    return 0.5 * (lo + hi) + 0.5 * (hi - lo) * np.cos((2 * k + 1) * np.pi / (2 * p))
+    return 0.5 * (lo + hi)[:, None] + 0.5 * (hi - lo)[:, None] * np.cos((2 * k + 1) * np.pi / (2 * p))[None, :]
 
 
-def _axis_basis(v: np.ndarray, p: int) -> tuple[np.ndarray, np.ndarray]:
-    """Nodes in one coordinate and the interpolation weights of values v at them, shape (len(v), k)."""
-    q = np.round(v / QUANTUM)
-    distinct, inverse = np.unique(q, return_inverse=True)
-    if len(distinct) <= p:
-        w = np.zeros((len(v), len(distinct)))
-        w[np.arange(len(v)), inverse.ravel()] = 1.0
-        return distinct * QUANTUM, w
-    nodes = _chebyshev(v.min(), v.max(), p)
-    gap = nodes[:, None] - nodes[None, :]
-    np.fill_diagonal(gap, 1.0)
-    factor = (v[:, None, None] - nodes[None, None, :]) / gap[None, :, :]     # (n, k, j)
+def _lagrange(v: np.ndarray, nodes: np.ndarray) -> np.ndarray:
+    """Lagrange polynomials of ``nodes`` (g, p) at values v (g, n), shape (g, n, p)."""
+    p = nodes.shape[1]
+    if p == 1:
+        return np.ones(v.shape + (1,))
+    gap = nodes[:, :, None] - nodes[:, None, :]                         # (g, k, j)
     idx = np.arange(p)
-    factor[:, idx, idx] = 1.0
-    return nodes, factor.prod(axis=2)
+    gap[:, idx, idx] = 1.0
+    factor = (v[:, :, None, None] - nodes[:, None, None, :]) / gap[:, None, :, :]     # (g, n, k, j)
+    factor[:, :, idx, idx] = 1.0
+    return factor.prod(axis=3)
 
 
 @dataclass(frozen=True)
@@ -211,32 +207,73 @@ class ClusterBasis:
     matrix: sp.csr_matrix
 
 
-def cluster_basis(tree: ClusterTree, points: np.ndarray, used: np.ndarray,
-                  nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z) -> ClusterBasis:
-    """Tensor-product interpolation bases of the clusters ``used`` (indices into the tree)."""
+def _basis_layout(tree: ClusterTree, used: np.ndarray, nodes_xy: int, nodes_z: int):
+    """Node counts of the clusters ``used``: (used, nodes per axis (k, 3), first node, node count, total)."""
+    used = np.unique(used)
     first = np.zeros(len(tree.start), int)
     count = np.zeros(len(tree.start), int)
-    node_list, rows, cols, vals = [], [], [], []
-    m = 0
-    for c in np.unique(used):
-        idx = tree.members(c)
-        p = points[idx]
-        axes = [_axis_basis(p[:, d], nodes_xy if d < 2 else nodes_z) for d in range(3)]
-        (nx, wx), (ny, wy), (nz, wz) = axes
-        w = (wx[:, :, None, None] * wy[:, None, :, None] * wz[:, None, None, :]).reshape(len(idx), -1)
-        gx, gy, gz = np.meshgrid(nx, ny, nz, indexing="ij")
-        k = w.shape[1]
-        node_list.append(np.column_stack([gx.ravel(), gy.ravel(), gz.ravel()]))
-        first[c], count[c] = m, k
-        rows.append(np.repeat(np.arange(m, m + k)[None, :], len(idx), axis=0).ravel().astype(np.int32))
-        cols.append(np.repeat(idx[:, None], k, axis=1).ravel().astype(np.int32))
+    extent = tree.hi[used] - tree.lo[used]
+    flat = extent <= QUANTUM * (1.0 + np.abs(tree.lo[used]))
+    per_axis = np.where(flat, 1, np.array([nodes_xy, nodes_xy, nodes_z])[None, :])
+    k_of = per_axis.prod(axis=1)
+    first[used] = np.r_[0, np.cumsum(k_of)[:-1]]
+    count[used] = k_of
+    return used, per_axis, first, count, int(k_of.sum())
+
+
+def _basis_groups(tree: ClusterTree, points: np.ndarray, used, per_axis, first, weights: bool = True):
+    """Clusters of equal size and node pattern, a group at a time: (point indices (g, n), node indices
+    (g, k), node coordinates (g, k, 3), interpolation weights (g, n, k) or None)."""
+    key = (tree.size[used].astype(np.int64) * 1000 + per_axis[:, 0] * 100 + per_axis[:, 1] * 10 + per_axis[:, 2])
+    for value in np.unique(key):
+        sel = key == value
+        g, pa = used[sel], per_axis[np.flatnonzero(sel)[0]]
+        n = int(tree.size[g[0]])
+        idx = tree.order[tree.start[g][:, None] + np.arange(n)[None, :]]              # (g, n)
+        axis_nodes, axis_weights = [], []
+        for d in range(3):
+            nd = tree.lo[g, d][:, None] if pa[d] == 1 else _chebyshev(tree.lo[g, d], tree.hi[g, d], int(pa[d]))
+            axis_nodes.append(nd)
+            if weights:
+                axis_weights.append(_lagrange(points[idx, d], nd))
+        shape = (len(g), int(pa[0]), int(pa[1]), int(pa[2]))
+        grid = np.stack([np.broadcast_to(axis_nodes[0][:, :, None, None], shape),
+                         np.broadcast_to(axis_nodes[1][:, None, :, None], shape),
+                         np.broadcast_to(axis_nodes[2][:, None, None, :], shape)], axis=-1).reshape(len(g), -1, 3)
+        at = first[g][:, None] + np.arange(grid.shape[1])[None, :]                        # (g, k)
+        w = None
+        if weights:
+            wx, wy, wz = axis_weights
+            w = (wx[:, :, :, None, None] * wy[:, :, None, :, None] * wz[:, :, None, None, :]).reshape(len(g), n, -1)
+        yield idx, at, grid, w
+
+
+def cluster_basis(tree: ClusterTree, points: np.ndarray, used: np.ndarray,
+                  nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z) -> ClusterBasis:
+    """Tensor-product Chebyshev interpolation bases of the clusters ``used`` (indices into the tree).
+
+    A coordinate in which all of a cluster's points agree gets one node (the interpolation is exact
+    there: a flat grid needs no nodes in depth). Clusters of equal size and node pattern are done together.
+    """
+    used, per_axis, first, count, m = _basis_layout(tree, used, nodes_xy, nodes_z)
+    nodes = np.zeros((m, 3))
+    rows, cols, vals = [], [], []
+    for idx, at, grid, w in _basis_groups(tree, points, used, per_axis, first):
+        nodes[at.ravel()] = grid.reshape(-1, 3)
+        rows.append(np.broadcast_to(at[:, None, :], w.shape).ravel().astype(np.int32))
+        cols.append(np.broadcast_to(idx[:, :, None], w.shape).ravel().astype(np.int32))
         vals.append(w.ravel())
-        m += k
-    nodes = np.vstack(node_list) if node_list else np.zeros((0, 3))
     cat = (lambda x, t: np.concatenate(x) if x else np.zeros(0, t))
-    matrix = sp.csr_matrix((cat(vals, float), (cat(rows, np.int32), cat(cols, np.int32))), shape=(m, len(points)))
-    matrix.sum_duplicates()
+    matrix = unique_csr(cat(rows, np.int32), cat(cols, np.int32), cat(vals, float), (m, len(points)))
     return ClusterBasis(nodes, first, count, matrix)
+
+
+def unique_csr(rows: np.ndarray, cols: np.ndarray, vals: np.ndarray, shape: tuple[int, int]) -> sp.csr_matrix:
+    """CSR matrix of entries known to have no duplicate (row, col): the summing of duplicates, a sort of
+    every row's indices, is skipped (products do not need sorted indices)."""
+    coo = sp.coo_matrix((vals, (rows, cols)), shape=shape)
+    coo.has_canonical_format = True
+    return coo.tocsr()
 
 
 def _pair_values(kernel: Kernel, x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -248,21 +285,24 @@ def _pair_values(kernel: Kernel, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     return v
 
 
-def _block_entries(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s_first, s_count, s_pts,
-                   t_index, s_index, symmetric: bool, progress: Progress | None, label: str):
-    """COO entries (rows, cols, values) of dense blocks between ranges of two point sets.
+def _block_values(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s_first, s_count, s_pts,
+                  t_index, s_index, t_depth, s_depth, progress: Progress | None, label: str):
+    """Dense blocks between ranges of two point sets, a chunk at a time: (blocks (g, 2), target indices
+    (g, a), source indices (g, b), kernel values (g, a, b)).
 
     ``t_first``/``t_count`` give each target cluster's range in ``t_index`` (into ``t_pts``), likewise
-    for the sources. Blocks are grouped by shape and evaluated in chunks."""
-    rows, cols, vals = [], [], []
+    for the sources; ``t_depth``/``s_depth`` are a cluster's quantised depth where all its points share it
+    (else a value no depth takes). Blocks are grouped by shape and depth, so that each group has one depth
+    pair where the clusters are flat: layered kernels then use one radial table instead of their series."""
     if len(blocks) == 0:
-        z = np.zeros(0, np.int32)
-        return z, z, np.zeros(0)
-    shape = t_count[blocks[:, 0]].astype(np.int64) * (1 << 20) + s_count[blocks[:, 1]]
-    done, total = 0, int(np.sum(t_count[blocks[:, 0]].astype(np.int64) * s_count[blocks[:, 1]]))
-    for key in np.unique(shape):
-        grp = blocks[shape == key]
-        a, b = int(key >> 20), int(key & ((1 << 20) - 1))
+        return
+    keys = np.column_stack([t_count[blocks[:, 0]], s_count[blocks[:, 1]], t_depth[blocks[:, 0]], s_depth[blocks[:, 1]]])
+    uniq, inverse = np.unique(keys, axis=0, return_inverse=True)
+    inverse = inverse.ravel()
+    done, total = 0, max(1, int(np.sum(t_count[blocks[:, 0]].astype(np.int64) * s_count[blocks[:, 1]])))
+    for u, key in enumerate(uniq):
+        grp = blocks[inverse == u]
+        a, b = int(key[0]), int(key[1])
         if a == 0 or b == 0:
             continue
         per = max(1, CHUNK // (a * b))
@@ -270,22 +310,34 @@ def _block_entries(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, 
             g = grp[k:k + per]
             it = t_index[t_first[g[:, 0]][:, None] + np.arange(a)[None, :]]        # (g, a)
             js = s_index[s_first[g[:, 1]][:, None] + np.arange(b)[None, :]]        # (g, b)
-            v = _pair_values(kernel, t_pts[it][:, :, None, :], s_pts[js][:, None, :, :])
-            I = np.broadcast_to(it[:, :, None], v.shape)
-            J = np.broadcast_to(js[:, None, :], v.shape)
-            if symmetric:
-                diag = g[:, 0] == g[:, 1]
-                if diag.any():
-                    v[diag] = 0.5 * (v[diag] + np.swapaxes(v[diag], 1, 2))
-                off = ~diag
-                rows += [I.ravel(), J[off].ravel()]
-                cols += [J.ravel(), I[off].ravel()]
-                vals += [v.ravel(), v[off].ravel()]
-            else:
-                rows.append(I.ravel()); cols.append(J.ravel()); vals.append(v.ravel())
+            yield g, it, js, _pair_values(kernel, t_pts[it][:, :, None, :], s_pts[js][:, None, :, :])
             done += len(g) * a * b
             if progress:
                 progress(label, done / total)
+
+
+def _block_entries(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s_first, s_count, s_pts,
+                   t_index, s_index, t_depth, s_depth, symmetric: bool, progress: Progress | None, label: str):
+    """COO entries (rows, cols, values) of the dense blocks of :func:`_block_values`; with ``symmetric``
+    each block (t, s), t ≠ s, also gives its transpose and diagonal blocks are made exactly symmetric."""
+    rows, cols, vals = [], [], []
+    for g, it, js, v in _block_values(kernel, blocks, t_first, t_count, t_pts, s_first, s_count, s_pts,
+                                      t_index, s_index, t_depth, s_depth, progress, label):
+        I = np.broadcast_to(it[:, :, None], v.shape)
+        J = np.broadcast_to(js[:, None, :], v.shape)
+        if symmetric:
+            diag = g[:, 0] == g[:, 1]
+            if diag.any():
+                v[diag] = 0.5 * (v[diag] + np.swapaxes(v[diag], 1, 2))
+            off = ~diag
+            rows += [I.ravel(), J[off].ravel()]
+            cols += [J.ravel(), I[off].ravel()]
+            vals += [v.ravel(), v[off].ravel()]
+        else:
+            rows.append(I.ravel()); cols.append(J.ravel()); vals.append(v.ravel())
+    if not rows:
+        z = np.zeros(0, np.int32)
+        return z, z, np.zeros(0)
     return (np.concatenate(rows).astype(np.int32), np.concatenate(cols).astype(np.int32), np.concatenate(vals))
 
 
@@ -337,6 +389,12 @@ class HMatrix:
         return int(sum(m.data.nbytes + m.indices.nbytes + m.indptr.nbytes for m in mats))
 
 
+def _flat_depth(tree: ClusterTree) -> np.ndarray:
+    """Each cluster's depth in quanta where all its points share one depth, else −1 (depths are ≥ 0)."""
+    flat = tree.hi[:, 2] - tree.lo[:, 2] <= QUANTUM
+    return np.where(flat, np.round(tree.lo[:, 2] / QUANTUM), -1).astype(np.int64)
+
+
 def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | None = None,
                   target_layer: np.ndarray | None = None, source_layer: np.ndarray | None = None,
                   eta: float = ETA, leaf_size: int = LEAF_SIZE, nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z,
@@ -373,13 +431,69 @@ def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | Non
     far, near = block_partition(t_tree, s_tree, eta, symmetric)
     tb = cluster_basis(t_tree, targets, far[:, 0] if not symmetric else far.ravel(), nodes_xy, nodes_z)
     sb = tb if symmetric else cluster_basis(s_tree, sources, far[:, 1], nodes_xy, nodes_z)
+    t_depth, s_depth = _flat_depth(t_tree), _flat_depth(s_tree)
     r, c, v = _block_entries(kernel, far, tb.first, tb.count, tb.nodes, sb.first, sb.count, sb.nodes,
-                             np.arange(len(tb.nodes)), np.arange(len(sb.nodes)), symmetric, progress, label)
-    coupling = sp.csr_matrix((v, (r, c)), shape=(len(tb.nodes), len(sb.nodes)))
+                             np.arange(len(tb.nodes)), np.arange(len(sb.nodes)), t_depth, s_depth, symmetric,
+                             progress, label)
+    coupling = unique_csr(r, c, v, (len(tb.nodes), len(sb.nodes)))
     del r, c, v
     r, c, v = _block_entries(kernel, near, t_tree.start, t_tree.size, targets, s_tree.start, s_tree.size, sources,
-                             t_tree.order, s_tree.order, symmetric, progress, label)
+                             t_tree.order, s_tree.order, t_depth, s_depth, symmetric, progress, label)
     if symmetric:
         v[r == c] = 0.0
-    near_m = sp.csr_matrix((v, (r, c)), shape=(len(targets), len(sources)))
+    near_m = unique_csr(r, c, v, (len(targets), len(sources)))
     return HMatrix(near_m, tb, coupling, sb, len(far), len(near), t_tree, s_tree)
+
+
+def apply_once(kernel: Kernel, targets: np.ndarray, sources: np.ndarray, x: np.ndarray,
+               source_layer: np.ndarray | None = None, eta: float = ETA, leaf_size: int = LEAF_SIZE,
+               nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z, progress: Progress | None = None,
+               label: str = "surface") -> np.ndarray:
+    """K x for K_ij = kernel(x_i, y_j) by the same hierarchical approximation as :func:`build_hmatrix`,
+    streamed block by block instead of stored: for a product needed once (a surface map), memory stays
+    at the size of the node values and one chunk.
+
+    Parameters
+    ----------
+    kernel : callable
+        G(r, z, z'), see :func:`build_hmatrix`.
+    targets : ndarray, shape (M, 3)
+        Target points, m (one soil layer: the surface).
+    sources : ndarray, shape (N, 3)
+        Source points, m.
+    x : ndarray, shape (N,)
+        Source strengths.
+    source_layer : ndarray of int, optional
+        Soil layer of each source; clusters never mix layers.
+    """
+    targets, sources, x = np.asarray(targets, float), np.asarray(sources, float), np.asarray(x, float)
+    t_tree = cluster_tree(targets, None, leaf_size)
+    s_tree = cluster_tree(sources, source_layer, leaf_size)
+    far, near = block_partition(t_tree, s_tree, eta)
+    t_depth, s_depth = _flat_depth(t_tree), _flat_depth(s_tree)
+    out = np.zeros(len(targets))
+    # sources → node values
+    s_used, s_axis, s_first, s_count, m_s = _basis_layout(s_tree, far[:, 1], nodes_xy, nodes_z)
+    s_nodes, w_nodes = np.zeros((m_s, 3)), np.zeros(m_s)
+    for idx, at, grid, w in _basis_groups(s_tree, sources, s_used, s_axis, s_first):
+        s_nodes[at.ravel()] = grid.reshape(-1, 3)
+        w_nodes[at] = np.einsum("gnk,gn->gk", w, x[idx])
+    t_used, t_axis, t_first, t_count, m_t = _basis_layout(t_tree, far[:, 0], nodes_xy, nodes_z)
+    t_nodes = np.zeros((m_t, 3))
+    for idx, at, grid, _ in _basis_groups(t_tree, targets, t_used, t_axis, t_first, weights=False):
+        t_nodes[at.ravel()] = grid.reshape(-1, 3)
+    # node couplings
+    y_nodes = np.zeros(m_t)
+    half = (lambda _l, f: progress(label, 0.5 * f)) if progress else None
+    for _g, it, js, v in _block_values(kernel, far, t_first, t_count, t_nodes, s_first, s_count, s_nodes,
+                                       np.arange(m_t), np.arange(m_s), t_depth, s_depth, half, label):
+        y_nodes += np.bincount(it.ravel(), np.einsum("gab,gb->ga", v, w_nodes[js]).ravel(), minlength=m_t)
+    # node potentials → targets
+    for idx, at, _grid, w in _basis_groups(t_tree, targets, t_used, t_axis, t_first):
+        out += np.bincount(idx.ravel(), np.einsum("gnk,gk->gn", w, y_nodes[at]).ravel(), minlength=len(out))
+    # near blocks, exactly
+    rest = (lambda _l, f: progress(label, 0.5 + 0.5 * f)) if progress else None
+    for _g, it, js, v in _block_values(kernel, near, t_tree.start, t_tree.size, targets, s_tree.start, s_tree.size,
+                                       sources, t_tree.order, s_tree.order, t_depth, s_depth, rest, label):
+        out += np.bincount(it.ravel(), np.einsum("gab,gb->ga", v, x[js]).ravel(), minlength=len(out))
+    return out

@@ -14,14 +14,14 @@ value. Its storage grows about linearly with the number of segments.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import scipy.sparse as sp
 
 from .assembly import PAIR_CHUNK, AssemblyOptions, Progress, assemble, middle_values, near_pairs, near_values
 from .geometry import Segments
-from .hmatrix import HMatrix, build_hmatrix
+from .hmatrix import HMatrix, build_hmatrix, unique_csr
 from .soil.base import SoilKernel
 
 #: Largest diagonal block of the block-Jacobi preconditioner (segments).
@@ -68,7 +68,10 @@ class CompressedOperator:
     Attributes
     ----------
     hmatrix : HMatrix
-        Hierarchical approximation of the midpoint kernel between segments, Ω.
+        Hierarchical approximation of the midpoint kernel between segments, Ω (its ``near`` part is
+        held in ``local``).
+    local : scipy.sparse.csr_matrix
+        The hierarchical matrix's near blocks plus the correction, Ω: one sparse product.
     correction : scipy.sparse.csr_matrix
         Galerkin minus midpoint values of the self, near and middle pairs, Ω.
     segments, kernel
@@ -76,6 +79,7 @@ class CompressedOperator:
     """
 
     hmatrix: HMatrix
+    local: sp.csr_matrix
     correction: sp.csr_matrix
     segments: Segments
     kernel: SoilKernel
@@ -87,11 +91,11 @@ class CompressedOperator:
 
     def apply(self, x: np.ndarray) -> np.ndarray:
         """R x, V per A of x (x of shape (N,) or (N, k))."""
-        return self.hmatrix.matvec(x) + self.correction @ x
+        return self.local @ x + self.hmatrix.far(x)
 
     @property
     def diagonal(self) -> np.ndarray:
-        return self.correction.diagonal() + self.hmatrix.near.diagonal()
+        return self.local.diagonal()
 
     def block(self, idx: np.ndarray) -> np.ndarray:
         """R restricted to the segments ``idx``: midpoint kernel plus correction, evaluated exactly."""
@@ -118,8 +122,8 @@ class CompressedOperator:
 
     @property
     def nbytes(self) -> int:
-        c = self.correction
-        return self.hmatrix.nbytes + int(c.data.nbytes + c.indices.nbytes + c.indptr.nbytes)
+        return self.hmatrix.nbytes + sum(int(c.data.nbytes + c.indices.nbytes + c.indptr.nbytes)
+                                         for c in (self.local, self.correction))
 
 
 def dense_operator(segments: Segments, kernel: SoilKernel, options: AssemblyOptions = AssemblyOptions(),
@@ -157,9 +161,12 @@ def compressed_operator(segments: Segments, kernel: SoilKernel, options: Assembl
             cols += [j, i[off]]
             vals += [v, v[off]]
     n = len(segments)
-    correction = sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows).astype(np.int32),
-                                                       np.concatenate(cols).astype(np.int32))), shape=(n, n))
-    return CompressedOperator(H, correction, segments, kernel)
+    correction = unique_csr(np.concatenate(rows).astype(np.int32), np.concatenate(cols).astype(np.int32),
+                            np.concatenate(vals), (n, n))
+    del rows, cols, vals
+    local = H.near + correction
+    empty = sp.csr_matrix((n, n))
+    return CompressedOperator(replace(H, near=empty), local, correction, segments, kernel)
 
 
 def compressed_memory_bytes(n_segments: int) -> int:

@@ -119,7 +119,7 @@ def block_jacobi(operator):
 
 
 def solve_iterative(operator, group: np.ndarray | None = None, connections: tuple[str, ...] = ("energised",),
-                    rtol: float = ITERATIVE_RTOL, max_iterations: int = MAX_ITERATIONS, progress=None) -> Solution:
+                    rtol: float = ITERATIVE_RTOL, max_iterations: int | None = None, progress=None) -> Solution:
     """Leakage currents at 1 V by preconditioned conjugate gradients (scipy.sparse.linalg.cg) on any
     operator with ``apply``, ``blocks`` and ``block`` (see :mod:`grounding.operators`); one run per
     right-hand side (the energised system and each floating electrode).
@@ -127,11 +127,12 @@ def solve_iterative(operator, group: np.ndarray | None = None, connections: tupl
     Raises
     ------
     GroundingError
-        When the iteration does not reach ``rtol`` within ``max_iterations``.
+        When the iteration does not reach ``rtol`` within ``max_iterations`` (default MAX_ITERATIONS).
     """
     import scipy.sparse.linalg as spla
 
     n = operator.size
+    max_iterations = max_iterations or MAX_ITERATIONS
     precondition = block_jacobi(operator)
     A = spla.LinearOperator((n, n), matvec=operator.apply, dtype=float)
     M = spla.LinearOperator((n, n), matvec=precondition, dtype=float)

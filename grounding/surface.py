@@ -24,6 +24,7 @@ from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, near_term_sum
 from .case import SurfaceMap
 from .case_site import shapely_polygon
 from .geometry import Segments
+from .hmatrix import apply_once
 from .integrals import GAUSS2, line_integral
 from .soil.base import DEPTH_QUANTUM, SoilKernel
 
@@ -31,6 +32,8 @@ Progress = Callable[[str, float], None]
 
 #: Surface points per chunk of the far-field evaluation.
 POINT_CHUNK = 2048
+#: From this many (point, segment) pairs the map's far field uses the hierarchical matrix.
+COMPRESS_FROM_PAIRS = 50_000_000
 #: Directions searched for the step voltage on the map.
 STEP_DIRECTIONS = 16
 
@@ -69,7 +72,16 @@ class SurfacePotential:
         m = len(xy)
         mid, L, currents, kernel = self.mid, self.L, self.currents, self.kernel
         out = np.zeros(m)
-        for start in range(0, m, POINT_CHUNK):
+        a, b = self.segments.start, self.segments.end
+        compressed = m * len(mid) >= COMPRESS_FROM_PAIRS
+        if compressed:
+            # large maps: the hierarchical far field of the segments' 2-point Gauss–Legendre sources (the
+            # middle tier's rule, so that only near pairs need correcting), interpolated to about 1e-5
+            sources = (a[:, None, :] + GAUSS2[0][None, :, None] * (b - a)[:, None, :]).reshape(-1, 3)
+            out += apply_once(kernel.potential, np.column_stack([xy, np.zeros(m)]), sources,
+                              np.repeat(0.5 * currents, 2), source_layer=kernel.layer_of(sources[:, 2]),
+                              progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None)
+        for start in range(0, 0 if compressed else m, POINT_CHUNK):
             rows = slice(start, min(m, start + POINT_CHUNK))
             if self.members is None:
                 out[rows] += kernel.potential(cdist(xy[rows], mid[:, :2]), 0.0, mid[None, :, 2]) @ currents
@@ -77,9 +89,10 @@ class SurfacePotential:
                 out[rows] += radial(cdist(xy[rows], mid[cols, :2])) @ currents[cols]
             if progress:
                 progress("surface", 0.8 * rows.stop / m)
-        # near and middle corrections: accurate value minus the midpoint value already added
+        # near (and, for the midpoint far field, middle) corrections: accurate value minus the value added
         p3 = np.column_stack([xy, np.zeros(m)])
-        reach = self.options.mid_reach * L.max()
+        tier = self.options.near_reach if compressed else self.options.mid_reach
+        reach = tier * L.max()
         if m > 64:
             pairs = cKDTree(p3).sparse_distance_matrix(self.tree, reach, output_type="ndarray")
             pi, sj, d = pairs["i"].astype(np.intp), pairs["j"].astype(np.intp), pairs["v"]
@@ -88,17 +101,17 @@ class SurfacePotential:
             pi = np.repeat(np.arange(m), [len(h) for h in hits]).astype(np.intp)
             sj = np.concatenate([np.asarray(h, dtype=np.intp) for h in hits]) if m else np.zeros(0, np.intp)
             d = np.linalg.norm(p3[pi] - mid[sj], axis=1)
-        keep = d < self.options.mid_reach * L[sj]
+        keep = d < tier * L[sj]
         pi, sj, d = pi[keep], sj[keep], d[keep]
         near = d < self.options.near_reach * L[sj]
-        a, b = self.segments.start, self.segments.end
         for sel, exact in ((near, True), (~near, False)):
             ii, jj = pi[sel], sj[sel]
             for s0 in range(0, len(ii), 100_000):
                 i, j = ii[s0:s0 + 100_000], jj[s0:s0 + 100_000]
-                accurate = _near_point_values(p3[i], self.segments, kernel, j) if exact else \
-                    _gauss_point_values(kernel.potential, p3[i], a[j], b[j])
-                coarse = kernel.potential(np.linalg.norm(p3[i, :2] - mid[j, :2], axis=1), 0.0, mid[j, 2])
+                gauss = _gauss_point_values(kernel.potential, p3[i], a[j], b[j])
+                accurate = _near_point_values(p3[i], self.segments, kernel, j) if exact else gauss
+                coarse = gauss if compressed else \
+                    kernel.potential(np.linalg.norm(p3[i, :2] - mid[j, :2], axis=1), 0.0, mid[j, 2])
                 out += np.bincount(i, (accurate - coarse) * currents[j], minlength=m)
         if progress:
             progress("surface", 1.0)
