@@ -88,6 +88,8 @@ def main():
     ap.add_argument("--sizes", default="10000,100000")
     ap.add_argument("--soils", default="uniform,two-layer")
     ap.add_argument("--dense-check", action="store_true", help="also compare with the dense solve at 12 000 segments")
+    ap.add_argument("--study", action="store_true",
+                    help="also time `grounding study` on the largest size with a 2 m map, cold, one process")
     args = ap.parse_args()
     sizes = [int(s) for s in args.sizes.split(",")]
     failed = False
@@ -125,7 +127,36 @@ def main():
                 print(f"  {soil}: 12 000 segments: Rg dense {d['rg']:.6f} Ω ({d['build_s'] + d['solve_s']:.1f} s), "
                       f"iterative {i['rg']:.6f} Ω ({i['build_s'] + i['solve_s']:.1f} s); difference {rel:.1e} "
                       f"(target < 1e-3) -> {'ok' if ok else 'MISSED'}")
+        if args.study:
+            failed |= not whole_study(max(sizes), soil)
     sys.exit(1 if failed else 0)
+
+
+def whole_study(segments: int, soil: str) -> bool:
+    """`grounding study` as a user runs it: cold, one process, JSON written; target under 3 minutes."""
+    import tempfile
+    import time
+    from pathlib import Path
+
+    with tempfile.TemporaryDirectory() as tmp:
+        case = Path(tmp) / "large.yaml"
+        case.write_text(case_text(segments, soil, "auto"))
+        out = Path(tmp) / "large.json"
+        t = time.perf_counter()
+        p = subprocess.run([sys.executable, "-m", "grounding.cli", "study", str(case), "--json", str(out), "--quiet"],
+                           capture_output=True, text=True)
+        elapsed = time.perf_counter() - t
+        if p.returncode not in (0, 1) or not out.exists():
+            print(f"  {soil}: whole study failed: {(p.stderr.strip().splitlines() or ['?'])[-1]}")
+            return False
+        d = json.loads(out.read_text())
+        diag = d["diagnostics"]
+        ok = elapsed < 180
+        print(f"  {soil}: whole study of {d['summary']['segments']:,} segments with a 2 m map: {elapsed:.0f} s "
+              f"(target < 180) -> {'ok' if ok else 'MISSED'}; assemble {diag['assemble_s']:.0f} s, solve "
+              f"{diag['solve_s']:.0f} s, surface {diag['surface_s']:.0f} s, peak {diag['peak_memory_mb']:.0f} MB, "
+              f"solver {diag['solver']}")
+        return ok
 
 
 if __name__ == "__main__":

@@ -23,6 +23,9 @@ products: N the leaf pairs that are not admissible (evaluated exactly), C the no
 
 from __future__ import annotations
 
+import os
+from collections import deque
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Callable
 
@@ -299,21 +302,50 @@ def _block_values(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s
     keys = np.column_stack([t_count[blocks[:, 0]], s_count[blocks[:, 1]], t_depth[blocks[:, 0]], s_depth[blocks[:, 1]]])
     uniq, inverse = np.unique(keys, axis=0, return_inverse=True)
     inverse = inverse.ravel()
-    done, total = 0, max(1, int(np.sum(t_count[blocks[:, 0]].astype(np.int64) * s_count[blocks[:, 1]])))
+    total = max(1, int(np.sum(t_count[blocks[:, 0]].astype(np.int64) * s_count[blocks[:, 1]])))
+    tasks = []
     for u, key in enumerate(uniq):
         grp = blocks[inverse == u]
         a, b = int(key[0]), int(key[1])
-        if a == 0 or b == 0:
-            continue
-        per = max(1, CHUNK // (a * b))
-        for k in range(0, len(grp), per):
-            g = grp[k:k + per]
-            it = t_index[t_first[g[:, 0]][:, None] + np.arange(a)[None, :]]        # (g, a)
-            js = s_index[s_first[g[:, 1]][:, None] + np.arange(b)[None, :]]        # (g, b)
-            yield g, it, js, _pair_values(kernel, t_pts[it][:, :, None, :], s_pts[js][:, None, :, :])
-            done += len(g) * a * b
-            if progress:
-                progress(label, done / total)
+        if a and b:
+            per = max(1, CHUNK // (a * b))
+            tasks += [(grp[k:k + per], a, b) for k in range(0, len(grp), per)]
+
+    def evaluate(task):
+        g, a, b = task
+        it = t_index[t_first[g[:, 0]][:, None] + np.arange(a)[None, :]]        # (g, a)
+        js = s_index[s_first[g[:, 1]][:, None] + np.arange(b)[None, :]]        # (g, b)
+        return g, it, js, _pair_values(kernel, t_pts[it][:, :, None, :], s_pts[js][:, None, :, :])
+
+    done = 0
+    for result in threaded_map(evaluate, tasks):
+        yield result
+        done += result[3].size
+        if progress:
+            progress(label, done / total)
+
+
+def worker_threads() -> int:
+    """Threads for chunked array work (numpy releases the GIL in it): the machine's cores, at most 4."""
+    return max(1, min(4, os.cpu_count() or 1))
+
+
+def threaded_map(function, items, window: int | None = None):
+    """``map(function, items)`` on worker threads, in order, with at most ``window`` results pending
+    (so that memory stays bounded when the consumer is slower)."""
+    workers = worker_threads()
+    window = window or 2 * workers
+    if workers == 1 or len(items) < 2:
+        yield from map(function, items)
+        return
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        pending = deque()
+        for item in items:
+            pending.append(pool.submit(function, item))
+            if len(pending) >= window:
+                yield pending.popleft().result()
+        while pending:
+            yield pending.popleft().result()
 
 
 def _block_entries(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s_first, s_count, s_pts,

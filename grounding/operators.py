@@ -1,7 +1,8 @@
 """The mutual-resistance operator R (Ω) between segments, dense or compressed, behind one interface.
 
-Both kinds give ``apply(x)`` (R·x), the ``diagonal``, exact principal sub-blocks ``block(idx)`` (for the
-preconditioner of the iterative solve) and their memory. The dense kind holds the assembled matrix
+Both kinds give ``apply(x)`` (R·x), the ``diagonal``, ``dense()`` (where it fits), exact principal
+sub-blocks ``block(idx)`` over compact groups ``blocks()`` (for the preconditioner of the iterative
+solve) and their memory ``nbytes``; the compressed kind's near-field sparse part is ``local``. The dense kind holds the assembled matrix
 (see :mod:`grounding.assembly`). The compressed kind holds
 
     R = H + C,
@@ -21,7 +22,7 @@ import scipy.sparse as sp
 
 from .assembly import PAIR_CHUNK, AssemblyOptions, Progress, assemble, middle_values, near_pairs, near_values
 from .geometry import Segments
-from .hmatrix import HMatrix, build_hmatrix, unique_csr
+from .hmatrix import HMatrix, build_hmatrix, threaded_map, unique_csr
 from .soil.base import SoilKernel
 
 #: Largest diagonal block of the block-Jacobi preconditioner (segments).
@@ -50,6 +51,10 @@ class DenseOperator:
     def block(self, idx: np.ndarray) -> np.ndarray:
         """R restricted to the segments ``idx`` (dense)."""
         return self.matrix[np.ix_(idx, idx)]
+
+    def dense(self) -> np.ndarray:
+        """The matrix itself."""
+        return self.matrix
 
     def blocks(self) -> list[np.ndarray]:
         """Consecutive index ranges of at most PRECONDITIONER_BLOCK segments."""
@@ -108,6 +113,12 @@ class CompressedOperator:
         g = 0.5 * (g + g.T)
         return g + self.correction[idx][:, idx].toarray()
 
+    def dense(self, limit: int = 20_000) -> np.ndarray:
+        """R as a dense array (N ≤ ``limit``; for checks and small cases), Ω."""
+        if self.size > limit:
+            raise ValueError(f"{self.size} segments: a dense copy of the compressed operator is refused above {limit}")
+        return self.apply(np.eye(self.size))
+
     def blocks(self) -> list[np.ndarray]:
         """The largest clusters of at most PRECONDITIONER_BLOCK segments: compact groups of segments."""
         tree = self.hmatrix.target_tree
@@ -149,17 +160,22 @@ def compressed_operator(segments: Segments, kernel: SoilKernel, options: Assembl
     H = build_hmatrix(kernel.potential, mid, target_layer=kernel.layer_of(mid[:, 2]), progress=progress,
                       label="assemble")
     near, middle = near_pairs(segments, options)
+    chunks = [(pairs[a:a + PAIR_CHUNK], exact) for pairs, exact in ((near, True), (middle, False))
+              for a in range(0, len(pairs), PAIR_CHUNK)]
+
+    def correct(item):
+        p, exact = item
+        i, j = p[:, 0], p[:, 1]
+        v = (near_values(segments, kernel, i, j) if exact else middle_values(segments, kernel, i, j)) \
+            - midpoint_values(segments, kernel, i, j)
+        return i, j, v
+
     rows, cols, vals = [], [], []
-    for pairs, exact in ((near, True), (middle, False)):
-        for start in range(0, len(pairs), PAIR_CHUNK):
-            p = pairs[start:start + PAIR_CHUNK]
-            i, j = p[:, 0], p[:, 1]
-            v = (near_values(segments, kernel, i, j) if exact else middle_values(segments, kernel, i, j)) \
-                - midpoint_values(segments, kernel, i, j)
-            off = i != j
-            rows += [i, j[off]]
-            cols += [j, i[off]]
-            vals += [v, v[off]]
+    for i, j, v in threaded_map(correct, chunks):
+        off = i != j
+        rows += [i, j[off]]
+        cols += [j, i[off]]
+        vals += [v, v[off]]
     n = len(segments)
     correction = unique_csr(np.concatenate(rows).astype(np.int32), np.concatenate(cols).astype(np.int32),
                             np.concatenate(vals), (n, n))

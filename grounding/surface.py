@@ -24,7 +24,7 @@ from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, near_term_sum
 from .case import SurfaceMap
 from .case_site import shapely_polygon
 from .geometry import Segments
-from .hmatrix import apply_once
+from .hmatrix import apply_once, threaded_map
 from .integrals import GAUSS2, line_integral
 from .soil.base import DEPTH_QUANTUM, SoilKernel
 
@@ -32,6 +32,8 @@ Progress = Callable[[str, float], None]
 
 #: Surface points per chunk of the far-field evaluation.
 POINT_CHUNK = 2048
+#: (point, segment) pairs per chunk of the near corrections.
+PAIR_CHUNK = 100_000
 #: From this many (point, segment) pairs the map's far field uses the hierarchical matrix.
 COMPRESS_FROM_PAIRS = 50_000_000
 #: Directions searched for the step voltage on the map.
@@ -104,15 +106,20 @@ class SurfacePotential:
         keep = d < tier * L[sj]
         pi, sj, d = pi[keep], sj[keep], d[keep]
         near = d < self.options.near_reach * L[sj]
+        def correction(task):
+            i, j, exact = task
+            gauss = _gauss_point_values(kernel.potential, p3[i], a[j], b[j])
+            accurate = _near_point_values(p3[i], self.segments, kernel, j) if exact else gauss
+            coarse = gauss if compressed else \
+                kernel.potential(np.linalg.norm(p3[i, :2] - mid[j, :2], axis=1), 0.0, mid[j, 2])
+            return np.bincount(i, (accurate - coarse) * currents[j], minlength=m)
+
+        tasks = []
         for sel, exact in ((near, True), (~near, False)):
             ii, jj = pi[sel], sj[sel]
-            for s0 in range(0, len(ii), 100_000):
-                i, j = ii[s0:s0 + 100_000], jj[s0:s0 + 100_000]
-                gauss = _gauss_point_values(kernel.potential, p3[i], a[j], b[j])
-                accurate = _near_point_values(p3[i], self.segments, kernel, j) if exact else gauss
-                coarse = gauss if compressed else \
-                    kernel.potential(np.linalg.norm(p3[i, :2] - mid[j, :2], axis=1), 0.0, mid[j, 2])
-                out += np.bincount(i, (accurate - coarse) * currents[j], minlength=m)
+            tasks += [(ii[s0:s0 + PAIR_CHUNK], jj[s0:s0 + PAIR_CHUNK], exact) for s0 in range(0, len(ii), PAIR_CHUNK)]
+        for part in threaded_map(correction, tasks):
+            out += part
         if progress:
             progress("surface", 1.0)
         return out

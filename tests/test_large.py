@@ -8,7 +8,8 @@ from grounding.assembly import AssemblyOptions, assemble
 from grounding.case_loader import parse_case
 from grounding.geometry import segment
 from grounding.soil import make_kernel
-from grounding.solve import SINGLE_THREAD_FROM, blas_threads_for, solve_equipotential
+from grounding.operators import compressed_operator
+from grounding.solve import SINGLE_THREAD_FROM, blas_threads_for, solve_equipotential, solve_iterative
 
 BIG = """\
 format: 1
@@ -27,11 +28,15 @@ def test_a_16400_segment_case_factorises():
     case = parse_case(BIG)
     s = segment(case)
     assert len(s) == 16_400
-    sol = solve_equipotential(assemble(s, make_kernel(case.soil, 1.0), AssemblyOptions()))
+    kernel = make_kernel(case.soil, 1.0)
+    sol = solve_equipotential(assemble(s, kernel, AssemblyOptions()))
     # Sverak's equation (IEEE Std 80) for this grid: ρ[1/L + 1/√(20A)(1 + 1/(1 + h√(20/A)))] = 0.2285 Ω;
     # the numerical value lies a few % below it, as on the IEEE Std 80 example grid
     assert 0.20 < sol.resistance < 0.2285
     assert sol.relative_residual < 1e-10
+    # the compressed operator with conjugate gradients (what ``auto`` uses at this size) agrees with it
+    it = solve_iterative(compressed_operator(s, kernel))
+    assert abs(it.resistance - sol.resistance) < 1e-4 * sol.resistance
 
 
 def test_single_thread_only_for_large_factorisations_on_avx512_kernels(monkeypatch):
