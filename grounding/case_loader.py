@@ -581,7 +581,8 @@ def _rod_layout(data: dict, layout, where: str) -> None:
     data["electrodes"] = el
 
 
-def _apply(data: dict, name: str, value: Any, where: str) -> None:
+def apply_setting(data: dict, name: str, value: Any, where: str) -> None:
+    """Apply one sweep setting (a key path or a shorthand such as grid.spacing) to a case document."""
     if name == "grid.spacing":
         for g in (data.get("electrodes") or {}).get("grids") or []:
             g["meshes"] = [max(1, math.ceil(g["size"][0] / value - 1e-9)), max(1, math.ceil(g["size"][1] / value - 1e-9))]
@@ -592,7 +593,8 @@ def _apply(data: dict, name: str, value: Any, where: str) -> None:
     _assign(data, _path_parts(SWEEP_SHORTHANDS.get(name, name)), value, where)
 
 
-def _order(name: str) -> int:
+def setting_order(name: str) -> int:
+    """Order in which sweep settings apply (grid spacing before rods, rod layout before rod sizes)."""
     return {"grid.spacing": 0, "rods.layout": 2, "rods.count": 2, "rods.length": 3, "rods.diameter": 3}.get(
         name, 0 if name.startswith("grid.") else 1)
 
@@ -619,9 +621,9 @@ def load_variants(path: str | Path) -> list[Variant]:
         label = " · ".join(f"{n}={lab}" for n, (lab, _) in zip(names, combo))
         data = copy.deepcopy(doc.data)
         del data["sweep"]
-        for n, (lab, value) in sorted(zip(names, combo), key=lambda t: _order(t[0])):
+        for n, (lab, value) in sorted(zip(names, combo), key=lambda t: setting_order(t[0])):
             try:
-                _apply(data, n, value, f"sweep.{n}")
+                apply_setting(data, n, value, f"sweep.{n}")
             except (ValueError, KeyError, TypeError, ArithmeticError) as exc:
                 msg = str(exc) if isinstance(exc, ValueError) else f"cannot be applied ({exc})"
                 raise CaseError(str(path), doc.line(f"sweep.{n}"), f"sweep.{n}", msg.split(": ", 1)[-1]) from None

@@ -19,8 +19,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.linalg
+from threadpoolctl import threadpool_limits
 
 from .errors import GroundingError
+from .hmatrix import threaded_map
 
 
 @dataclass(frozen=True)
@@ -100,14 +102,16 @@ MAX_ITERATIONS = 400
 
 def block_jacobi(operator):
     """Preconditioner: the inverse of R's diagonal blocks over compact groups of segments (Cholesky)."""
-    factors = []
-    for idx in operator.blocks():
+    def factor(idx):
         try:
-            factors.append((idx, scipy.linalg.cho_factor(operator.block(idx), lower=True, check_finite=True)))
+            return idx, scipy.linalg.cho_factor(operator.block(idx), lower=True, check_finite=True)
         except (np.linalg.LinAlgError, ValueError) as exc:
             raise GroundingError(
                 f"the mutual-resistance matrix is not positive definite near segment {int(idx[0])} ({exc}); this "
                 "happens when two conductors coincide or nearly coincide; check the electrodes for duplicates") from None
+
+    with threadpool_limits(limits=1, user_api="blas"):          # the blocks run on threads of their own
+        factors = list(threaded_map(factor, operator.blocks()))
 
     def apply(r: np.ndarray) -> np.ndarray:
         out = np.empty_like(r)

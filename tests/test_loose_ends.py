@@ -99,3 +99,52 @@ def test_soil_plot_with_separate_traverses_marks_each(tmp_path):
                                     "--plot", str(out)])
     assert res.exit_code == 0, res.output
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+DESIGN_INPUT = """\
+# A small yard (invented for this test).
+format: 1
+title: small yard
+soil:
+  layers:
+    - {resistivity: 200, thickness: 2.0}   # topsoil, ohm·m and m
+    - {resistivity: 80}                    # clay
+surface_layer:
+  resistivity: 3000           # crushed rock, ohm·m
+  thickness: 0.15             # m
+fault: {current: 1500, split_factor: 0.5, clearing_time: 0.5}
+electrodes:
+  grids:
+    - {origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, diameter: 0.01}
+discretization: {max_segment: 2.0}
+surface: {margin: 2, resolution: 1.0}
+sweep:
+  grid.spacing: [10, 5]
+  rods.layout: [none, perimeter]
+"""
+
+
+def test_design_keeps_the_inputs_comments_and_flow_style(tmp_path):
+    """Loose end: `design` dropped the input's comments and layout. The chosen case is the input with the
+    sweep block removed and the chosen settings applied; untouched lines are kept as written."""
+    from click.testing import CliRunner
+
+    from grounding import load_case
+    from grounding.cli import main
+
+    demo = tmp_path / "yard.yaml"
+    demo.write_text(DESIGN_INPUT)
+    out = tmp_path / "chosen.yaml"
+    res = CliRunner().invoke(main, ["design", str(demo), "--out", str(out), "--quiet"])
+    assert res.exit_code == 0, res.output
+    written = out.read_text()
+    # unchanged lines keep their comments and flow style, byte for byte
+    for line in ("    - {resistivity: 200, thickness: 2.0}   # topsoil, ohm·m and m",
+                 "  resistivity: 3000           # crushed rock, ohm·m",
+                 "# A small yard (invented for this test)."):
+        assert line in written
+    assert "sweep:" not in written
+    case = load_case(out)
+    assert "[" in case.title                                           # the chosen option is named
+    if "perimeter" in case.title:                                      # the search's own entries: flow style
+        assert "    - {top: [" in written
