@@ -9,7 +9,7 @@ import numpy as np
 
 from . import __version__
 from .case_loader import load_case
-from .errors import GroundingError
+from .errors import CaseError, GroundingError
 
 
 class _Bar:
@@ -47,13 +47,31 @@ def _columns() -> int:
 
 
 def _fail(exc: Exception) -> None:
+    """Report a refusal: one line; with ``grounding --verbose``, the lines of the file around it too."""
     click.echo(f"error: {exc}", err=True)
+    ctx = click.get_current_context(silent=True)
+    verbose = bool(ctx and ctx.find_root().params.get("verbose"))
+    if verbose and isinstance(exc, CaseError) and exc.line:
+        for text in _context_lines(exc.file, exc.line):
+            click.echo(text, err=True)
     sys.exit(2)
+
+
+def _context_lines(file: str, line: int, around: int = 2) -> list[str]:
+    """The lines of ``file`` around ``line`` (1-based), numbered, the line itself marked with '>'."""
+    try:
+        with open(file, encoding="utf-8", errors="replace") as f:
+            lines = f.read().splitlines()
+    except OSError:
+        return []
+    lo, hi = max(1, line - around), min(len(lines), line + around)
+    return [f"  {'>' if k == line else ' '} {k:>5} | {lines[k - 1][:200]}" for k in range(lo, hi + 1)]
 
 
 @click.group()
 @click.version_option(__version__, prog_name="grounding")
-def main():
+@click.option("--verbose", is_flag=True, help="On a refusal, also show the lines of the file around the problem.")
+def main(verbose):
     """Earthing-grid studies: grid resistance, GPR, touch and step voltages against IEEE Std 80 limits.
 
     A preliminary study aid: results must be reviewed by a licensed professional engineer.

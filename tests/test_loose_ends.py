@@ -148,3 +148,22 @@ def test_design_keeps_the_inputs_comments_and_flow_style(tmp_path):
     assert "[" in case.title                                           # the chosen option is named
     if "perimeter" in case.title:                                      # the search's own entries: flow style
         assert "    - {top: [" in written
+
+
+def test_refusals_are_one_line_unless_verbose(tmp_path):
+    """A refusal is one line; `grounding --verbose` adds the numbered lines of the file around it."""
+    import subprocess
+    import sys
+
+    path = tmp_path / "bad.yaml"
+    path.write_text("format: 1\nsoil: {resistivity: 100}\nfault: {current: 1000, clearing_time: 0.5}\n"
+                    "electrodes:\n  rods: [{top: [0, 0, 0], length: -3, diameter: 0.016}]\n")
+    plain = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert plain.returncode == 2
+    assert plain.stderr.strip().splitlines() == [f"error: {path}:5: electrodes.rods[0].length must be > 0 m, got -3"]
+    verbose = subprocess.run([sys.executable, "-m", "grounding.cli", "--verbose", "check", str(path)],
+                             capture_output=True, text=True)
+    assert verbose.returncode == 2
+    lines = verbose.stderr.strip().splitlines()
+    assert lines[0] == plain.stderr.strip() and len(lines) == 4
+    assert lines[-1].lstrip().startswith(">") and "length: -3" in lines[-1]

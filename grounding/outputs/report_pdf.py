@@ -449,7 +449,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
               _table([["Quantity", "Value", "Note"],
                       ["Grid resistance Rg", f"{r.grid_resistance:.4f} Ω", err_text],
                       ["Ground potential rise", _v(r.ground_potential_rise), "GPR = IG · Rg"],
-                      ["Solve residual", f"{r.solution.relative_residual:.1e}", "‖R i − v‖ / ‖v‖; " + solver_text(r)]],
+                      ["Solve residual", f"{r.solution.relative_residual:.1e}", "‖R i − v‖ / ‖v‖; " + solver_text(r).rsplit(", relative residual", 1)[0]]],
                      [40 * mm, 30 * mm, 100 * mm], st),
               P("3.2  Touch, step and mesh voltages", "h2"),
               _table(_verdict_rows(r, st), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4)]
