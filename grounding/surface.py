@@ -108,7 +108,7 @@ class SurfacePotential:
         near = d < self.options.near_reach * L[sj]
         def correction(task):
             i, j, exact = task
-            gauss = _gauss_point_values(kernel.potential, p3[i], a[j], b[j])
+            gauss = _gauss_point_values(kernel.potential, p3[i], a[j], b[j]) if compressed or not exact else None
             accurate = _near_point_values(p3[i], self.segments, kernel, j) if exact else gauss
             coarse = gauss if compressed else \
                 kernel.potential(np.linalg.norm(p3[i, :2] - mid[j, :2], axis=1), 0.0, mid[j, 2])
