@@ -49,7 +49,7 @@ def matrix_memory_bytes(n_segments: int) -> int:
     return 2 * ENTRY_BYTES * n_segments * n_segments
 
 
-def _gauss_points(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def gauss_points(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """2-point Gauss–Legendre points on each segment, shape (n, 2, 3)."""
     g = GAUSS2[0]
     return a[:, None, :] + g[None, :, None] * (b - a)[:, None, :]
@@ -57,8 +57,8 @@ def _gauss_points(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 def _gauss2x2(evaluate, a_i, b_i, a_j, b_j) -> np.ndarray:
     """Mean of evaluate(r, z, z') over 2 × 2 Gauss points of segment pairs."""
-    p = _gauss_points(a_i, b_i)[:, :, None, :]
-    q = _gauss_points(a_j, b_j)[:, None, :, :]
+    p = gauss_points(a_i, b_i)[:, :, None, :]
+    q = gauss_points(a_j, b_j)[:, None, :, :]
     r = np.sqrt(np.sum((p[..., :2] - q[..., :2]) ** 2, axis=-1))
     z = np.broadcast_to(p[..., 2], r.shape)
     zp = np.broadcast_to(q[..., 2], r.shape)

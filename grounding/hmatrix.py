@@ -279,7 +279,7 @@ def unique_csr(rows: np.ndarray, cols: np.ndarray, vals: np.ndarray, shape: tupl
     return coo.tocsr()
 
 
-def _pair_values(kernel: Kernel, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+def pair_values(kernel: Kernel, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     """G between point arrays of equal leading shape x (…, 3) and y (…, 3), non-finite values → 0."""
     r = np.hypot(x[..., 0] - y[..., 0], x[..., 1] - y[..., 1])
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -315,7 +315,7 @@ def _block_values(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s
         g, a, b = task
         it = t_index[t_first[g[:, 0]][:, None] + np.arange(a)[None, :]]        # (g, a)
         js = s_index[s_first[g[:, 1]][:, None] + np.arange(b)[None, :]]        # (g, b)
-        return g, it, js, _pair_values(kernel, t_pts[it][:, :, None, :], s_pts[js][:, None, :, :])
+        return g, it, js, pair_values(kernel, t_pts[it][:, :, None, :], s_pts[js][:, None, :, :])
 
     done = 0
     for result in threaded_map(evaluate, tasks):

@@ -22,7 +22,7 @@ import scipy.sparse as sp
 
 from .assembly import PAIR_CHUNK, AssemblyOptions, Progress, assemble, middle_values, near_pairs, near_values
 from .geometry import Segments
-from .hmatrix import HMatrix, build_hmatrix, threaded_map, unique_csr
+from .hmatrix import HMatrix, build_hmatrix, pair_values, threaded_map, unique_csr
 from .soil.base import SoilKernel
 
 #: Largest diagonal block of the block-Jacobi preconditioner (segments).
@@ -105,10 +105,7 @@ class CompressedOperator:
     def block(self, idx: np.ndarray) -> np.ndarray:
         """R restricted to the segments ``idx``: midpoint kernel plus correction, evaluated exactly."""
         mid = self.segments.midpoint[idx]
-        r = np.hypot(mid[:, None, 0] - mid[None, :, 0], mid[:, None, 1] - mid[None, :, 1])
-        with np.errstate(divide="ignore", invalid="ignore"):
-            g = self.kernel.potential(r, mid[:, None, 2], mid[None, :, 2])
-        g[~np.isfinite(g)] = 0.0
+        g = pair_values(self.kernel.potential, mid[:, None, :], mid[None, :, :])
         np.fill_diagonal(g, 0.0)
         g = 0.5 * (g + g.T)
         return g + self.correction[idx][:, idx].toarray()
@@ -146,10 +143,8 @@ def dense_operator(segments: Segments, kernel: SoilKernel, options: AssemblyOpti
 def midpoint_values(segments: Segments, kernel: SoilKernel, i: np.ndarray, j: np.ndarray) -> np.ndarray:
     """G between the midpoints of segment pairs (i, j), Ω; 0 where the midpoints coincide."""
     mid = segments.midpoint
-    r = np.hypot(mid[i, 0] - mid[j, 0], mid[i, 1] - mid[j, 1])
-    with np.errstate(divide="ignore", invalid="ignore"):
-        g = kernel.potential(r, mid[i, 2], mid[j, 2])
-    g[~np.isfinite(g) | (i == j)] = 0.0
+    g = pair_values(kernel.potential, mid[i], mid[j])
+    g[i == j] = 0.0
     return g
 
 

@@ -188,12 +188,17 @@ def solver_kind(case: Case, n_segments: int) -> str:
     return chosen
 
 
+def solver_memory_bytes(kind: str, n_segments: int) -> int:
+    """Memory the ``dense`` or ``iterative`` solve of ``n_segments`` segments needs, bytes."""
+    return matrix_memory_bytes(n_segments) if kind == "dense" else compressed_memory_bytes(n_segments)
+
+
 def check_model_size(case: Case, segments: Segments) -> None:
     """Refuse a discretisation whose solver would not fit in memory, saying what each solver would need."""
     n = len(segments)
     kind = solver_kind(case, n)
-    dense, compressed = matrix_memory_bytes(n), compressed_memory_bytes(n)
-    need = dense if kind == "dense" else compressed
+    dense, compressed = solver_memory_bytes("dense", n), solver_memory_bytes("iterative", n)
+    need = solver_memory_bytes(kind, n)
     limit = MEMORY_SHARE * available_memory()
     if need > limit:
         gib = 2 ** 30
@@ -226,7 +231,7 @@ def _solve(case: Case, progress: Progress | None = None):
         t1 = time.perf_counter()
         solution = solve_operator(operator, segments.group, connections(case), progress)
     except MemoryError:
-        need = matrix_memory_bytes(len(segments)) if kind == "dense" else compressed_memory_bytes(len(segments))
+        need = solver_memory_bytes(kind, len(segments))
         raise ModelTooLargeError(
             f"{case.source}: the {kind} solve of {len(segments):,} segments ran out of memory (planned "
             f"{need / 2 ** 30:.1f} GiB); use a longer discretization.max_segment or a machine with more memory") from None

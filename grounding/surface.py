@@ -20,7 +20,7 @@ from scipy.spatial.distance import cdist
 from shapely.geometry import LineString, MultiLineString, MultiPoint, Polygon
 from shapely.ops import polygonize, unary_union
 
-from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, near_term_sum
+from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, gauss_points, near_term_sum
 from .case import SurfaceMap
 from .case_site import shapely_polygon
 from .geometry import Segments
@@ -79,7 +79,7 @@ class SurfacePotential:
         if compressed:
             # large maps: the hierarchical far field of the segments' 2-point Gauss–Legendre sources (the
             # middle tier's rule, so that only near pairs need correcting), interpolated to about 1e-5
-            sources = (a[:, None, :] + GAUSS2[0][None, :, None] * (b - a)[:, None, :]).reshape(-1, 3)
+            sources = gauss_points(a, b).reshape(-1, 3)
             out += apply_once(kernel.potential, np.column_stack([xy, np.zeros(m)]), sources,
                               np.repeat(0.5 * currents, 2), source_layer=kernel.layer_of(sources[:, 2]),
                               progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None)

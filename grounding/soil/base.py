@@ -195,8 +195,7 @@ class SoilKernel(ABC):
             f = factory(lz[0] * DEPTH_QUANTUM, lp[0] * DEPTH_QUANTUM)
             if f is None:
                 return np.zeros(shape)
-            return np.broadcast_to(f(np.broadcast_to(np.asarray(r, float), shape).copy()), shape).copy() \
-                if np.shape(r) != shape else f(np.array(r, float))
+            return f(np.array(np.broadcast_to(np.asarray(r, float), shape)))      # a copy: tables work in place
         r, z, zp = np.broadcast_arrays(np.asarray(r, float), z, zp)
         out = np.zeros(r.shape)
         if r.size == 0:
