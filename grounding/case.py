@@ -114,6 +114,97 @@ class SurfaceZone:
 
 
 @dataclass(frozen=True)
+class Injection:
+    """Where (part of) the fault current enters the electrode metal.
+
+    Attributes
+    ----------
+    point : (x, y, z)
+        On the axis of a main-system conductor or rod, m (z the depth).
+    share : float
+        Fraction of the grid current entering here; the shares of a fault sum to 1.
+    key : str
+        Key path in the case file.
+    line : int or None
+        Line in the case file, for messages.
+    """
+
+    point: Point3
+    share: float = 1.0
+    key: str = ""
+    line: int | None = None
+
+
+@dataclass(frozen=True)
+class ShieldWireLine:
+    """An overhead line whose shield wire(s) and tower footings carry part of the fault current away.
+
+    Attributes
+    ----------
+    name : str
+        As printed.
+    spans : int
+        Number of spans to the remote end.
+    span_length : float
+        m.
+    shield_impedance : complex
+        Self impedance of the shield wire(s) with earth return, Ω/m.
+    coupling : complex
+        Mutual impedance between the faulted phase and the shield wire(s) with earth return, Ω/m
+        (0: coupling ignored, which is conservative).
+    footing_resistance : float
+        Tower footing resistance, Ω.
+    share : float
+        Fraction of the fault current that arrives over this line's phase conductor.
+    key : str
+        Key path in the case file.
+    """
+
+    name: str
+    spans: int
+    span_length: float
+    shield_impedance: complex
+    coupling: complex
+    footing_resistance: float
+    share: float = 1.0
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class CableScreenPath:
+    """A cable whose screen (sheath) is bonded to the grid here and earthed at the remote end.
+
+    Attributes
+    ----------
+    name : str
+        As printed.
+    length : float
+        m.
+    screen_impedance : complex
+        Screen impedance with earth return, Ω/m.
+    remote_earth_resistance : float
+        Earthing resistance at the remote end, Ω.
+    key : str
+        Key path in the case file.
+    """
+
+    name: str
+    length: float
+    screen_impedance: complex
+    remote_earth_resistance: float
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class SplitNetwork:
+    """The paths that carry fault current away from the grid; the split factor follows from them and
+    the grid impedance (see :mod:`grounding.safety.current_division`)."""
+
+    lines: tuple[ShieldWireLine, ...] = ()
+    cables: tuple[CableScreenPath, ...] = ()
+
+
+@dataclass(frozen=True)
 class Fault:
     """Earth-fault data.
 
@@ -126,7 +217,7 @@ class Fault:
     x_over_r : float or None
         X/R ratio at the fault; None means no DC offset (Df = 1).
     frequency : float
-        System frequency, Hz.
+        System frequency, Hz; 0 means a DC study (resistance only, Df = 1).
     clearing_time : float
         Fault duration tf, s (decrement factor, conductor heating).
     shock_duration : float
@@ -135,6 +226,10 @@ class Fault:
         The contributions 3·I0 is the sum of, when given per source.
     split_basis : str
         Where Sf came from, in words (empty: given as a number).
+    injection : tuple of Injection
+        Where the fault current enters the metal (used when the conductors' impedance is modelled).
+    split_network : SplitNetwork or None
+        Lines and cables from which Sf is computed (``split_factor`` is then a placeholder of 1).
     """
 
     current: float
@@ -145,6 +240,13 @@ class Fault:
     frequency: float = 50.0
     sources: tuple[tuple[str, float, float | None], ...] = ()
     split_basis: str = ""
+    injection: tuple[Injection, ...] = ()
+    split_network: SplitNetwork | None = None
+
+    @property
+    def is_dc(self) -> bool:
+        """True for a DC study (frequency 0)."""
+        return self.frequency == 0.0
 
 
 #: Safety criteria a study can judge by.
@@ -256,6 +358,10 @@ class Electrodes:
         Maximum allowable conductor temperature, °C; None means the material's fusing temperature.
     drawing : (file, SHA-256, note) or None
         The DXF drawing some of the conductors and rods were read from.
+    conductor_impedance : bool
+        Model the series impedance of the metal (the electrodes are then not one equipotential).
+    conductor_temperature : float or None
+        Conductor temperature for its resistance, °C; None means 20 °C.
     """
 
     material: str
@@ -265,6 +371,8 @@ class Electrodes:
     ambient_temperature: float = 40.0
     max_temperature: float | None = None
     drawing: tuple[str, str, str] | None = None
+    conductor_impedance: bool = False
+    conductor_temperature: float | None = None
 
 
 #: How a separate electrode is connected: not at all, to remote earth, or to the main system.

@@ -181,6 +181,12 @@ class Checks:
             raise self.doc.fail(path, f"must be a list of {n} numbers ({what}) in {unit}, got {fmt(value)}")
         return tuple(self.number(f"{path}[{i}]", v, unit) for i, v in enumerate(value))
 
+    def flag(self, path: str, value: Any) -> bool:
+        """A yes/no setting: true or false."""
+        if not isinstance(value, bool):
+            raise self.doc.fail(path, f"must be true or false, got {fmt(value)}")
+        return value
+
     def sequence(self, path: str, value: Any) -> list:
         if value is None:
             return []

@@ -57,9 +57,10 @@ class ElectrodeSections(Checks):
 
     def electrodes(self, value: Any, soil: Soil) -> Electrodes:
         m = self.mapping("electrodes", value, ("material", "grids", "conductors", "rods", "ambient_temperature",
-                                               "max_temperature", "drawing"))
+                                               "max_temperature", "drawing", "conductor_impedance",
+                                               "conductor_temperature"))
         material = m.get("material", "copper-annealed")
-        if material not in MATERIALS:
+        if not isinstance(material, str) or material not in MATERIALS:
             near = difflib.get_close_matches(str(material), list(MATERIALS), n=1, cutoff=0.4)
             hint = f"did you mean '{near[0]}'?" if near else f"choose one of {', '.join(MATERIALS)}"
             raise self.doc.fail("electrodes.material", f"'{material}' is not in the material table; {hint}")
@@ -76,8 +77,13 @@ class ElectrodeSections(Checks):
         if tm is not None:
             tm = self.number("electrodes.max_temperature", tm, "°C", gt=ta,
                              le=MATERIALS[material].fusing_temperature)
+        impedance = self.flag("electrodes.conductor_impedance", m.get("conductor_impedance", False))
+        tc = m.get("conductor_temperature")
+        if tc is not None:
+            tc = self.number("electrodes.conductor_temperature", tc, "°C", gt=-60, le=400)
         return Electrodes(material=material, grids=grids, conductors=conductors, rods=rods,
-                          ambient_temperature=ta, max_temperature=tm, drawing=drawing)
+                          ambient_temperature=ta, max_temperature=tm, drawing=drawing, conductor_impedance=impedance,
+                          conductor_temperature=tc)
 
     def metal(self, path: str, m: dict) -> tuple[tuple[Grid, ...], tuple[Conductor, ...], tuple[Rod, ...]]:
         """The grids, conductors and rods listed in mapping ``m`` at ``path``."""
@@ -97,7 +103,7 @@ class ElectrodeSections(Checks):
         if "material" not in m:
             return ""
         material = m["material"]
-        if material not in MATERIALS:
+        if not isinstance(material, str) or material not in MATERIALS:
             near = difflib.get_close_matches(str(material), list(MATERIALS), n=1, cutoff=0.4)
             hint = f"did you mean '{near[0]}'?" if near else f"choose one of {', '.join(MATERIALS)}"
             raise self.doc.fail(f"{p}.material", f"'{material}' is not in the material table; {hint}")

@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .case import SOLVERS, STANDARDS, Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Layer, Soil, SurfaceLayer, SurfaceMap, \
+from .case import SOLVERS, STANDARDS, Case, Costs, Scenario, SoilUncertainty, Criteria, Discretization, Electrodes, Fault, Injection, Layer, SplitNetwork, ShieldWireLine, CableScreenPath, Soil, SurfaceLayer, SurfaceMap, \
     TouchArea
 from .case_checks import Document, as_number, fmt
 from .case_drawing import DrawingSections
@@ -108,7 +108,12 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         notes = list(soil_fit.readings.notes) if soil_fit else []
         if electrodes.drawing is not None:
             notes.append(electrodes.drawing[2])
-        if fault.x_over_r is None:
+        if electrodes.conductor_impedance and not fault.injection:
+            raise self.doc.fail("electrodes.conductor_impedance", "needs fault.injection: the point [x, y, z] in m "
+                                "where the fault current enters the metal (e.g. the transformer neutral's bond)")
+        if fault.x_over_r is None and fault.is_dc:
+            notes.append("DC study (fault.frequency: 0): resistances only, no decrement factor (Df = 1)")
+        elif fault.x_over_r is None:
             notes.append("fault.x_over_r is not given: the decrement factor Df = 1 was assumed (no DC offset), which "
                          "understates IG where the X/R is large; give the X/R at the fault")
         if surface_layer is not None:
@@ -283,7 +288,7 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
 
     def fault(self, value: Any) -> Fault:
         m = self.mapping("fault", value, ("current", "sources", "split_factor", "split", "x_over_r", "frequency",
-                                          "clearing_time", "shock_duration"), ("clearing_time",))
+                                          "clearing_time", "shock_duration", "injection"), ("clearing_time",))
         if ("current" in m) == ("sources" in m):
             raise self.doc.fail("fault", "needs either current (3·I0, A) or sources (a list of {name, current, x_over_r})")
         sources = ()
@@ -315,8 +320,14 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         if "split" in m:
             if "split_factor" in m:
                 raise self.doc.fail("fault.split", "cannot stand beside fault.split_factor; give one or the other")
-            sm = self.mapping("fault.split", m["split"], ("remote_current", "local_current"),
-                              ("remote_current", "local_current"))
+            network = None
+            if isinstance(m["split"], dict) and ("lines" in m["split"] or "cables" in m["split"]):
+                network = self.split_network(m["split"])
+            sm = {} if network else self.mapping("fault.split", m["split"], ("remote_current", "local_current"),
+                                                 ("remote_current", "local_current"))
+        if "split" in m and network:
+            sf = 1.0
+        elif "split" in m:
             remote = self.number("fault.split.remote_current", sm["remote_current"], "A", gt=0)
             local = self.number("fault.split.local_current", sm["local_current"], "A", ge=0)
             sf = remote / (remote + local)
@@ -333,9 +344,78 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         else:
             xr = m.get("x_over_r")
             xr = None if xr is None else self.number("fault.x_over_r", xr, "", ge=0, le=200)
-        f = self.number("fault.frequency", m.get("frequency", 50.0), "Hz", gt=0)
+        f = self.number("fault.frequency", m.get("frequency", 50.0), "Hz", ge=0)
+        if f == 0 and xr is not None:
+            raise self.doc.fail("fault.x_over_r", "has no meaning in a DC study (fault.frequency: 0); leave it out")
+        injection = self.injection(m["injection"]) if "injection" in m else ()
         return Fault(current=current, clearing_time=tf, shock_duration=ts, split_factor=sf, x_over_r=xr, frequency=f,
-                     sources=sources, split_basis=basis)
+                     sources=sources, split_basis=basis, injection=injection,
+                     split_network=network if "split" in m else None)
+
+    def injection(self, value: Any) -> tuple[Injection, ...]:
+        """``fault.injection``: one point [x, y, z] (m), or a list of {point, share} whose shares sum to 1."""
+        p = "fault.injection"
+        if isinstance(value, list) and len(value) == 3 and not any(isinstance(v, (dict, list)) for v in value):
+            return (Injection(self.vector(p, value, 3, "m", "x, y, depth"), 1.0, p, self.doc.line(p)),)
+        items = self.sequence(p, value)
+        if not items:
+            raise self.doc.fail(p, "is empty; give the point [x, y, z] in m where the fault current enters the metal")
+        out = []
+        for i, item in enumerate(items):
+            q = f"{p}[{i}]"
+            im = self.mapping(q, item, ("point", "share"), ("point", "share"))
+            out.append(Injection(self.vector(f"{q}.point", im["point"], 3, "m", "x, y, depth"),
+                                 self.number(f"{q}.share", im["share"], "", gt=0, le=1), q, self.doc.line(q)))
+        total = sum(x.share for x in out)
+        if abs(total - 1.0) > 1e-6:
+            raise self.doc.fail(p, f"shares sum to {total:g}; they must sum to 1")
+        return tuple(out)
+
+    def split_network(self, value: dict) -> SplitNetwork:
+        """``fault.split`` as the lines and cables that carry fault current away (impedances per km)."""
+        p = "fault.split"
+        m = self.mapping(p, value, ("lines", "cables"))
+
+        def per_km(path, v):
+            r, x = self.vector(path, v, 2, "Ω/km", "R, X")
+            if r < 0 or x < 0:
+                raise self.doc.fail(path, f"must be [R, X] in Ω/km with R, X >= 0, got [{r:g}, {x:g}]")
+            return complex(r, x) / 1000.0
+
+        lines, cables = [], []
+        for i, item in enumerate(self.sequence(f"{p}.lines", m.get("lines"))):
+            q = f"{p}.lines[{i}]"
+            lm = self.mapping(q, item, ("name", "spans", "span_length", "shield_wire_impedance_per_km",
+                                        "coupling_to_phase_per_km", "tower_footing_resistance", "share"),
+                              ("name", "spans", "span_length", "shield_wire_impedance_per_km",
+                               "tower_footing_resistance"))
+            zs = per_km(f"{q}.shield_wire_impedance_per_km", lm["shield_wire_impedance_per_km"])
+            if zs == 0:
+                raise self.doc.fail(f"{q}.shield_wire_impedance_per_km", "must not be zero")
+            zm = per_km(f"{q}.coupling_to_phase_per_km", lm["coupling_to_phase_per_km"]) \
+                if "coupling_to_phase_per_km" in lm else 0j
+            if abs(zm) > abs(zs):
+                raise self.doc.fail(f"{q}.coupling_to_phase_per_km", "is larger than the shield wire's own impedance; "
+                                    "the mutual impedance is at most the self impedance")
+            lines.append(ShieldWireLine(
+                self.name(f"{q}.name", lm["name"]), self.integer(f"{q}.spans", lm["spans"], ge=1, le=10_000),
+                self.number(f"{q}.span_length", lm["span_length"], "m", gt=0), zs, zm,
+                self.number(f"{q}.tower_footing_resistance", lm["tower_footing_resistance"], "Ω", gt=0, le=1e4),
+                self.number(f"{q}.share", lm.get("share", 1.0), "", ge=0, le=1), q))
+        for i, item in enumerate(self.sequence(f"{p}.cables", m.get("cables"))):
+            q = f"{p}.cables[{i}]"
+            cm = self.mapping(q, item, ("name", "length", "screen_impedance_per_km", "remote_earth_resistance"),
+                              ("name", "length", "screen_impedance_per_km", "remote_earth_resistance"))
+            zc = per_km(f"{q}.screen_impedance_per_km", cm["screen_impedance_per_km"])
+            cables.append(CableScreenPath(
+                self.name(f"{q}.name", cm["name"]), self.number(f"{q}.length", cm["length"], "m", gt=0), zc,
+                self.number(f"{q}.remote_earth_resistance", cm["remote_earth_resistance"], "Ω", ge=0, le=1e4), q))
+        if not lines and not cables:
+            raise self.doc.fail(p, "lists no lines or cables; give the paths that carry fault current away")
+        shares = sum(x.share for x in lines)
+        if lines and shares > 1 + 1e-6:
+            raise self.doc.fail(f"{p}.lines", f"shares of the fault current sum to {shares:g}; at most 1")
+        return SplitNetwork(tuple(lines), tuple(cables))
 
     def criteria(self, value: Any) -> Criteria:
         m = self.mapping("criteria", value or {}, ("body_weight", "standard", "footwear_resistance"))

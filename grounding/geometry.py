@@ -355,6 +355,29 @@ def _refuse_contacts(case: Case, c: Conductors, touching: np.ndarray, contact: n
                     "metal that touches is one electrode: mark it bonded or move it")
 
 
+#: An injection point counts as on the metal within this distance of a conductor's axis, m.
+INJECTION_TOLERANCE = 0.05
+
+
+def _injection_place(case: Case, c: Conductors, inj) -> tuple[int, float]:
+    """The main-system conductor an injection point lies on and the distance along it (m); refuses a point
+    off the metal with the nearest point of the metal and its distance."""
+    p = np.asarray(inj.point, float)
+    d = c.end - c.start
+    L = c.length
+    t = np.clip(np.einsum("ij,ij->i", p - c.start, d) / (L * L), 0.0, 1.0)
+    foot = c.start + t[:, None] * d
+    gap = np.where(c.group == 0, np.linalg.norm(foot - p, axis=1), np.inf)
+    i = int(np.argmin(gap))
+    if not gap[i] <= INJECTION_TOLERANCE:
+        x, y, z = foot[i]
+        raise CaseError(case.source, inj.line, inj.key,
+                        f"({p[0]:g}, {p[1]:g}, {p[2]:g}) m is not on the main system's metal: the nearest point is "
+                        f"({x:.2f}, {y:.2f}, {z:.2f}) m on {c.keys[i]}, {gap[i]:.2f} m away; give a point on a "
+                        "conductor or rod (within 0.05 m of its axis)")
+    return i, float(t[i] * L[i])
+
+
 def segment(case: Case) -> Segments:
     """Discretise the case's electrodes into straight segments.
 
@@ -388,6 +411,9 @@ def segment(case: Case) -> Segments:
             warnings.append(f"{len(np.unique(groups))} {what} do not touch each other "
                             f"({', '.join(loose[:4])}{' ...' if len(loose) > 4 else ''}); they are taken as "
                             "bonded by above-ground leads into one equipotential system")
+    for inj in case.fault.injection:
+        i, t = _injection_place(case, conductors, inj)
+        cuts[i] = np.append(cuts[i], t)
     interfaces = np.array(case.soil.interface_depths)
     max_seg = case.discretization.max_segment
     a, b = conductors.start, conductors.end

@@ -44,6 +44,10 @@ class Solution:
     solver : dict
         How it was solved: ``kind`` (dense or iterative), ``relative_residual`` and, iterative,
         ``iterations``.
+    metal : MetalState or None
+        Conductors with impedance (:mod:`grounding.solve_network`): the metal's potentials; the currents and
+        group values are then phasors per volt of the injection point's GPR magnitude and ``resistance`` is
+        the magnitude of the grid impedance.
     """
 
     currents_per_volt: np.ndarray
@@ -52,6 +56,7 @@ class Solution:
     group_potential: np.ndarray = None
     group_current: np.ndarray = None
     solver: dict = None
+    metal: object = None
 
     def currents(self, grid_current: float) -> np.ndarray:
         """Segment leakage currents, A, when the grid injects ``grid_current`` (A) into the soil."""

@@ -18,9 +18,10 @@ from .assembly import AssemblyOptions, matrix_memory_bytes
 from .operators import compressed_memory_bytes, compressed_operator, dense_operator
 from .case import Case
 from .cautions import CAUTIONS
-from .errors import ModelTooLargeError
+from .errors import GroundingError, ModelTooLargeError
 from .geometry import Segments, segment
 from .materials import MATERIALS
+from .safety.current_division import CurrentDivision, current_division
 from .safety.conductor import ConductorCheck, check_conductor, governing_conductor
 from .case_site import shapely_polygon
 from .safety.ieee80 import Limits, decrement_factor
@@ -28,7 +29,10 @@ from .safety.simplified import SimplifiedResult, simplified_method
 from .safety.site import (Check, CriteriaResult, SeparateResult, ZoneVerdict, governing, least_margin,
                           separate_result, zone_limits)
 from .soil import SoilKernel, make_kernel
+from .conductor_impedance import series_impedance
+from .metal_network import MetalNetwork, metal_network
 from .solve import Solution, solve_operator
+from .solve_network import MetalState, solve_network
 from .surface import (Extreme, SeparateMetal, SurfacePotential, SurfaceResult, ZoneExtremes, Zoning, contour_lines,
                       map_axes, step_at, surface_fields)
 
@@ -100,6 +104,8 @@ class StudyResult:
     uncertainty: object = None
     criteria: tuple[CriteriaResult, ...] = ()
     cautions: tuple[str, ...] = CAUTIONS
+    metal_drop: "MetalDrop | None" = None
+    current_division: CurrentDivision | None = None
 
     @property
     def grid_resistance(self) -> float:
@@ -223,6 +229,8 @@ def _solve(case: Case, progress: Progress | None = None):
     segments = segment(case)
     check_model_size(case, segments)
     kernel = make_kernel(case.soil, case.discretization.max_segment)
+    if case.electrodes.conductor_impedance:
+        return _solve_with_impedance(case, segments, kernel, progress)
     t0 = time.perf_counter()
     kind = solver_kind(case, len(segments))
     build = dense_operator if kind == "dense" else compressed_operator
@@ -238,6 +246,132 @@ def _solve(case: Case, progress: Progress | None = None):
     t2 = time.perf_counter()
     solution = replace(solution, solver={**solution.solver, "operator_mb": round(operator.nbytes / 1e6, 1)})
     return segments, kernel, solution, {"assemble_s": t1 - t0, "solve_s": t2 - t1}
+
+
+def _injection_nodes(case: Case, network: MetalNetwork) -> list[tuple[int, float]]:
+    """Node and share of each injection point (the geometry put a node on each)."""
+    return [(network.nearest_node(inj.point)[0], inj.share) for inj in case.fault.injection]
+
+
+def _network_solve(case: Case, segments: Segments, R: np.ndarray, injection=None) -> MetalState:
+    """The coupled metal–soil solution for 1 A at the case's injection points (or ``injection``)."""
+    network = metal_network(segments)
+    Z = series_impedance(case, segments).matrix()
+    ns = solve_network(R, network, Z, injection or _injection_nodes(case, network), connections(case))
+    return MetalState(network, ns)
+
+
+def _solve_with_impedance(case: Case, segments: Segments, kernel: SoilKernel, progress: Progress | None):
+    """Conductors with impedance: the dense matrix and the coupled metal–soil solve (see solve_network)."""
+    n = len(segments)
+    if n > DENSE_LIMIT:
+        raise ModelTooLargeError(
+            f"{case.source}: electrodes.conductor_impedance with {n:,} segments: the coupled solve is dense and "
+            f"limited to {DENSE_LIMIT:,} segments in this version; use a longer discretization.max_segment "
+            f"(about {case.discretization.max_segment * n / DENSE_LIMIT:.2g} m)")
+    t0 = time.perf_counter()
+    operator = dense_operator(segments, kernel, AssemblyOptions(), progress)
+    t1 = time.perf_counter()
+    metal = _network_solve(case, segments, operator.matrix)
+    t2 = time.perf_counter()
+    ns = metal.solution
+    scale = 1.0 / abs(ns.impedance)
+    groups = len(connections(case))
+    seg_group = segments.group
+    node_group = metal.network.group
+    potential = np.array([ns.node_potential[ns.injection_nodes[0]] if g == 0 else
+                          (ns.node_potential[node_group == g].mean() if (node_group == g).any() else 0.0)
+                          for g in range(groups)], complex) * scale
+    current = (np.bincount(seg_group, ns.leakage.real, minlength=groups) +
+               1j * np.bincount(seg_group, ns.leakage.imag, minlength=groups)) * scale
+    solution = Solution(ns.leakage * scale, abs(ns.impedance), ns.relative_residual, potential, current,
+                        {"kind": "dense", "network": True, "relative_residual": ns.relative_residual,
+                         "power_balance": ns.power_balance, "operator_mb": round(operator.nbytes / 1e6, 1)},
+                        metal)
+    return segments, kernel, solution, {"assemble_s": t1 - t0, "solve_s": t2 - t1}
+
+
+#: The potential-drop screening of an equipotential study runs on at most this many segments (the
+#: discretisation is coarsened until it fits); it is an estimate, not a result.
+DROP_ESTIMATE_SEGMENTS = 400
+#: A drop of the metal potential beyond this share of the GPR makes the equipotential model questionable.
+DROP_WARNING = 0.02
+
+
+@dataclass(frozen=True)
+class MetalDrop:
+    """How far the metal's potential varies, from the conductors' series impedance.
+
+    Attributes
+    ----------
+    fraction : float or None
+        Largest |V_node − V_feed| / |V_feed| over the energised metal.
+    low : float or None
+        Least |V_node| / |V_feed| over the energised metal.
+    feed : (x, y, z) or None
+        Where the current was taken to enter, m.
+    estimated : bool
+        True for the screening estimate of an equipotential study (coarse segments; the feed point the
+        case's injection or the metal nearest the centroid), False for the coupled solution's own value.
+    note : str
+        How it was obtained, or why not.
+    """
+
+    fraction: float | None
+    low: float | None
+    feed: tuple[float, float, float] | None
+    estimated: bool
+    note: str = ""
+
+
+def metal_drop(case: Case, segments: Segments, solution: Solution) -> MetalDrop:
+    """The metal potential's spread: from the coupled solution, or screened for an equipotential study."""
+    if solution.metal is not None:
+        metal = solution.metal
+        feed = tuple(float(v) for v in metal.network.nodes[metal.solution.injection_nodes[0]])
+        v = metal.node_potential[metal.network.group == 0]
+        v0 = metal.node_potential[metal.solution.injection_nodes[0]]
+        return MetalDrop(float(np.max(np.abs(v - v0)) / abs(v0)), metal.fraction(0)[0], feed, False,
+                         "from the coupled metal–soil solution")
+    return estimate_metal_drop(case, len(segments))
+
+
+def estimate_metal_drop(case: Case, segments_now: int | None = None) -> MetalDrop:
+    """Screening of an equipotential study: the coupled solve on a coarse discretisation (at most
+    DROP_ESTIMATE_SEGMENTS segments), fed at the case's injection point or at the energised metal's node
+    nearest its centroid. ``segments_now``: the case's own segment count, to start near the right length."""
+    h = case.discretization.max_segment
+    if segments_now:
+        h *= max(1.0, 1.1 * segments_now / DROP_ESTIMATE_SEGMENTS)
+    for _ in range(10):
+        coarse = replace(case, discretization=replace(case.discretization, max_segment=h))
+        segments = segment(coarse)
+        if len(segments) <= DROP_ESTIMATE_SEGMENTS:
+            break
+        h *= 2
+    else:
+        return MetalDrop(None, None, None, True, f"not estimated: the layout needs more than "
+                                                 f"{DROP_ESTIMATE_SEGMENTS} segments even when coarsened")
+    kernel = make_kernel(coarse.soil, h)
+    R = dense_operator(segments, kernel, AssemblyOptions()).matrix
+    network = metal_network(segments)
+    if case.fault.injection:
+        injection = _injection_nodes(coarse, network)
+        where = "the case's fault.injection"
+    else:
+        main = network.group == 0
+        centre = network.nodes[main].mean(axis=0)
+        injection = [(network.nearest_node(centre)[0], 1.0)]
+        where = "the metal nearest the centroid (no fault.injection given)"
+    try:
+        metal = _network_solve(coarse, segments, R, injection)
+    except GroundingError as exc:
+        return MetalDrop(None, None, None, True, f"not estimated: {exc}")
+    v = metal.node_potential[network.group == 0]
+    v0 = metal.node_potential[injection[0][0]]
+    feed = tuple(float(x) for x in network.nodes[injection[0][0]])
+    return MetalDrop(float(np.max(np.abs(v - v0)) / abs(v0)), float(np.min(np.abs(v)) / abs(v0)), feed, True,
+                     f"screening estimate: {len(segments)} segments of up to {h:g} m, current entering at {where}")
 
 
 def connections(case: Case) -> tuple[str, ...]:
@@ -259,7 +393,9 @@ def separate_metal(case: Case, segments: Segments, solution: Solution) -> tuple[
     out = []
     for g, e in enumerate(case.separate_electrodes, start=1):
         mask = segments.conductors.matching((e.key,))
-        out.append(SeparateMetal(mask, 1.0 if e.connection == "bonded" else float(solution.group_potential[g])))
+        value = solution.group_potential[g]
+        out.append(SeparateMetal(mask, 1.0 if e.connection == "bonded" else
+                                 (complex(value) if np.iscomplexobj(value) else float(value))))
     return tuple(out)
 
 
@@ -286,10 +422,13 @@ def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int
     def check(ext: Extreme | None, kind: str) -> Extreme | None:
         if ext is None:
             return None
+        xy = np.array([[ext.x, ext.y]])
         if kind == "step":
             value = step_at(potential, ext.x, ext.y, step_len)
+        elif coarse.metal is not None:
+            value = float(np.abs(coarse.metal.main_metal(xy)[0] - potential(xy)[0]))
         else:
-            value = 1.0 - float(potential(np.array([[ext.x, ext.y]]))[0])
+            value = 1.0 - float(potential(xy)[0])
         return replace(ext, segment_check=ratio * value)
 
     zones = tuple(ZoneExtremes(check(z.touch, "touch"), check(z.step, "step"), check(z.mesh, "mesh"))
@@ -320,6 +459,7 @@ class UnitStudy:
     surface: SurfaceResult
     error: DiscretizationError
     timings: dict
+    drop: MetalDrop | None = None
 
 
 def geometry_key(case: Case) -> str:
@@ -327,6 +467,8 @@ def geometry_key(case: Case) -> str:
     discretisation, surface map and probes); fault, criteria, surface layer and material do not enter."""
     el = case.electrodes
     parts = (case.soil.layers, el.grids, el.conductors, el.rods, case.discretization, case.surface, case.probes,
+             (el.material, el.conductor_impedance, el.conductor_temperature, case.fault.frequency,
+              tuple(i.point + (i.share,) for i in case.fault.injection)),
              tuple(replace(z, key="") for z in case.surface_zones),
              tuple((e.name, e.connection, _strip_keys(e.grids), _strip_keys(e.conductors), _strip_keys(e.rods))
                    for e in case.separate_electrodes))
@@ -346,13 +488,17 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
     t0 = time.perf_counter()
     surface = surface_fields(segments, solution.currents_per_volt, 1.0, kernel, case.surface, case.probes,
                              progress=progress, zoning=zoning(case),
-                             metal=separate_metal(case, segments, solution), check_map=estimate_error)
+                             metal=separate_metal(case, segments, solution), check_map=estimate_error,
+                             main_metal=solution.metal.main_metal if solution.metal is not None else None)
     timings["surface_s"] = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    drop = metal_drop(case, segments, solution)
+    timings["metal_drop_s"] = time.perf_counter() - t0
     if estimate_error:
         error, surface = estimate_discretization_error(case, solution, len(segments), surface)
     else:
         error = DiscretizationError(None, None, None, "not requested")
-    return UnitStudy(segments, kernel, solution, surface, error, timings)
+    return UnitStudy(segments, kernel, solution, surface, error, timings, drop)
 
 
 def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True,
@@ -502,9 +648,17 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> S
     segments, solution = unit.segments, unit.solution
     fault = case.fault
     df = decrement_factor(fault.x_over_r, fault.frequency, fault.clearing_time)
+    division = None
+    if fault.split_network is not None:
+        zg = solution.metal.solution.impedance if solution.metal is not None else complex(solution.resistance)
+        division = current_division(fault.split_network, zg)
+        fault = replace(fault, split_factor=division.split_factor, split_basis=division.basis)
+        case = replace(case, fault=fault)
     ig = df * fault.split_factor * fault.current
     gpr = ig * solution.resistance
     currents = solution.currents(ig)
+    if np.iscomplexobj(currents):
+        currents = np.abs(currents)                        # phasor magnitudes for the outputs
     surface = unit.surface.scaled(gpr)
     judged = tuple(_judge(case, standard, surface, segments, solution, gpr, ig) for standard in case.criteria.standards)
     first = judged[0]
@@ -521,6 +675,15 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> S
             warnings.append(f"the sounding's largest spacing ({largest:g} m) is shorter than the site's diagonal "
                             f"({diagonal:.0f} m): the deep soil that governs Rg of a site this size is not measured "
                             "(common practice: spacings up to about the diagonal of the grid)")
+    drop = unit.drop
+    if drop is not None and drop.fraction is not None and drop.estimated and drop.fraction > DROP_WARNING:
+        x, y, _ = drop.feed
+        warnings.append(f"CONDUCTOR IMPEDANCE: the metal is not one equipotential: its potential may drop by "
+                        f"{100 * drop.fraction:.1f} % of the GPR from the feed point ({x:.1f}, {y:.1f}) m across the "
+                        f"metal ({drop.note}); touch voltages near the feed point can be larger than this study's; "
+                        "set electrodes.conductor_impedance: true and give fault.injection")
+    if solution.metal is not None:
+        warnings.extend(_impedance_notes(case, segments, solution))
     for z in zones:
         if z.zone.area is not None and z.extremes.step is None:
             warnings.append(f"surface zone '{z.name}' holds no point of the surface map; its step voltage was not "
@@ -543,7 +706,29 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> S
                        limits=governing_limits, simplified=simplified_method(case, ig), conductor=conductor,
                        discretization_error=unit.error, timings=dict(unit.timings),
                        warnings=tuple(warnings), zones=zones, touch_check=touch, step_check=step, mesh_check=mesh,
-                       separate=separate, contours=contours, criteria=judged)
+                       separate=separate, contours=contours, criteria=judged, metal_drop=drop,
+                       current_division=division)
+
+
+def _impedance_notes(case: Case, segments: Segments, solution: Solution) -> list[str]:
+    """What the reader of a study with conductor impedance should know about its model."""
+    notes = []
+    f = case.fault.frequency
+    if f > 0:
+        rho = min(layer.resistivity for layer in case.soil.layers)
+        depth = 503.0 * np.sqrt(rho / f)
+        pts = np.vstack([segments.start[:, :2], segments.end[:, :2]])
+        extent = float(np.linalg.norm(pts.max(axis=0) - pts.min(axis=0)))
+        if extent > 0.5 * depth:
+            notes.append(f"the electrodes span {extent:,.0f} m, more than half the soil's skin depth ({depth:,.0f} m "
+                         f"at {rho:g} Ω·m, {f:g} Hz): the partial inductances leave out the earth-return effect and "
+                         "overstate the inductive drop along the metal (the conservative side)")
+    comp = solution.metal.network.components()
+    main = solution.metal.network.group == 0
+    if len(np.unique(comp[main])) > 1:
+        notes.append("parts of the energised metal do not touch the rest; they are taken as bonded to the first "
+                     "injection point by ideal leads (the conservative side: they sit at its potential)")
+    return notes
 
 
 def _judge(case: Case, standard: str, surface: SurfaceResult, segments: Segments, solution: Solution, gpr: float,
@@ -556,7 +741,8 @@ def _judge(case: Case, standard: str, surface: SurfaceResult, segments: Segments
     zones = tuple(ZoneVerdict(z, lim, weight, ext) for z, lim, ext in zip(case.zones, limits, surface.zones))
     touch, step, mesh = governing(zones, "touch"), governing(zones, "step"), governing(zones, "mesh", needed=False)
     separate = tuple(
-        separate_result(e.name, e.connection, gpr * (1.0 if e.connection == "bonded" else solution.group_potential[g]),
+        separate_result(e.name, e.connection,
+                        gpr * (1.0 if e.connection == "bonded" else float(np.abs(solution.group_potential[g]))),
                         gpr, _separate_current(e, g, segments, solution, ig), m.touch, zones)
         for g, (e, m) in enumerate(zip(case.separate_electrodes, surface.metal), start=1))
     return CriteriaResult(standard, zones, touch, step, mesh, separate)
@@ -567,5 +753,5 @@ def _separate_current(e, g: int, segments: Segments, solution: Solution, grid_cu
     scale = grid_current * solution.resistance
     if e.connection == "bonded":
         mask = segments.conductors.matching((e.key,))[segments.conductor]
-        return float(solution.currents_per_volt[mask].sum() * scale)
-    return float(solution.group_current[g] * scale)
+        return float(np.abs(solution.currents_per_volt[mask].sum()) * scale)
+    return float(np.abs(solution.group_current[g]) * scale)

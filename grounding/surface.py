@@ -58,6 +58,9 @@ class SurfacePotential:
     def __init__(self, segments: Segments, currents: np.ndarray, kernel: SoilKernel,
                  options: AssemblyOptions = AssemblyOptions()):
         self.segments, self.currents, self.kernel, self.options = segments, currents, kernel, options
+        # phasor currents (conductors with impedance): the real and imaginary parts as two columns
+        self.columns = np.column_stack([currents.real, currents.imag]) if np.iscomplexobj(currents) else \
+            np.asarray(currents, float)[:, None]
         self.mid = segments.midpoint
         self.L = segments.length
         depth = np.round(self.mid[:, 2] / DEPTH_QUANTUM).astype(np.int64)
@@ -72,17 +75,19 @@ class SurfacePotential:
         """Potential relative to remote earth (V) at surface points ``xy`` (m), shape (M, 2) → (M,)."""
         xy = np.atleast_2d(np.asarray(xy, float))
         m = len(xy)
-        mid, L, currents, kernel = self.mid, self.L, self.currents, self.kernel
-        out = np.zeros(m)
+        mid, L, currents, kernel = self.mid, self.L, self.columns, self.kernel
+        k = currents.shape[1]
+        out = np.zeros((m, k))
         a, b = self.segments.start, self.segments.end
         compressed = m * len(mid) >= COMPRESS_FROM_PAIRS
         if compressed:
             # large maps: the hierarchical far field of the segments' 2-point Gauss–Legendre sources (the
             # middle tier's rule, so that only near pairs need correcting), interpolated to about 1e-5
             sources = gauss_points(a, b).reshape(-1, 3)
-            out += apply_once(kernel.potential, np.column_stack([xy, np.zeros(m)]), sources,
-                              np.repeat(0.5 * currents, 2), source_layer=kernel.layer_of(sources[:, 2]),
-                              progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None)
+            for c in range(k):
+                out[:, c] += apply_once(kernel.potential, np.column_stack([xy, np.zeros(m)]), sources,
+                                        np.repeat(0.5 * currents[:, c], 2), source_layer=kernel.layer_of(sources[:, 2]),
+                                        progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None)
         for start in range(0, 0 if compressed else m, POINT_CHUNK):
             rows = slice(start, min(m, start + POINT_CHUNK))
             if self.members is None:
@@ -112,7 +117,8 @@ class SurfacePotential:
             accurate = _near_point_values(p3[i], self.segments, kernel, j) if exact else gauss
             coarse = gauss if compressed else \
                 kernel.potential(np.linalg.norm(p3[i, :2] - mid[j, :2], axis=1), 0.0, mid[j, 2])
-            return np.bincount(i, (accurate - coarse) * currents[j], minlength=m)
+            return np.column_stack([np.bincount(i, (accurate - coarse) * currents[j, c], minlength=m)
+                                    for c in range(k)])
 
         tasks = []
         for sel, exact in ((near, True), (~near, False)):
@@ -122,7 +128,7 @@ class SurfacePotential:
             out += part
         if progress:
             progress("surface", 1.0)
-        return out
+        return out[:, 0] + 1j * out[:, 1] if k == 2 else out[:, 0]
 
 
 def surface_potential(xy: np.ndarray, segments: Segments, currents: np.ndarray, kernel: SoilKernel,
@@ -469,7 +475,8 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
                    surface: SurfaceMap, probes: tuple[tuple[float, float], ...] = (),
                    options: AssemblyOptions = AssemblyOptions(),
                    progress: Progress | None = None, zoning: Zoning | None = None,
-                   metal: tuple[SeparateMetal, ...] = (), check_map: bool = True) -> SurfaceResult:
+                   metal: tuple[SeparateMetal, ...] = (), check_map: bool = True,
+                   main_metal=None) -> SurfaceResult:
     """Map the surface and find the worst touch, step and mesh voltages, zone by zone.
 
     Parameters
@@ -494,6 +501,11 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     check_map : bool
         Also search every zone's worst touch, step and mesh voltage on a map of twice the spacing
         (``Extreme.map_check``).
+    main_metal : callable, optional
+        Conductors with impedance: the (complex) potential of the main system's metal nearest to each of
+        (M, 2) points, per volt of ``gpr``; the currents are then phasors and every voltage is the magnitude
+        of a phasor difference (touch |V_metal − V_surface|, step |V(a) − V(b)|). None: one equipotential
+        system at ``gpr``.
     """
     zoning = zoning or Zoning()
     x, y = map_axes(segments, surface)
@@ -503,10 +515,15 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     V = potential(pts, progress).reshape(X.shape)
     labels = zoning.label(X, Y)
 
+    def touch_at(xy, v=None):
+        v = potential(xy) if v is None else v
+        return gpr - v if main_metal is None else np.abs(gpr * main_metal(xy) - v)
+
     area, meshes = touch_region(segments, surface)
     shapely.prepare(area)
     in_area = shapely.contains_xy(area, X, Y) | shapely.intersects_xy(area.boundary, X, Y)
-    touch = np.where(in_area, gpr - V, np.nan)
+    touch_map = touch_at(pts, V.ravel()).reshape(X.shape)
+    touch = np.where(in_area, touch_map, np.nan)
     in_mesh = shapely.contains_xy(meshes, X, Y) if not meshes.is_empty else np.zeros_like(in_area)
     grid = (X, Y, surface.resolution)
 
@@ -516,10 +533,9 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     grid2 = (X, Y, 2 * surface.resolution)
 
     def worst_main(region, mask, k):
-        best = _worst_place(lambda xy: gpr - potential(xy), gpr - V, mask & (labels == k), grid, region, zoning, k)
+        best = _worst_place(touch_at, touch_map, mask & (labels == k), grid, region, zoning, k)
         if best is not None and check_map:
-            check = _worst_place(lambda xy: gpr - potential(xy), gpr - V, mask & (labels == k) & coarse, grid2,
-                                 region, zoning, k)
+            check = _worst_place(touch_at, touch_map, mask & (labels == k) & coarse, grid2, region, zoning, k)
             best = replace(best, map_check=None if check is None else check.value)
         return best
 
@@ -532,12 +548,12 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     if max_touch is None:                                  # no touch area at all: nothing to report
         max_touch = Extreme(float("nan"), float(x[0]), float(y[0]))
     metal_touch = tuple(_metal_touch(m, segments, surface, potential, V, labels, grid, zoning) for m in metal)
-    probe_v = potential(np.array(probes, float).reshape(-1, 2)) if probes else np.zeros(0)
+    probe_v = np.abs(potential(np.array(probes, float).reshape(-1, 2))) if probes else np.zeros(0)
     (x0, y0), (x1, y1) = surface.profile or ((x[0], y[0]), (x[-1], y[-1]))
     f = np.linspace(0.0, 1.0, PROFILE_POINTS)
     px, py = x0 + f * (x1 - x0), y0 + f * (y1 - y0)
-    profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, potential(np.column_stack([px, py])))
-    return SurfaceResult(x, y, V, touch, step, area, meshes, max_touch, _largest(zone_step), _largest(zone_mesh),
+    profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, np.abs(potential(np.column_stack([px, py]))))
+    return SurfaceResult(x, y, np.abs(V), touch, step, area, meshes, max_touch, _largest(zone_step), _largest(zone_mesh),
                          probe_v, profile, zones, metal_touch, labels)
 
 
@@ -650,13 +666,27 @@ def _better(value: float, x: float, y: float, best: Extreme) -> bool:
     return abs(value - best.value) <= scale and (round(y, 6), round(x, 6)) < (round(best.y, 6), round(best.x, 6))
 
 
+class _PhasorSpline:
+    """Bicubic spline of a real map, or of the real and imaginary parts of a phasor map."""
+
+    def __init__(self, x, y, V):
+        # cubic where the map has the points for it (a narrow map may have fewer than 4 along one side)
+        kx, ky = min(3, len(x) - 1), min(3, len(y) - 1)
+        self.re = RectBivariateSpline(x, y, V.real.T, kx=kx, ky=ky)
+        self.im = RectBivariateSpline(x, y, V.imag.T, kx=kx, ky=ky) if np.iscomplexobj(V) else None
+
+    def ev(self, px, py):
+        out = self.re.ev(px, py)
+        return out if self.im is None else out + 1j * self.im.ev(px, py)
+
+
 def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray,
                    coarse: np.ndarray | None = None):
     """Step-voltage map from a bicubic spline of the potential, and the worst step per zone checked
     exactly and refined, and again from the ``coarse`` map points when given (``Extreme.map_check``). A step
     belongs to the zone of the foot with the more severe zone."""
     resolution = float(x[1] - x[0]) if len(x) > 1 else 1.0
-    spline = RectBivariateSpline(x, y, V.T, kx=3, ky=3)
+    spline = _PhasorSpline(x, y, V)
 
     def smooth(xy):
         xy = np.atleast_2d(xy)
@@ -664,7 +694,7 @@ def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zonin
 
     X, Y = np.meshgrid(x, y)
     ang = np.pi * np.arange(STEP_DIRECTIONS) / STEP_DIRECTIONS
-    step = np.zeros_like(V)
+    step = np.zeros(V.shape)
     nz = len(zoning)
     per_zone = np.zeros((nz,) + V.shape)
     for t in ang:

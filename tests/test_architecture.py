@@ -10,8 +10,8 @@ PACKAGE = Path(__file__).resolve().parents[1] / "grounding"
 #: Stage rank of each top-level module or subpackage; equal ranks may import each other.
 RANK = {
     "errors": 0, "cautions": 0, "textfile": 0, "materials": 0,
-    "sounding": 1, "case": 2, "case_checks": 2, "case_drawing": 2, "case_electrodes": 2, "case_site": 2, "case_loader": 2, "geometry": 3, "soil": 4, "integrals": 5, "assembly": 6, "hmatrix": 5, "operators": 6,
-    "solve": 7, "surface": 8, "safety": 9, "study": 10, "validation": 11, "uncertainty": 11, "options": 12, "outputs": 13,
+    "sounding": 1, "case": 2, "case_checks": 2, "case_drawing": 2, "case_electrodes": 2, "case_site": 2, "case_loader": 2, "geometry": 3, "metal_network": 3, "soil": 4, "conductor_impedance": 5, "integrals": 5, "assembly": 6, "hmatrix": 5, "operators": 6,
+    "solve": 7, "solve_network": 7, "surface": 8, "safety": 9, "study": 10, "validation": 11, "uncertainty": 11, "options": 12, "outputs": 13,
     "cli": 14, "__init__": 15,
 }
 

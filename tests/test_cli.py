@@ -89,6 +89,17 @@ def test_bad_input_is_one_line_exit_2(tmp_path):
     assert lines[0] == f"error: {bad}:8: electrodes.rods[0].length must be > 0 m, got -3"
 
 
+@pytest.mark.parametrize("old, new", [("electrodes:\n", "electrodes:\n  material: [60, 22.5]\n"),
+                                      ("rods: [{top", "rods: [{material: [1, 2], top")])
+def test_material_that_is_not_a_name_is_refused_in_one_line(tmp_path, old, new):
+    """Regression (fuzzing): a list given as a material name ended in the safety net (TypeError)."""
+    text = SMALL.replace(old, new, 1)
+    bad = tmp_path / "bad.yaml"
+    bad.write_text(text)
+    res = run("check", bad)
+    assert res.exit_code == 2 and "is not in the material table" in res.output, res.output
+
+
 def test_too_large_discretisation_refused_with_size(tmp_path):
     big = tmp_path / "big.yaml"
     big.write_text(SMALL.replace("size: [20, 15], meshes: [4, 3]", "size: [3000, 3000], meshes: [30, 30]")
@@ -114,7 +125,8 @@ def test_unwritable_json_path_is_a_clean_error(small_case, tmp_path):
 
 
 @pytest.mark.parametrize("name", ["kestrel-bend-uniform.yaml", "kestrel-bend-two-layer.yaml", "kestrel-bend-seasons.yaml",
-                                  "kestrel-bend-fence-isolated.yaml", "kestrel-bend-fence-bonded.yaml"])
+                                  "kestrel-bend-fence-isolated.yaml", "kestrel-bend-fence-bonded.yaml",
+                                  "kestrel-bend-steel-lead.yaml"])
 def test_demo_cases_are_valid(name):
     res = run("check", ROOT / "cases" / name)
     assert res.exit_code == 0, res.output

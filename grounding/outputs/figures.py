@@ -353,9 +353,49 @@ def leakage_figure(r: StudyResult) -> Rendered:
     return Rendered("leakage", "Leakage current", fig, float(density.max()))
 
 
+def metal_potential_figure(r: StudyResult) -> Rendered | None:
+    """|Potential of the metal| as % of the injection point's, on the plan (conductors with impedance only)."""
+    metal = r.solution.metal
+    if metal is None:
+        return None
+    from matplotlib.collections import LineCollection
+
+    seg = r.segments
+    node = np.abs(metal.node_potential)
+    percent = 50.0 * (node[metal.network.ends[:, 0]] + node[metal.network.ends[:, 1]])
+    fig, ax = plt.subplots(figsize=(FIGSIZE[0], 4.6), dpi=DPI)
+    horizontal = ~seg.is_rod
+    lc = LineCollection(np.stack([seg.start[horizontal, :2], seg.end[horizontal, :2]], axis=1),
+                        array=percent[horizontal], cmap="viridis", linewidths=3.0)
+    ax.add_collection(lc)
+    if seg.is_rod.any():
+        tops = np.flatnonzero(seg.is_rod & (np.abs(seg.start[:, 2] - seg.conductors.start[seg.conductor, 2]) < 1e-9))
+        ax.scatter(seg.start[tops, 0], seg.start[tops, 1], c=percent[tops], cmap="viridis", norm=lc.norm, s=40,
+                   marker="s", edgecolors="black", linewidths=0.6, zorder=3)
+    for k in metal.solution.injection_nodes:
+        x, y, _ = metal.network.nodes[k]
+        ax.plot(x, y, marker="*", ms=14, color="#d62728", mec="black", zorder=4)
+    pts = np.vstack([seg.start[:, :2], seg.end[:, :2]])
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    pad = 0.05 * max(hi - lo) + 0.5
+    ax.set_xlim(lo[0] - pad, hi[0] + pad)
+    ax.set_ylim(lo[1] - pad, hi[1] + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel("x (m)")
+    ax.set_ylabel("y (m)")
+    cb = fig.colorbar(lc, ax=ax, shrink=0.85)
+    cb.set_label("|metal potential| (% of the injection point's)")
+    ax.set_title(f"Potential of the metal (star: injection, GPR {r.ground_potential_rise:,.0f} V; squares: rod tops)",
+                 fontsize=9)
+    fig.tight_layout()
+    return Rendered("metal_potential", "Metal potential", fig, float(percent.min()))
+
+
 def all_figures(r: StudyResult) -> list[Rendered]:
     """Every figure of a study, in report order."""
     figs = [plan_figure(r), potential_figure(r), touch_figure(r), step_figure(r), profile_figure(r), leakage_figure(r)]
+    m = metal_potential_figure(r)
+    figs += [m] if m is not None else []
     u = uncertainty_figure(r)
     return figs + ([u] if u is not None else [])
 

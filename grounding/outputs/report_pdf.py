@@ -8,6 +8,8 @@ byte-for-byte reproducible.
 
 from __future__ import annotations
 
+import cmath
+
 import datetime as _dt
 import io
 import math
@@ -207,6 +209,34 @@ def _electrode_rows(c) -> list[list[str]]:
     return rows
 
 
+def _grid_rows(r, err_text: str, st) -> list:
+    """Rg and GPR (equipotential), or |Zg|, the injection point's GPR and the metal potential (conductor
+    impedance); and the potential-drop screening."""
+    metal = r.solution.metal
+    if metal is None:
+        rows = [["Grid resistance Rg", f"{r.grid_resistance:.4f} Ω", err_text],
+                ["Ground potential rise", _v(r.ground_potential_rise), "GPR = IG · Rg"]]
+    else:
+        z = metal.solution.impedance
+        lo, _ = metal.fraction(0)
+        x, y, zz = metal.network.nodes[metal.solution.injection_nodes[0]]
+        rows = [["Grid impedance |Zg|", f"{abs(z):.4f} Ω",
+                 Paragraph(f"angle {math.degrees(cmath.phase(z)):.1f}° at the injection point ({x:.1f}, {y:.1f}, "
+                           f"{zz:.2f}) m; {err_text}", st["small"])],
+                ["GPR at injection", _v(r.ground_potential_rise), "IG · |Zg|"],
+                ["Metal potential", f"{100 * lo:.1f} … 100 %",
+                 Paragraph("of the injection point's over the energised metal: series impedance modelled "
+                           "(resistance, skin effect, Neumann partial inductances); touch = |V_metal − V_surface| "
+                           "with the nearest metal's potential", st["small"])]]
+    drop = r.metal_drop
+    if drop is not None and drop.estimated:
+        value = "not estimated" if drop.fraction is None else f"{100 * drop.fraction:.1f} % of GPR"
+        flag = "" if drop.fraction is None else ("MAY MATTER (over 2 %): model the conductor impedance. "
+                                                 if drop.fraction > 0.02 else "under 2 %: the equipotential model holds. ")
+        rows.append(["Metal potential drop", value, Paragraph(flag + drop.note, st["small"])])
+    return rows
+
+
 def _touch_area_text(surface) -> str:
     if not surface.touch_areas:
         return f"grid meshes plus {surface.touch_reach:g} m around every conductor and rod of the main system"
@@ -288,7 +318,11 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         canvas.setFillColor(ACCENT)
         canvas.drawString(18 * mm, h - 12 * mm, "EARTHING GRID STUDY · REVIEW COPY")
         canvas.setFont(st["reg"], 8)
-        canvas.drawRightString(w - 18 * mm, h - 12 * mm, f"{c.title[:70]} · page {doc.page}")
+        left = canvas.stringWidth("EARTHING GRID STUDY · REVIEW COPY", st["bold"], 8) + 6 * mm
+        title, tail = c.title, f" · page {doc.page}"
+        while title and canvas.stringWidth(title + tail, st["reg"], 8) > w - 36 * mm - left:
+            title = title[:-2].rstrip() + "…"                 # shortened to leave the left label clear
+        canvas.drawRightString(w - 18 * mm, h - 12 * mm, title + tail)
         canvas.setStrokeColor(WARN)
         canvas.setLineWidth(0.8)
         canvas.line(18 * mm, 17 * mm, w - 18 * mm, 17 * mm)
@@ -394,13 +428,19 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     xr = "not given (Df = 1)" if f.x_over_r is None else f"{f.x_over_r:g}"
     fault_rows = [["Quantity", "Value", "Note"],
                   ["Fault current 3I0", f"{f.current / 1000:.3f} kA", "symmetrical rms"],
-                  ["Split factor Sf", f"{f.split_factor:g}", "share into the soil through this grid"],
+                  ["Split factor Sf", f"{f.split_factor:.4g}", "share into the soil through this grid"],
                   ["X/R", xr, f"at {f.frequency:g} Hz"],
                   ["Clearing time tf", f"{f.clearing_time:g} s", "decrement factor, conductor heating"],
                   ["Decrement factor Df", f"{r.decrement_factor:.4f}", "√(1 + (Ta/tf)(1 − e^(−2tf/Ta))), Ta = (X/R)/(2πf)"],
                   ["Grid current IG", f"{r.grid_current / 1000:.3f} kA", "IG = Df · Sf · 3I0"]]
+    if f.is_dc:
+        fault_rows[3] = ["X/R", "—", "DC study (frequency 0): resistances only, Df = 1"]
     if f.split_basis:
         fault_rows.append(["Basis", "", Paragraph(f.split_basis, st["small"])])
+    if r.current_division is not None:
+        for p in r.current_division.paths:
+            fault_rows.append([Paragraph(f"Path: {p.name}", st["small"]), f"{abs(p.current) * f.current / 1000:.3f} kA",
+                               f"{p.kind}; |Z| = {abs(p.impedance):.3g} Ω, share of 3I0 {abs(p.current):.3f}"])
     story.append(_table(fault_rows, [40 * mm, 30 * mm, 100 * mm], st))
     story.append(P("1.3  Criteria and discretisation", "h2"))
     el = c.electrodes
@@ -435,6 +475,8 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
     story += [P("2.1  Electrode coordinates (m)", "h2"), _table(_electrode_rows(c), [42 * mm, 104 * mm, 24 * mm], st,
                                                               font_small=True), Spacer(1, 3 * mm),
               image("leakage", 150 * mm)]
+    if "metal_potential" in figs:
+        story += [P("2.2  Potential of the metal (conductor impedance)", "h2"), image("metal_potential", 150 * mm)]
     if c.probes:
         rows = [["Probe", "x m", "y m", "Surface potential", "Touch voltage"]]
         for k, ((x, y), v, t) in enumerate(zip(c.probes, s.probe_potential, r.probe_touch_voltages()), start=1):
@@ -447,8 +489,7 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
                 f"({err.coarse_resistance:.4f} Ω)") if err.relative is not None else err.note
     story += [PageBreak(), P("3  Results", "h1"), P("3.1  Grid", "h2"),
               _table([["Quantity", "Value", "Note"],
-                      ["Grid resistance Rg", f"{r.grid_resistance:.4f} Ω", err_text],
-                      ["Ground potential rise", _v(r.ground_potential_rise), "GPR = IG · Rg"],
+                      *_grid_rows(r, err_text, st),
                       ["Solve residual", f"{r.solution.relative_residual:.1e}", "‖R i − v‖ / ‖v‖; " + solver_text(r).rsplit(", relative residual", 1)[0]]],
                      [40 * mm, 30 * mm, 100 * mm], st),
               P("3.2  Touch, step and mesh voltages", "h2"),

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import cmath
+import math
+
 import json
 import math
 
@@ -166,7 +169,43 @@ def _summary(r: StudyResult) -> dict:
         "segments": len(r.segments),
         "electrode_length_m": _num(r.segments.total_length),
     }
+    summary.update(_impedance_summary(r))
     return summary
+
+
+def _impedance_summary(r: StudyResult) -> dict:
+    """Grid impedance, injection-point GPR and metal-potential spread (conductors with impedance), or the
+    screening estimate of the spread (equipotential studies)."""
+    metal = r.solution.metal
+    drop = r.metal_drop
+    out = {"conductor_impedance": metal is not None}
+    if metal is not None:
+        z = metal.solution.impedance
+        lo, hi = metal.fraction(0)
+        out.update({"grid_impedance_ohm": {"magnitude": _num(abs(z)), "angle_deg": _num(math.degrees(cmath.phase(z)))},
+                    "injection_gpr_v": _num(r.ground_potential_rise),
+                    "metal_potential_fraction": {"min": _num(lo), "max": _num(hi)}})
+    if drop is not None:
+        out["metal_potential_drop"] = {"fraction_of_gpr": _num(drop.fraction), "least_fraction": _num(drop.low),
+                                       "feed_point": None if drop.feed is None else [_num(v) for v in drop.feed],
+                                       "estimated": drop.estimated, "note": drop.note}
+    return out
+
+
+def _fault_split(r: StudyResult) -> dict | None:
+    """Sf and the current of every path when the split factor came from the lines and cables."""
+    d = r.current_division
+    if d is None:
+        return None
+    fault_current = r.case.fault.current
+    return {"split_factor": _num(d.split_factor), "grid_current_a": _num(abs(d.grid) * fault_current),
+            "method": "current division for shield wires of long lines (Endrenyi 1963; IEEE Std 80 annex on current "
+                      "division)",
+            "paths": [{"name": p.name, "kind": p.kind, "current_a": _num(abs(p.current) * fault_current),
+                       "impedance_ohm": {"magnitude": _num(abs(p.impedance)),
+                                         "angle_deg": _num(math.degrees(cmath.phase(p.impedance)))}}
+                      for p in d.paths],
+            "basis": d.basis}
 
 
 def results_dict(r: StudyResult) -> dict:
@@ -208,6 +247,7 @@ def results_dict(r: StudyResult) -> dict:
                        "scenario_s": _num(x.timings.get("scenario_s"), 4)} for x in r.scenarios],
         "uncertainty": _uncertainty(r),
         "separate_electrodes": _separate(r),
+        "fault_split": _fault_split(r),
         "contours": _contours(r),
         "probes": probes,
         "simplified": simplified,

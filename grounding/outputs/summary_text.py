@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import cmath
 import math
 import textwrap
 
@@ -32,6 +33,9 @@ def solver_text(r: StudyResult) -> str:
         return (f"{len(r.segments):,} segments, compressed operator ({info.get('operator_mb', 0):,.0f} MB) and "
                 f"conjugate gradients, {info.get('iterations')} iterations, relative residual "
                 f"{r.solution.relative_residual:.1e}")
+    if info.get("network"):
+        return (f"{len(r.segments):,} segments, coupled metal–soil solve (dense; power balance "
+                f"{info.get('power_balance', 0.0):.0e}), relative residual {r.solution.relative_residual:.1e}")
     return f"{len(r.segments):,} segments, dense Cholesky solve, relative residual {r.solution.relative_residual:.1e}"
 
 
@@ -309,7 +313,7 @@ def study_summary(r: StudyResult, units: str = "si") -> str:
                         ", ".join(f"{e.name} ({e.connection})" for e in c.separate_electrodes)))
     xr = "none (Df = 1)" if f.x_over_r is None else f"{f.x_over_r:g}"
     out.append(_row("Fault current 3I0", f"{f.current / 1000:.2f} kA",
-                    f"Sf = {f.split_factor:g}, X/R = {xr}, {f.frequency:g} Hz"))
+                    f"Sf = {f.split_factor:.3g}, X/R = {xr}, " + ("DC" if f.is_dc else f"{f.frequency:g} Hz")))
     if f.split_basis:
         out.extend(textwrap.wrap(f.split_basis, WIDTH - 4, initial_indent="    ", subsequent_indent="    "))
     out.append(_row("Durations", f"tf = {f.clearing_time:g} s", f"ts = {f.shock_duration:g} s (body current)"))
@@ -326,10 +330,34 @@ def study_summary(r: StudyResult, units: str = "si") -> str:
     out.append(_heading("Grid"))
     err = r.discretization_error
     note = f"± {err.relative * 100:.2f} % discretisation (est.)" if err.relative is not None else err.note
-    out.append(_row("Grid resistance Rg", f"{r.grid_resistance:.4f} Ω", note))
+    metal = r.solution.metal
+    if metal is None:
+        out.append(_row("Grid resistance Rg", f"{r.grid_resistance:.4f} Ω", note))
+    else:
+        z = metal.solution.impedance
+        out.append(_row("Grid impedance |Zg|", f"{abs(z):.4f} Ω",
+                        f"angle {math.degrees(cmath.phase(z)):.1f}°, at the injection point; {note}"))
     out.append(_row("Decrement factor Df", f"{r.decrement_factor:.3f}"))
     out.append(_row("Grid current IG", f"{r.grid_current / 1000:.3f} kA", "= Df · Sf · 3I0"))
-    out.append(_row("Ground potential rise", _volts(r.ground_potential_rise), "GPR = IG · Rg"))
+    if metal is None:
+        out.append(_row("Ground potential rise", _volts(r.ground_potential_rise), "GPR = IG · Rg"))
+    else:
+        lo, _ = metal.fraction(0)
+        out.append(_row("GPR at injection point", _volts(r.ground_potential_rise), "= IG · |Zg|"))
+        out.append(_row("Metal potential", f"{100 * lo:.1f} … 100 %",
+                        "of the injection point's, over the energised metal (conductor impedance modelled)"))
+    drop = r.metal_drop
+    if drop is not None and drop.estimated:
+        if drop.fraction is None:
+            out.append(_row("Metal potential drop", "not estimated", drop.note))
+        else:
+            flag = "MAY MATTER: > 2 % of GPR" if drop.fraction > 0.02 else "under 2 % of GPR"
+            out.append(_row("Metal potential drop", f"{100 * drop.fraction:.1f} % (est.)",
+                            f"{flag}; equipotential model"))
+    if r.current_division is not None:
+        for p in r.current_division.paths:
+            out.append(_row(f"  path {p.name}"[:26], f"{abs(p.current) * r.case.fault.current / 1000:.3f} kA",
+                            f"{p.kind}, |Z| {abs(p.impedance):.3g} Ω"))
 
     if r.convergence is not None:
         cv = r.convergence
