@@ -86,12 +86,14 @@ def main(verbose):
 @click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write the surface map as CSV.")
 @click.option("--dxf", "dxf_file", type=click.Path(dir_okay=False),
               help="Also write a DXF drawing (electrodes, zones, contours, touch-limit line, worst points; metres).")
+@click.option("--html", "html_file", type=click.Path(dir_okay=False),
+              help="Also write an interactive view (one self-contained HTML file: maps, hover values, verdicts).")
 @click.option("--units", type=click.Choice(["si", "us"]), default="si", show_default=True,
               help="us: also print conductor areas in kcmil.")
 @click.option("--converge", is_flag=True,
               help="Halve the segments and the map spacing until the worst voltages change by less than 1 %.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
-def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, units, converge, quiet):
+def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html_file, units, converge, quiet):
     """Run a study of CASE (YAML) and print the summary."""
     from .outputs.summary_text import study_summary
     from .study import converge_study, run_study
@@ -106,7 +108,8 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, unit
         from .uncertainty import propagate_soil_uncertainty
         result = _replace(result, uncertainty=propagate_soil_uncertainty(result, bar))
         bar.close()
-        written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file)
+        written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file,
+                                 html_file)
     except GroundingError as exc:
         bar.close()
         _fail(exc)
@@ -115,11 +118,15 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, unit
         click.echo(f"Written: {path}")
 
 
-def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=(), dxf_file=None) -> list[str]:
+def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=(), dxf_file=None,
+                   html_file=None) -> list[str]:
     """Build every requested output in memory first, then write each atomically."""
     from pathlib import Path
 
     files: list[tuple[str, bytes]] = []
+    if html_file:
+        from .outputs.html_view import study_html
+        files.append((html_file, study_html(result)))
     if json_file:
         from .outputs.results_json import results_json
         files.append((json_file, results_json(result)))
@@ -243,8 +250,10 @@ def _table_files(options, best, reason, by, json_file, csv_file, extra=None):
 @click.option("--json", "json_file", type=click.Path(dir_okay=False), help="Also write the comparison as JSON.")
 @click.option("--csv", "csv_file", type=click.Path(dir_okay=False), help="Also write one CSV row per option.")
 @click.option("--report", "report_file", type=click.Path(dir_okay=False), help="Also write a comparison report (PDF).")
+@click.option("--html", "html_file", type=click.Path(dir_okay=False),
+              help="Also write the options side by side as one interactive, self-contained HTML file.")
 @_parallel_options
-def compare(case_files, by, json_file, csv_file, report_file, quiet, workers, cluster):
+def compare(case_files, by, json_file, csv_file, report_file, html_file, quiet, workers, cluster):
     """Compare layout options side by side: one column per CASE."""
     from .outputs.options_outputs import compare_table, comparison_report
     from .outputs.summary_text import caution_box
@@ -255,6 +264,9 @@ def compare(case_files, by, json_file, csv_file, report_file, quiet, workers, cl
         files = _table_files(options, best, reason, by, json_file, csv_file)
         if report_file:
             files.append((report_file, comparison_report(options, best, reason)))
+        if html_file:
+            from .outputs.html_view import compare_html
+            files.append((html_file, compare_html([o.result for o in options], [o.label for o in options])))
         _write_all(files, list(case_files) + _inputs_of(*cases))
     except GroundingError as exc:
         _fail(exc)
