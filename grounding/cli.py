@@ -102,6 +102,7 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html
     written = []
     try:
         case = load_case(case_file)
+        _check_outputs_early((json_file, report_file, csv_file, dxf_file, html_file), _inputs_of(case))
         result = converge_study(case, progress=bar)[0] if converge else run_study(case, progress=bar)
         from dataclasses import replace as _replace
 
@@ -260,6 +261,7 @@ def compare(case_files, by, json_file, csv_file, report_file, html_file, quiet, 
 
     try:
         cases = [load_case(f) for f in case_files]
+        _check_outputs_early((json_file, csv_file, report_file, html_file), list(case_files) + _inputs_of(*cases))
         options, best, reason = _study_options(cases, [c.title for c in cases], by, quiet, workers, cluster)
         files = _table_files(options, best, reason, by, json_file, csv_file)
         if report_file:
@@ -404,6 +406,19 @@ def _guard_outputs(paths, inputs) -> None:
             if same(out, Path(q)):
                 raise GroundingError(f"{p}: this path is given for two outputs; give each output its own file")
         seen.append(p)
+
+
+def _check_outputs_early(paths, inputs) -> None:
+    """Before any work: refuse outputs onto inputs or twice given, and outputs into missing folders, so that a
+    long study is not run only to be refused at the end."""
+    from pathlib import Path
+
+    paths = [p for p in paths if p]
+    _guard_outputs(paths, inputs)
+    for p in paths:
+        folder = Path(p).parent if str(Path(p).parent) else Path(".")
+        if not folder.is_dir():
+            raise GroundingError(f"{p}: folder '{folder}' does not exist; create it or choose another path")
 
 
 def _write_all(files, inputs=()) -> None:

@@ -482,8 +482,10 @@ def _strip_keys(part):
     return part
 
 
-def solve_geometry(case: Case, progress: Progress | None = None, estimate_error: bool = True) -> UnitStudy:
-    """Solve the electrodes at 1 V and map the surface; see :class:`UnitStudy`."""
+def solve_geometry(case: Case, progress: Progress | None = None, estimate_error: bool = True,
+                   screen_drop: bool = True) -> UnitStudy:
+    """Solve the electrodes at 1 V and map the surface; see :class:`UnitStudy`. ``screen_drop``: also screen
+    the potential drop along the metal of an equipotential study (:func:`estimate_metal_drop`)."""
     segments, kernel, solution, timings = _solve(case, progress)
     t0 = time.perf_counter()
     surface = surface_fields(segments, solution.currents_per_volt, 1.0, kernel, case.surface, case.probes,
@@ -492,7 +494,7 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
                              main_metal=solution.metal.main_metal if solution.metal is not None else None)
     timings["surface_s"] = time.perf_counter() - t0
     t0 = time.perf_counter()
-    drop = metal_drop(case, segments, solution)
+    drop = metal_drop(case, segments, solution) if (screen_drop or solution.metal is not None) else None
     timings["metal_drop_s"] = time.perf_counter() - t0
     if estimate_error:
         error, surface = estimate_discretization_error(case, solution, len(segments), surface)
@@ -502,7 +504,7 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
 
 
 def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True,
-              unit: UnitStudy | None = None) -> StudyResult:
+              unit: UnitStudy | None = None, screen_drop: bool = True) -> StudyResult:
     """Run a whole study: the case as written and every scenario of it.
 
     With scenarios, the result is the case as written with ``scenarios`` holding every scenario's result
@@ -521,6 +523,9 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
         Also solve at twice the segment length to estimate the discretisation error of Rg.
     unit : UnitStudy, optional
         A solution of the same geometry (``geometry_key`` equal) to re-use instead of solving again.
+    screen_drop : bool
+        Screen the potential drop along the metal (equipotential studies); off for the repeated solves of
+        the soil-uncertainty propagation, which need only the voltages.
 
     Returns
     -------
@@ -528,14 +533,14 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
     """
     units = {} if unit is None else {geometry_key(case): unit}
     t0 = time.perf_counter()
-    base = _run_condition(case, progress, estimate_error, units)
+    base = _run_condition(case, progress, estimate_error, units, screen_drop)
     if not case.scenarios:
         return base
     results = [replace(base, scenario=case.base_scenario, timings={**base.timings,
                                                                     "scenario_s": time.perf_counter() - t0})]
     for sc in case.scenarios:
         t0 = time.perf_counter()
-        r = _run_condition(sc.case, progress, estimate_error, units)
+        r = _run_condition(sc.case, progress, estimate_error, units, screen_drop)
         results.append(replace(r, scenario=sc.name, timings={**r.timings, "scenario_s": time.perf_counter() - t0}))
     return combine_scenarios(results)
 
@@ -599,7 +604,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
     studied with its discretisation-error estimate.
     """
     h, res = case.discretization.max_segment, case.surface.resolution
-    current = run_study(case, estimate_error=False)
+    current = run_study(case, estimate_error=False, screen_drop=False)
     rounds = [_round(current)]
     note, converged = "", False
     while len(rounds) < max_rounds:
@@ -612,7 +617,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
             note = f"stopped before round {len(rounds) + 1}: {exc}"
             break
         h, res = h / 2, res / 2
-        current = run_study(trial, estimate_error=False)
+        current = run_study(trial, estimate_error=False, screen_drop=False)
         rounds.append(_round(current))
         if _change(rounds[-2], rounds[-1]) < tolerance:
             converged = True
@@ -639,11 +644,11 @@ def combine_scenarios(results: list[StudyResult]) -> StudyResult:
                    mesh_check=worst("mesh_check"), scenarios=tuple(results))
 
 
-def _run_condition(case: Case, progress, estimate_error: bool, units: dict) -> StudyResult:
+def _run_condition(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool = True) -> StudyResult:
     """One condition: solve (or re-use the solve of an equal geometry) and judge."""
     key = geometry_key(case)
     if key not in units:
-        units[key] = solve_geometry(case, progress, estimate_error)
+        units[key] = solve_geometry(case, progress, estimate_error, screen_drop)
     unit = units[key]
     segments, solution = unit.segments, unit.solution
     fault = case.fault
@@ -753,5 +758,14 @@ def _separate_current(e, g: int, segments: Segments, solution: Solution, grid_cu
     scale = grid_current * solution.resistance
     if e.connection == "bonded":
         mask = segments.conductors.matching((e.key,))[segments.conductor]
-        return float(np.abs(solution.currents_per_volt[mask].sum()) * scale)
-    return float(np.abs(solution.group_current[g]) * scale)
+        return _signed(solution.currents_per_volt[mask].sum(), solution) * scale
+    return _signed(solution.group_current[g], solution) * scale
+
+
+def _signed(value, solution: Solution) -> float:
+    """A real net current as it is; a phasor as its magnitude, negative when it flows against the main
+    system's current (more than 90° out of phase with it)."""
+    if not np.iscomplexobj(value):
+        return float(value)
+    main = solution.group_current[0]
+    return float(np.abs(value) * (1.0 if np.real(value * np.conj(main)) >= 0 else -1.0))

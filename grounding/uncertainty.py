@@ -154,7 +154,7 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
     for j in range(len(x0)):
         x = x0.copy()
         x[j] += LOG_STEP
-        r = run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False)
+        r = run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False, screen_drop=False)
         v = _values(r)
         for k in base:
             if base[k] is None or v[k] is None or base[k] <= 0 or v[k] <= 0:
@@ -193,6 +193,6 @@ def sample_worst(case: Case, samples: int, seed: int = 0) -> dict[str, np.ndarra
     _, x0 = soil_parameters(case.soil)
     rng = np.random.default_rng(seed)
     draws = rng.multivariate_normal(x0, cov, size=samples)
-    rows = [_values(run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False))
+    rows = [_values(run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False, screen_drop=False))
             for x in draws]
     return {k: np.array([np.nan if r[k] is None else r[k] for r in rows]) for k in rows[0]}

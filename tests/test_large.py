@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import pytest
 
 from grounding.assembly import AssemblyOptions, assemble
@@ -22,20 +24,34 @@ discretization: {max_segment: 1.0}
 """
 
 
-def test_a_16400_segment_case_factorises():
+def _faulty_kernels() -> bool:
+    """Whether OpenBLAS runs the AVX-512 kernels whose threaded factorisation crashed (solve.FAULTY_KERNELS)."""
+    from threadpoolctl import threadpool_info
+
+    from grounding.solve import FAULTY_KERNELS
+    return any(str(d.get("architecture", "")).lower() in FAULTY_KERNELS
+               for d in threadpool_info() if d.get("internal_api") == "openblas")
+
+
+def test_a_16400_segment_case_solves():
     """Regression: this case ended in a segmentation fault inside the Cholesky factorisation with OpenBLAS's
-    SkylakeX kernels on 2 threads (exit 139, nothing written). About 45 s and 4.3 GB."""
+    SkylakeX kernels on 2 threads (exit 139, nothing written). The dense factorisation (4.3 GB; 45 s on
+    those kernels, where the one-thread guard applies, 137 s on a slower machine's Haswell kernels) runs
+    where the guard matters; everywhere the compressed operator with conjugate gradients (what ``auto``
+    uses at this size) solves the same case, and where both run they agree to 1e-4."""
     case = parse_case(BIG)
     s = segment(case)
     assert len(s) == 16_400
     kernel = make_kernel(case.soil, 1.0)
-    sol = solve_equipotential(assemble(s, kernel, AssemblyOptions()))
+    it = solve_iterative(compressed_operator(s, kernel))
     # Sverak's equation (IEEE Std 80) for this grid: ρ[1/L + 1/√(20A)(1 + 1/(1 + h√(20/A)))] = 0.2285 Ω;
     # the numerical value lies a few % below it, as on the IEEE Std 80 example grid
+    assert 0.20 < it.resistance < 0.2285
+    if not (_faulty_kernels() or os.environ.get("GROUNDING_LARGE_DENSE")):
+        return          # the dense half guards the AVX-512 crash; GROUNDING_LARGE_DENSE=1 runs it anyway
+    sol = solve_equipotential(assemble(s, kernel, AssemblyOptions()))
     assert 0.20 < sol.resistance < 0.2285
     assert sol.relative_residual < 1e-10
-    # the compressed operator with conjugate gradients (what ``auto`` uses at this size) agrees with it
-    it = solve_iterative(compressed_operator(s, kernel))
     assert abs(it.resistance - sol.resistance) < 1e-4 * sol.resistance
 
 

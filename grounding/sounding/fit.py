@@ -148,14 +148,28 @@ def _solve(readings: Readings, n: int, loss: str, scale: float, starts) -> "leas
         return np.log(forward(readings, rho, h)) - obs
 
     lo, hi = _bounds(n, readings)
+
+    def run(x0, evaluations):
+        x0 = np.clip(x0, lo + 1e-9, hi - 1e-9)
+        return least_squares(residual, x0, bounds=(lo, hi), loss=loss, f_scale=scale, x_scale=1.0,
+                             xtol=1e-10, ftol=1e-12, max_nfev=evaluations)
+
+    if len(starts) > KEEP_STARTS:
+        # many starts: a short run from each, then the most promising few to convergence (degenerate models,
+        # e.g. three layers fitted to uniform soil, otherwise spend the full budget from every start)
+        screened = sorted((run(x0, SCREEN_EVALUATIONS) for x0 in starts), key=lambda r: r.cost)
+        starts = [r.x for r in screened[:KEEP_STARTS]]
     best = None
     for x0 in starts:
-        x0 = np.clip(x0, lo + 1e-9, hi - 1e-9)
-        res = least_squares(residual, x0, bounds=(lo, hi), loss=loss, f_scale=scale, x_scale=1.0,
-                            xtol=1e-10, ftol=1e-12, max_nfev=400)
+        res = run(x0, 400)
         if best is None or res.cost < best.cost:
             best = res
     return best
+
+
+#: Multi-start fits: every start runs SCREEN_EVALUATIONS residual evaluations, the KEEP_STARTS best go on.
+SCREEN_EVALUATIONS = 40
+KEEP_STARTS = 4
 
 
 def _model(readings: Readings, n: int, res, noise: float) -> FittedModel:
