@@ -295,3 +295,31 @@ def test_screening_estimate_flags_a_long_steel_lead(tmp_path):
                                                                                "conductor_impedance: false"))
     drop = estimate_metal_drop(case)
     assert drop.estimated and drop.fraction > 0.3
+
+
+# ---- property: Rayleigh's monotonicity law ----------------------------------------------------------------
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+
+@settings(max_examples=10, deadline=None, derandomize=True)
+@given(nx=st.integers(1, 3), ny=st.integers(1, 3), lx=st.floats(4.0, 40.0), ly=st.floats(4.0, 40.0),
+       material=st.sampled_from(["steel-1020", "copper-annealed", "stainless-304"]),
+       corner=st.booleans(), rho=st.floats(20.0, 2000.0))
+def test_dc_series_resistance_never_lowers_the_input_resistance(nx, ny, lx, ly, material, corner, rho):
+    # Rayleigh's monotonicity law (resistive networks; e.g. Doyle & Snell, "Random Walks and Electric
+    # Networks", ch. 1.4): raising any resistance cannot lower the driving-point resistance. At DC the
+    # coupled model adds series resistances to the equipotential one (their limit zero), so its input
+    # resistance is at least the equipotential Rg, and the metal potential nowhere exceeds the feed's.
+    feed = "[0, 0, 0.5]" if corner else f"[{lx / 2:.6f}, 0, 0.5]"
+    text = (f"format: 1\nsoil: {{resistivity: {rho:.6g}}}\nfault: {{current: 1000, frequency: 0, clearing_time: 0.5, "
+            f"injection: {feed}}}\nelectrodes:\n  material: {material}\n  conductor_impedance: true\n"
+            f"  grids: [{{origin: [0, 0], size: [{lx:.6f}, {ly:.6f}], meshes: [{nx}, {ny}], depth: 0.5, "
+            f"diameter: 0.01}}]\ndiscretization: {{max_segment: 2.0}}\n")
+    from grounding.case_loader import parse_case
+    case = parse_case(text)
+    _, _, coupled, _ = _solve(case)
+    _, _, eq, _ = _solve(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))
+    assert coupled.resistance >= eq.resistance * (1 - 1e-9)
+    lo, hi = coupled.metal.fraction(0)
+    assert hi == pytest.approx(1.0, abs=1e-9) and 0 < lo <= 1.0
+    assert abs(np.angle(coupled.metal.solution.impedance)) < 1e-9          # DC: a pure resistance

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import pytest
 
 from grounding.case_loader import parse_case
@@ -167,3 +169,24 @@ def test_refusals_are_one_line_unless_verbose(tmp_path):
     lines = verbose.stderr.strip().splitlines()
     assert lines[0] == plain.stderr.strip() and len(lines) == 4
     assert lines[-1].lstrip().startswith(">") and "length: -3" in lines[-1]
+
+
+def test_report_plan_is_a_vector_drawing_at_its_stated_scale():
+    """The plan in the report is drawn at a standard scale 1:n: a 60 m grid side is 60 000 / n mm on paper."""
+    from reportlab.graphics.shapes import Line
+    from reportlab.lib.units import mm
+
+    from grounding import load_case, run_study
+    from grounding.outputs.plan_vector import SCALES, plan_drawing
+
+    root = Path(__file__).resolve().parents[1]
+    case = load_case(root / "cases" / "kestrel-bend-uniform.yaml")
+    from dataclasses import replace
+    r = run_study(replace(case, discretization=replace(case.discretization, max_segment=4.0),
+                          surface=replace(case.surface, resolution=3.0)), estimate_error=False, screen_drop=False)
+    drawing, n = plan_drawing(r, 165 * mm, 185 * mm)
+    assert n in SCALES and drawing.width <= 165 * mm
+    lines = [x for x in drawing.contents if isinstance(x, Line) and abs(x.y1 - x.y2) < 1e-9 and x.strokeWidth == 1.0]
+    longest = max(abs(x.x2 - x.x1) for x in lines)
+    assert longest == pytest.approx(60.0 * 1000 / n * mm, rel=1e-9)      # the grid's 60 m side
+    assert n == 500                                                       # 68 m of metal fit 165 mm at 1:500

@@ -16,6 +16,7 @@ import math
 from pathlib import Path
 
 import matplotlib
+import numpy as np
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4
@@ -31,6 +32,7 @@ from ..cautions import CAUTIONS
 from ..study import StudyResult
 from ..validation import validation_checks
 from .figures import all_figures, png_bytes
+from .plan_vector import plan_drawing
 from .summary_text import UNCERTAINTY_LABELS, covering_text, soil_text, solver_text
 
 INK = colors.HexColor("#1c2833")
@@ -469,8 +471,14 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         wi, hi = fig.get_size_inches()
         return Image(io.BytesIO(png_bytes(fig)), width=width, height=width * hi / wi)
 
-    story += [PageBreak(), P("2  Electrode plan", "h1"), image("plan"),
-              P("To scale; +y is taken as north. Rods are dots, probes triangles (P1, P2, …)."),
+    drawing, scale = plan_drawing(r, 165 * mm, 185 * mm)
+    pts = np.vstack([r.segments.start[:, :2], r.segments.end[:, :2]])
+    ext = pts.max(axis=0) - pts.min(axis=0)
+    story += [PageBreak(), P("2  Electrode plan", "h1"), drawing,
+              P(f"Vector drawing at scale 1:{scale:,} when printed at 100 % on A4 (1 m = {1000 / scale:g} mm); "
+                f"electrodes {ext[0]:.1f} m × {ext[1]:.1f} m; +y is taken as north. Buried conductors solid blue, "
+                "rods dots; separate electrodes dashed (floating orange, tied to remote earth purple, bonded green "
+                "dotted), their rods squares; surface zones grey dashed; probes triangles (P1, P2, …)."),
               Spacer(1, 3 * mm)]
     story += [P("2.1  Electrode coordinates (m)", "h2"), _table(_electrode_rows(c), [42 * mm, 104 * mm, 24 * mm], st,
                                                               font_small=True), Spacer(1, 3 * mm),
