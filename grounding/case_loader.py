@@ -108,9 +108,6 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         notes = list(soil_fit.readings.notes) if soil_fit else []
         if electrodes.drawing is not None:
             notes.append(electrodes.drawing[2])
-        if electrodes.conductor_impedance and discretization.solver == "iterative":
-            notes.append("discretization.solver: iterative is not used with electrodes.conductor_impedance: the coupled "
-                         "metal–soil solve is dense (up to 3 000 segments)")
         if electrodes.conductor_impedance and not fault.injection:
             raise self.doc.fail("electrodes.conductor_impedance", "needs fault.injection: the point [x, y, z] in m "
                                 "where the fault current enters the metal (e.g. the transformer neutral's bond)")

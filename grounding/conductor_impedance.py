@@ -171,3 +171,49 @@ def series_impedance(case: Case, segments: Segments, inductance: bool = True) ->
     M = partial_inductances(segments) if (inductance and f > 0) else None
     t = 20.0 if case.electrodes.conductor_temperature is None else case.electrodes.conductor_temperature
     return SeriesImpedance(rho * L / area, internal, M, f, t)
+
+
+class CompressedInductance:
+    """Neumann partial inductances of many segments as an operator: M x = μ0/(4π) Σ_k W_k G (W_k x) + C x,
+    G the hierarchical matrix of 1/r between segment midpoints (:func:`grounding.hmatrix.build_hmatrix`),
+    W_k = diag(l u_k) the segments' length-weighted direction cosines, and C the sparse correction of the
+    pairs nearer than EXACT_REACH segment lengths (exact double integral minus the midpoint value) and of the
+    self terms. The same rule as :func:`partial_inductances`, with the far field interpolated."""
+
+    def __init__(self, segments: Segments):
+        from .hmatrix import build_hmatrix
+
+        a, b = segments.start, segments.end
+        L = segments.length
+        u = (b - a) / L[:, None]
+        mid = segments.midpoint
+        self.weights = u * L[:, None]                                   # (N, 3)
+        self.G = build_hmatrix(lambda r, z, zp: 1.0 / np.sqrt(r * r + (z - zp) ** 2), mid)
+        pairs = cKDTree(mid).query_pairs(EXACT_REACH * L.max(), output_type="ndarray").reshape(-1, 2)
+        dot = np.einsum("ij,ij->i", u[pairs[:, 0]], u[pairs[:, 1]])
+        keep = np.abs(dot) > 1e-12
+        i, j, dot = pairs[keep, 0], pairs[keep, 1], dot[keep]
+        radius = 0.5 * (segments.radius[i] + segments.radius[j])
+        exact = segment_pair_integral(a[i], b[i], a[j], b[j], radius)
+        midpoint = L[i] * L[j] / np.linalg.norm(mid[i] - mid[j], axis=1)
+        own = segment_pair_integral(a, b, a, b, segments.radius)
+        n = len(L)
+        rows = np.concatenate([i, j, np.arange(n)])
+        cols = np.concatenate([j, i, np.arange(n)])
+        vals = MU0 / (4 * np.pi) * np.concatenate([dot * (exact - midpoint), dot * (exact - midpoint), own])
+        import scipy.sparse as sp
+        self.correction = sp.csr_matrix((vals, (rows, cols)), shape=(n, n))
+        self.size = n
+
+    def diagonal(self) -> np.ndarray:
+        """M_ii, H."""
+        return self.correction.diagonal()
+
+    def apply(self, x: np.ndarray) -> np.ndarray:
+        """M x for a real or complex vector x (A·s → V·s/H... in H times A)."""
+        def real(v):
+            X = self.weights * v[:, None]                                # (N, 3)
+            return MU0 / (4 * np.pi) * np.einsum("ik,ik->i", self.weights, self.G.matvec(X)) + self.correction @ v
+        if np.iscomplexobj(x):
+            return real(x.real) + 1j * real(x.imag)
+        return real(x)

@@ -71,6 +71,36 @@ def _contraction(n: int, pairs: np.ndarray) -> tuple[np.ndarray, int]:
     return label, count
 
 
+def _nodal_setup(network: MetalNetwork, ideal: np.ndarray, injection, connections):
+    """Node contraction (ideal leads; energised parts not touching the injected metal bonded to the first
+    injection node), the free (not remote) nodes, A (N × m_free), D (m_free × N_real) as sparse matrices,
+    the injection vector J and the real (non-ideal) branches."""
+    n, N = network.size, len(network.ends)
+    group = network.group
+    links = [network.ends[ideal]]
+    comp = network.components()
+    first = injection[0][0]
+    for c in np.unique(comp[group == 0]):
+        if c != comp[first]:
+            links.append(np.array([[first, int(np.flatnonzero((comp == c) & (group == 0))[0])]]))
+    label, m = _contraction(n, np.vstack(links) if links else np.zeros((0, 2), int))
+    P = sp.csr_matrix((np.ones(n), (np.arange(n), label)), shape=(n, m))
+    remote = np.zeros(m, bool)
+    for g, kind in enumerate(connections):
+        if kind == "remote":
+            remote[np.unique(label[group == g])] = True
+    free = np.flatnonzero(~remote)
+    Pf = P[:, free]
+    A = (network.averaging() @ Pf).tocsr()                         # (N, m_free)
+    real = np.setdiff1d(np.arange(N), ideal)
+    D = (network.incidence()[:, real].T @ Pf).T.tocsr()          # (m_free, N_real)
+    J = np.zeros(len(free), complex)
+    where = {int(k): i for i, k in enumerate(free)}
+    for node, share in injection:
+        J[where[int(label[node])]] += share
+    return label, m, free, A, D, J, real
+
+
 def solve_network(R: np.ndarray, network: MetalNetwork, Z: np.ndarray, injection: list[tuple[int, float]],
                   connections: tuple[str, ...] = ("energised",)) -> NetworkSolution:
     """Solve the coupled metal–soil system for 1 A injected at the given nodes (see the module text).
@@ -88,31 +118,11 @@ def solve_network(R: np.ndarray, network: MetalNetwork, Z: np.ndarray, injection
     connections : tuple of str
         Per potential group: ``energised`` (0), ``floating`` or ``remote``.
     """
-    n, N = network.size, len(network.ends)
-    group = network.group
+    N = len(network.ends)
     ideal = np.flatnonzero((np.abs(Z).sum(axis=0) == 0) & (np.abs(Z).sum(axis=1) == 0))
-    links = [network.ends[ideal]]
-    # energised parts not touching the injected metal: ideal leads to the first injection node
-    comp = network.components()
+    label, m, free, A, D, J, real = _nodal_setup(network, ideal, injection, connections)
+    A, D = A.toarray(), D.toarray()
     first = injection[0][0]
-    for c in np.unique(comp[group == 0]):
-        if c != comp[first]:
-            links.append(np.array([[first, int(np.flatnonzero((comp == c) & (group == 0))[0])]]))
-    label, m = _contraction(n, np.vstack(links) if links else np.zeros((0, 2), int))
-    P = sp.csr_matrix((np.ones(n), (np.arange(n), label)), shape=(n, m))
-    remote = np.zeros(m, bool)
-    for g, kind in enumerate(connections):
-        if kind == "remote":
-            remote[np.unique(label[group == g])] = True
-    free = np.flatnonzero(~remote)
-    Pf = P[:, free]
-    A = (network.averaging() @ Pf).toarray()                      # (N, m_free)
-    real = np.setdiff1d(np.arange(N), ideal)
-    D = (network.incidence()[:, real].T @ Pf).toarray().T         # (m_free, N_real)
-    J = np.zeros(len(free), complex)
-    where = {int(k): i for i, k in enumerate(free)}
-    for node, share in injection:
-        J[where[int(label[node])]] += share
     try:
         factor = scipy.linalg.cho_factor(R, lower=True, check_finite=True)
     except (np.linalg.LinAlgError, ValueError) as exc:
@@ -188,3 +198,83 @@ class MetalState:
         tree, values = self._main_nodes
         _, k = tree.query(np.atleast_2d(np.asarray(xy, float)))
         return values[k]
+
+
+#: GMRES of the coupled block system: relative residual and most iterations (restart length 60).
+NETWORK_RTOL = 1e-7
+NETWORK_MAX_ITERATIONS = 600
+
+
+def solve_network_iterative(operator, network: MetalNetwork, internal: np.ndarray, inductance, frequency: float,
+                            injection: list[tuple[int, float]], connections: tuple[str, ...] = ("energised",),
+                            ) -> tuple[NetworkSolution, int]:
+    """The coupled solve for large systems, without dense matrices: GMRES (scipy.sparse.linalg.gmres) on the
+    block system
+
+        [ R   0   −A ] [i]   [ 0 ]
+        [ 0   Z   −Dᵀ] [I] = [ 0 ]
+        [ −Aᵀ −D   0 ] [φ]   [ −J ]
+
+    with R the compressed soil operator, Z = diag(internal) + jω M (M a :class:`CompressedInductance`),
+    preconditioned by the block diagonal (block Jacobi of R, diag Z, and the sparse Schur approximation
+    Aᵀ diag(R)⁻¹ A + D diag(Z)⁻¹ Dᵀ by sparse LU). Returns the solution and the iteration count."""
+    import scipy.sparse.linalg as spla
+
+    from .solve import block_jacobi
+
+    N = len(network.ends)
+    label, m, free, A, D, J, real = _nodal_setup(network, np.zeros(0, int), injection, connections)
+    nf = len(free)
+    omega = 2 * np.pi * frequency
+
+    def R_apply(x):
+        return operator.apply(x.real) + 1j * operator.apply(x.imag) if np.iscomplexobj(x) else operator.apply(x)
+
+    def Z_apply(x):
+        out = internal * x
+        return out + 1j * omega * inductance.apply(x) if (inductance is not None and frequency > 0) else out
+
+    def K(w):
+        i, I, phi = w[:N], w[N:2 * N], w[2 * N:]
+        return np.concatenate([R_apply(i) - A @ phi, Z_apply(I) - D.T @ phi, -(A.T @ i) - D @ I])
+
+    jacobi = block_jacobi(operator)
+    z_diag = internal + (1j * omega * inductance.diagonal() if (inductance is not None and frequency > 0) else 0.0)
+    schur = (A.T @ sp.diags(1.0 / operator.diagonal) @ A + D @ sp.diags(1.0 / z_diag) @ D.T).tocsc()
+    lu = spla.splu(schur.astype(complex))
+
+    def precondition(w):
+        i, I, phi = w[:N], w[N:2 * N], w[2 * N:]
+        pi = jacobi(i.real) + 1j * jacobi(i.imag)
+        return np.concatenate([pi, I / z_diag, -lu.solve(phi)])
+
+    size = 2 * N + nf
+    Kop = spla.LinearOperator((size, size), matvec=K, dtype=complex)
+    Mop = spla.LinearOperator((size, size), matvec=precondition, dtype=complex)
+    rhs = np.concatenate([np.zeros(2 * N, complex), -J])
+    count = [0]
+
+    def step(_):
+        count[0] += 1
+
+    w, info = spla.gmres(Kop, rhs, M=Mop, rtol=NETWORK_RTOL, atol=0.0, restart=60, maxiter=NETWORK_MAX_ITERATIONS // 60,
+                         callback=step, callback_type="pr_norm")
+    residual = float(np.linalg.norm(K(w) - rhs) / np.linalg.norm(rhs))
+    if info != 0 or not np.isfinite(residual) or residual > 10 * NETWORK_RTOL:
+        raise GroundingError(f"the iterative metal–soil solve did not converge ({count[0]} iterations, relative "
+                             f"residual {residual:.1e}); use a longer discretization.max_segment so that the dense "
+                             "solve applies (up to 3 000 segments)")
+    leakage, branch, phi_free = w[:N], w[N:2 * N], w[2 * N:]
+    phi_m = np.zeros(m, complex)
+    phi_m[free] = phi_free
+    phi = phi_m[label]
+    p_in = float(np.real(np.vdot(J, phi_free)))
+    p_metal = float(np.real(np.vdot(branch, Z_apply(branch))))
+    p_soil = float(np.real(np.vdot(leakage, R_apply(leakage))))
+    balance = abs(p_in - p_metal - p_soil) / max(abs(p_in), 1e-300)
+    if not balance < 1e-4:
+        raise GroundingError(f"the iterative metal–soil solve does not conserve power (balance {balance:.1e}); use "
+                             "a longer discretization.max_segment so that the dense solve applies")
+    first = injection[0][0]
+    return NetworkSolution(phi, leakage, branch, complex(phi[first]), tuple(int(k) for k, _ in injection),
+                           residual, balance), count[0]

@@ -29,10 +29,10 @@ from .safety.simplified import SimplifiedResult, simplified_method
 from .safety.site import (Check, CriteriaResult, SeparateResult, ZoneVerdict, governing, least_margin,
                           separate_result, zone_limits)
 from .soil import SoilKernel, make_kernel
-from .conductor_impedance import series_impedance
+from .conductor_impedance import CompressedInductance, series_impedance
 from .metal_network import MetalNetwork, metal_network
 from .solve import Solution, solve_operator
-from .solve_network import MetalState, solve_network
+from .solve_network import MetalState, solve_network, solve_network_iterative
 from .surface import (Extreme, SeparateMetal, SurfacePotential, SurfaceResult, ZoneExtremes, Zoning, contour_lines,
                       map_axes, step_at, surface_fields)
 
@@ -262,17 +262,31 @@ def _network_solve(case: Case, segments: Segments, R: np.ndarray, injection=None
 
 
 def _solve_with_impedance(case: Case, segments: Segments, kernel: SoilKernel, progress: Progress | None):
-    """Conductors with impedance: the dense matrix and the coupled metal–soil solve (see solve_network)."""
+    """Conductors with impedance: the coupled metal–soil solve (see solve_network), dense up to DENSE_LIMIT
+    segments (``auto``), else GMRES on the compressed soil and inductance operators."""
     n = len(segments)
-    if n > DENSE_LIMIT:
-        raise ModelTooLargeError(
-            f"{case.source}: electrodes.conductor_impedance with {n:,} segments: the coupled solve is dense and "
-            f"limited to {DENSE_LIMIT:,} segments in this version; use a longer discretization.max_segment "
-            f"(about {case.discretization.max_segment * n / DENSE_LIMIT:.2g} m)")
+    kind = solver_kind(case, n)
     t0 = time.perf_counter()
-    operator = dense_operator(segments, kernel, AssemblyOptions(), progress)
-    t1 = time.perf_counter()
-    metal = _network_solve(case, segments, operator.matrix)
+    iterations = None
+    try:
+        if kind == "dense":
+            operator = dense_operator(segments, kernel, AssemblyOptions(), progress)
+            t1 = time.perf_counter()
+            metal = _network_solve(case, segments, operator.matrix)
+        else:
+            operator = compressed_operator(segments, kernel, AssemblyOptions(), progress)
+            network = metal_network(segments)
+            f = case.fault.frequency
+            inductance = CompressedInductance(segments) if f > 0 else None
+            internal = series_impedance(case, segments, inductance=False).internal
+            t1 = time.perf_counter()
+            ns, iterations = solve_network_iterative(operator, network, internal, inductance, f,
+                                                     _injection_nodes(case, network), connections(case))
+            metal = MetalState(network, ns)
+    except MemoryError:
+        raise ModelTooLargeError(
+            f"{case.source}: the coupled {kind} solve of {n:,} segments ran out of memory; use a longer "
+            "discretization.max_segment or a machine with more memory") from None
     t2 = time.perf_counter()
     ns = metal.solution
     scale = 1.0 / abs(ns.impedance)
@@ -285,8 +299,9 @@ def _solve_with_impedance(case: Case, segments: Segments, kernel: SoilKernel, pr
     current = (np.bincount(seg_group, ns.leakage.real, minlength=groups) +
                1j * np.bincount(seg_group, ns.leakage.imag, minlength=groups)) * scale
     solution = Solution(ns.leakage * scale, abs(ns.impedance), ns.relative_residual, potential, current,
-                        {"kind": "dense", "network": True, "relative_residual": ns.relative_residual,
-                         "power_balance": ns.power_balance, "operator_mb": round(operator.nbytes / 1e6, 1)},
+                        {"kind": kind, "network": True, "relative_residual": ns.relative_residual,
+                         "power_balance": ns.power_balance, "operator_mb": round(operator.nbytes / 1e6, 1),
+                         **({"iterations": iterations} if iterations is not None else {})},
                         metal)
     return segments, kernel, solution, {"assemble_s": t1 - t0, "solve_s": t2 - t1}
 

@@ -323,3 +323,27 @@ def test_dc_series_resistance_never_lowers_the_input_resistance(nx, ny, lx, ly, 
     lo, hi = coupled.metal.fraction(0)
     assert hi == pytest.approx(1.0, abs=1e-9) and 0 < lo <= 1.0
     assert abs(np.angle(coupled.metal.solution.impedance)) < 1e-9          # DC: a pure resistance
+
+
+def test_iterative_coupled_solve_matches_the_dense_one(tmp_path):
+    # The large-site path (GMRES on the compressed soil operator and the hierarchical Neumann operator,
+    # block-diagonal preconditioner) against the dense coupled solve of the same case, AC and DC.
+    case = load_case(ROOT / "cases" / "kestrel-bend-steel-lead.yaml")
+    case = replace(case, discretization=replace(case.discretization, max_segment=2.0),
+                   surface=replace(case.surface, resolution=2.0))
+    dense = run_study(replace(case, discretization=replace(case.discretization, solver="dense")),
+                      estimate_error=False)
+    iterative = run_study(replace(case, discretization=replace(case.discretization, solver="iterative")),
+                          estimate_error=False)
+    assert iterative.solution.solver["kind"] == "iterative" and iterative.solution.solver["iterations"] < 100
+    zd, zi = dense.solution.metal.solution.impedance, iterative.solution.metal.solution.impedance
+    assert abs(zi - zd) < 1e-5 * abs(zd)
+    np.testing.assert_allclose(np.abs(iterative.solution.metal.node_potential),
+                               np.abs(dense.solution.metal.node_potential), rtol=0, atol=1e-5)
+    assert iterative.worst_touch == pytest.approx(dense.worst_touch, rel=1e-4)
+    assert iterative.worst_step == pytest.approx(dense.worst_step, rel=1e-4)
+    dc = _case(tmp_path, COUNTERPOISE.format(f=0, length=500, h=5).replace("max_segment: 5}",
+                                                                          "max_segment: 5, solver: iterative}"))
+    _, _, it, _ = _solve(dc)
+    _, _, de, _ = _solve(replace(dc, discretization=replace(dc.discretization, solver="dense")))
+    assert it.resistance == pytest.approx(de.resistance, rel=1e-6)

@@ -29,13 +29,15 @@ def caution_box(cautions=CAUTIONS) -> str:
 def solver_text(r: StudyResult) -> str:
     """How the electrode system was solved, in words: kind, iterations, residual."""
     info = r.solution.solver or {"kind": "dense"}
+    if info.get("network"):
+        how = "dense" if info.get("kind") == "dense" else \
+            f"GMRES on compressed operators, {info.get('iterations')} iterations"
+        return (f"{len(r.segments):,} segments, coupled metal–soil solve ({how}; power balance "
+                f"{info.get('power_balance', 0.0):.0e}), relative residual {r.solution.relative_residual:.1e}")
     if info.get("kind") == "iterative":
         return (f"{len(r.segments):,} segments, compressed operator ({info.get('operator_mb', 0):,.0f} MB) and "
                 f"conjugate gradients, {info.get('iterations')} iterations, relative residual "
                 f"{r.solution.relative_residual:.1e}")
-    if info.get("network"):
-        return (f"{len(r.segments):,} segments, coupled metal–soil solve (dense; power balance "
-                f"{info.get('power_balance', 0.0):.0e}), relative residual {r.solution.relative_residual:.1e}")
     return f"{len(r.segments):,} segments, dense Cholesky solve, relative residual {r.solution.relative_residual:.1e}"
 
 
