@@ -347,3 +347,22 @@ def test_iterative_coupled_solve_matches_the_dense_one(tmp_path):
     _, _, it, _ = _solve(dc)
     _, _, de, _ = _solve(replace(dc, discretization=replace(dc.discretization, solver="dense")))
     assert it.resistance == pytest.approx(de.resistance, rel=1e-6)
+
+
+def test_floating_and_remote_separate_electrodes_keep_working_with_impedance():
+    # The isolated-fence demo (floating fence, water main tied to remote earth) with its copper grid's
+    # impedance modelled: the fence's potential and both electrodes' net currents stay within 1 % of the
+    # equipotential model (copper: the metal is nearly one equipotential) and the floating fence's net
+    # leakage is zero.
+    case = load_case(ROOT / "cases" / "kestrel-bend-fence-isolated.yaml")
+    case = replace(case, discretization=replace(case.discretization, max_segment=3.0),
+                   surface=replace(case.surface, resolution=2.0))
+    base = run_study(case, estimate_error=False, screen_drop=False)
+    coupled = run_study(replace(case, electrodes=replace(case.electrodes, conductor_impedance=True),
+                                fault=replace(case.fault, injection=(Injection((30.0, 0.0, 0.6)),))),
+                        estimate_error=False)
+    for a, b in zip(base.separate, coupled.separate):
+        assert b.potential == pytest.approx(a.potential, rel=0.01)
+        assert b.net_current == pytest.approx(a.net_current, rel=0.01, abs=1e-6 * coupled.grid_current)
+    fence = [s for s in coupled.separate if s.connection == "floating"][0]
+    assert abs(fence.net_current) < 1e-6 * coupled.grid_current
