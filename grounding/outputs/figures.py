@@ -317,6 +317,18 @@ def uncertainty_figure(r: StudyResult) -> Rendered | None:
     return Rendered("uncertainty", "Soil uncertainty", fig, q.value)
 
 
+def _fit_to_metal(ax, seg) -> None:
+    """Axes limits around the segments (5 % margin), equal aspect, labels in m."""
+    pts = np.vstack([seg.start[:, :2], seg.end[:, :2]])
+    lo, hi = pts.min(axis=0), pts.max(axis=0)
+    pad = 0.05 * max(hi - lo) + 0.5
+    ax.set_xlim(lo[0] - pad, hi[0] + pad)
+    ax.set_ylim(lo[1] - pad, hi[1] + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel("x (m)")
+    ax.set_ylabel("y (m)")
+
+
 def leakage_figure(r: StudyResult) -> Rendered:
     """Leakage current per unit length along every conductor (A/m), on the plan: the end and corner effect."""
     from matplotlib.collections import LineCollection
@@ -337,14 +349,7 @@ def leakage_figure(r: StudyResult) -> Rendered:
         xy = np.array([seg.conductors.start[k, :2] for k in top])
         ax.scatter(xy[:, 0], xy[:, 1], c=[np.mean(v) for v in top.values()], cmap="viridis", s=40, marker="s",
                    edgecolors="black", linewidths=0.6, norm=lc.norm, zorder=3)
-    pts = np.vstack([seg.start[:, :2], seg.end[:, :2]])
-    lo, hi = pts.min(axis=0), pts.max(axis=0)
-    pad = 0.05 * max(hi - lo) + 0.5
-    ax.set_xlim(lo[0] - pad, hi[0] + pad)
-    ax.set_ylim(lo[1] - pad, hi[1] + pad)
-    ax.set_aspect("equal")
-    ax.set_xlabel("x (m)")
-    ax.set_ylabel("y (m)")
+    _fit_to_metal(ax, seg)
     cb = fig.colorbar(lc, ax=ax, shrink=0.85)
     cb.set_label("leakage current per metre (A/m)")
     ax.set_title(f"Leakage current along the conductors (IG = {r.grid_current / 1000:,.2f} kA; squares: rods, "
@@ -375,14 +380,7 @@ def metal_potential_figure(r: StudyResult) -> Rendered | None:
     for k in metal.solution.injection_nodes:
         x, y, _ = metal.network.nodes[k]
         ax.plot(x, y, marker="*", ms=14, color="#d62728", mec="black", zorder=4)
-    pts = np.vstack([seg.start[:, :2], seg.end[:, :2]])
-    lo, hi = pts.min(axis=0), pts.max(axis=0)
-    pad = 0.05 * max(hi - lo) + 0.5
-    ax.set_xlim(lo[0] - pad, hi[0] + pad)
-    ax.set_ylim(lo[1] - pad, hi[1] + pad)
-    ax.set_aspect("equal")
-    ax.set_xlabel("x (m)")
-    ax.set_ylabel("y (m)")
+    _fit_to_metal(ax, seg)
     cb = fig.colorbar(lc, ax=ax, shrink=0.85)
     cb.set_label("|metal potential| (% of the injection point's)")
     ax.set_title(f"Potential of the metal (star: injection, GPR {r.ground_potential_rise:,.0f} V; squares: rod tops)",
