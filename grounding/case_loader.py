@@ -355,8 +355,13 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
     def injection(self, value: Any) -> tuple[Injection, ...]:
         """``fault.injection``: one point [x, y, z] (m), or a list of {point, share} whose shares sum to 1."""
         p = "fault.injection"
-        if isinstance(value, list) and len(value) == 3 and not any(isinstance(v, (dict, list)) for v in value):
-            return (Injection(self.vector(p, value, 3, "m", "x, y, depth"), 1.0, p, self.doc.line(p)),)
+
+        def point(path, v):
+            n = 2 if isinstance(v, list) and len(v) == 2 else 3
+            return self.vector(path, v, n, "m", "x, y" if n == 2 else "x, y, depth")
+
+        if isinstance(value, list) and len(value) in (2, 3) and not any(isinstance(v, (dict, list)) for v in value):
+            return (Injection(point(p, value), 1.0, p, self.doc.line(p)),)
         items = self.sequence(p, value)
         if not items:
             raise self.doc.fail(p, "is empty; give the point [x, y, z] in m where the fault current enters the metal")
@@ -364,7 +369,7 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         for i, item in enumerate(items):
             q = f"{p}[{i}]"
             im = self.mapping(q, item, ("point", "share"), ("point", "share"))
-            out.append(Injection(self.vector(f"{q}.point", im["point"], 3, "m", "x, y, depth"),
+            out.append(Injection(point(f"{q}.point", im["point"]),
                                  self.number(f"{q}.share", im["share"], "", gt=0, le=1), q, self.doc.line(q)))
         total = sum(x.share for x in out)
         if abs(total - 1.0) > 1e-6:

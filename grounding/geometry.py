@@ -363,18 +363,26 @@ def _injection_place(case: Case, c: Conductors, inj) -> tuple[int, float]:
     """The main-system conductor an injection point lies on and the distance along it (m); refuses a point
     off the metal with the nearest point of the metal and its distance."""
     p = np.asarray(inj.point, float)
+    k = len(p)                                   # 2: a point in plan, the metal's depth taken there
     d = c.end - c.start
     L = c.length
-    t = np.clip(np.einsum("ij,ij->i", p - c.start, d) / (L * L), 0.0, 1.0)
+    along = np.einsum("ij,ij->i", p - c.start[:, :k], d[:, :k])
+    plan = np.einsum("ij,ij->i", d[:, :k], d[:, :k])
+    t = np.clip(np.where(plan > 0, along / np.where(plan > 0, plan, 1.0), 0.0), 0.0, 1.0)
     foot = c.start + t[:, None] * d
-    gap = np.where(c.group == 0, np.linalg.norm(foot - p, axis=1), np.inf)
+    gap = np.where(c.group == 0, np.linalg.norm(foot[:, :k] - p, axis=1), np.inf)
+    if k == 2:                                   # of the metal under the point, the shallowest (the top)
+        near = gap <= INJECTION_TOLERANCE
+        gap = np.where(near, foot[:, 2], gap + 1e6) if near.any() else gap
     i = int(np.argmin(gap))
-    if not gap[i] <= INJECTION_TOLERANCE:
+    miss = float(np.linalg.norm(foot[i, :k] - p))
+    if not miss <= INJECTION_TOLERANCE:
         x, y, z = foot[i]
+        where = ", ".join(f"{v:g}" for v in p)
         raise CaseError(case.source, inj.line, inj.key,
-                        f"({p[0]:g}, {p[1]:g}, {p[2]:g}) m is not on the main system's metal: the nearest point is "
-                        f"({x:.2f}, {y:.2f}, {z:.2f}) m on {c.keys[i]}, {gap[i]:.2f} m away; give a point on a "
-                        "conductor or rod (within 0.05 m of its axis)")
+                        f"({where}) m is not on the main system's metal: the nearest point is "
+                        f"({x:.2f}, {y:.2f}, {z:.2f}) m on {c.keys[i]}, {miss:.2f} m away; give a point on a "
+                        "conductor or rod (within 0.05 m of its axis; [x, y] takes the metal's depth there)")
     return i, float(t[i] * L[i])
 
 

@@ -59,10 +59,16 @@ class MetalNetwork:
         return connected_components(adj, directed=False)[1]
 
     def nearest_node(self, point, group: int = 0) -> tuple[int, float]:
-        """The node of ``group`` nearest to ``point`` (x, y, z in m) and its distance, m."""
+        """The node of ``group`` nearest to ``point`` (x, y, z in m; or x, y in plan, where of nodes equally near
+        the shallowest is taken) and its distance, m."""
+        p = np.asarray(point, float)
         members = np.flatnonzero(self.group == group)
-        d = np.linalg.norm(self.nodes[members] - np.asarray(point, float), axis=1)
-        k = int(np.argmin(d))
+        d = np.linalg.norm(self.nodes[members, :len(p)] - p, axis=1)
+        if len(p) == 2:
+            d = np.where(d <= d.min() + 1e-6, d, np.inf)
+            k = int(np.lexsort((self.nodes[members, 2], d))[0])
+        else:
+            k = int(np.argmin(d))
         return int(members[k]), float(d[k])
 
 

@@ -366,3 +366,13 @@ def test_floating_and_remote_separate_electrodes_keep_working_with_impedance():
         assert b.net_current == pytest.approx(a.net_current, rel=0.01, abs=1e-6 * coupled.grid_current)
     fence = [s for s in coupled.separate if s.connection == "floating"][0]
     assert abs(fence.net_current) < 1e-6 * coupled.grid_current
+
+
+def test_injection_in_plan_takes_the_metal_depth_there(tmp_path):
+    # [x, y] finds the metal under the point (the shallowest there): the same answer as the full [x, y, z],
+    # so a sweep of grid depths keeps its feed point.
+    full = _case(tmp_path, COUNTERPOISE.format(f=0, length=300, h=5).replace("injection: [0, 0, 0.8]",
+                                                                             "injection: [100, 0, 0.8]"), "a.yaml")
+    plan = _case(tmp_path, COUNTERPOISE.format(f=0, length=300, h=5).replace("injection: [0, 0, 0.8]",
+                                                                             "injection: [100, 0]"), "b.yaml")
+    assert _solve(plan)[2].resistance == pytest.approx(_solve(full)[2].resistance, rel=1e-12)
