@@ -174,7 +174,10 @@ class StudyResult:
         return touch[labels], step[labels]
 
     def probe_touch_voltages(self) -> np.ndarray:
-        """GPR − surface potential at the probes, V."""
+        """Touch voltage at the probes, V: GPR − surface potential (equipotential metal), or |V_metal − V_surface|
+        with the nearest energised metal (conductor impedance modelled)."""
+        if self.surface.probe_touch is not None:
+            return self.surface.probe_touch
         return self.ground_potential_rise - self.surface.probe_potential
 
 

@@ -291,6 +291,9 @@ class SurfaceResult:
         Per separate electrode: worst touch voltage per zone within reach of it.
     zone_labels : ndarray of int, shape of the map
         The zone each map point stands in (index into ``zones``).
+    probe_touch : ndarray or None
+        Touch voltage at the probes, V, where it is not GPR − potential (conductors with impedance:
+        |V_metal − V_surface| with the nearest energised metal); None otherwise.
     """
 
     x: np.ndarray
@@ -308,6 +311,7 @@ class SurfaceResult:
     zones: tuple["ZoneExtremes", ...] = ()
     metal: tuple["MetalTouch", ...] = ()
     zone_labels: np.ndarray | None = None
+    probe_touch: np.ndarray | None = None
 
     def scaled(self, factor: float) -> "SurfaceResult":
         """Every voltage multiplied by ``factor`` (fields are linear in the GPR; locations are unchanged)."""
@@ -317,7 +321,7 @@ class SurfaceResult:
                              _scale(self.max_step, factor), _scale(self.max_mesh, factor),
                              self.probe_potential * factor, Profile(p.distance, p.x, p.y, p.potential * factor),
                              tuple(z.scaled(factor) for z in self.zones), tuple(m.scaled(factor) for m in self.metal),
-                             self.zone_labels)
+                             self.zone_labels, None if self.probe_touch is None else self.probe_touch * factor)
 
 
 def _scale(ext: "Extreme | None", factor: float) -> "Extreme | None":
@@ -548,13 +552,16 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     if max_touch is None:                                  # no touch area at all: nothing to report
         max_touch = Extreme(float("nan"), float(x[0]), float(y[0]))
     metal_touch = tuple(_metal_touch(m, segments, surface, potential, V, labels, grid, zoning) for m in metal)
-    probe_v = np.abs(potential(np.array(probes, float).reshape(-1, 2))) if probes else np.zeros(0)
+    probe_xy = np.array(probes, float).reshape(-1, 2)
+    probe_complex = potential(probe_xy) if probes else np.zeros(0)
+    probe_v = np.abs(probe_complex)
+    probe_touch = touch_at(probe_xy, probe_complex) if (probes and main_metal is not None) else None
     (x0, y0), (x1, y1) = surface.profile or ((x[0], y[0]), (x[-1], y[-1]))
     f = np.linspace(0.0, 1.0, PROFILE_POINTS)
     px, py = x0 + f * (x1 - x0), y0 + f * (y1 - y0)
     profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, np.abs(potential(np.column_stack([px, py]))))
     return SurfaceResult(x, y, np.abs(V), touch, step, area, meshes, max_touch, _largest(zone_step), _largest(zone_mesh),
-                         probe_v, profile, zones, metal_touch, labels)
+                         probe_v, profile, zones, metal_touch, labels, probe_touch)
 
 
 def _distinct(points, resolution: float) -> list[tuple[float, float]]:

@@ -171,6 +171,8 @@ def test_copper_demo_grid_moves_by_under_one_percent():
     assert coupled.grid_resistance == pytest.approx(base.grid_resistance, rel=0.01)
     assert coupled.worst_touch == pytest.approx(base.worst_touch, rel=0.01)
     assert coupled.worst_step == pytest.approx(base.worst_step, rel=0.01)
+    np.testing.assert_allclose(coupled.probe_touch_voltages(), base.probe_touch_voltages(), rtol=0.01)
+    assert coupled.surface.probe_touch is not None and base.surface.probe_touch is None
     lo, hi = coupled.solution.metal.fraction(0)
     assert hi == pytest.approx(1.0, abs=1e-9) and 0.99 < lo < 1.0
     # the screening estimate of the equipotential study says the same: well under 2 %
