@@ -272,7 +272,9 @@ def profile_figure(r: StudyResult) -> Rendered:
     gpr = r.ground_potential_rise
     fig, ax = plt.subplots(figsize=(FIGSIZE[0], 3.6), dpi=DPI)
     ax.plot(p.distance, p.potential, color="#1f3b73", lw=1.5, label="surface potential")
-    ax.plot(p.distance, gpr - p.potential, color="#b35806", lw=1.2, ls="--", label="GPR − potential")
+    ax.plot(p.distance, gpr - p.potential, color="#b35806", lw=1.2, ls="--",
+            label="GPR − potential" if r.solution.metal is None else
+            "GPR at injection − |potential| (metal not one equipotential)")
     ax.axhline(gpr, color="gray", lw=0.8, ls=":", label=f"GPR {gpr:,.0f} V")
     ax.axhline(r.tolerable_touch, color="#d7301f", lw=1.0, label=f"tolerable touch {r.tolerable_touch:,.0f} V")
     ax.set_xlabel(f"distance (m) along the line from ({p.x[0]:.1f}, {p.y[0]:.1f}) to ({p.x[-1]:.1f}, {p.y[-1]:.1f})")
