@@ -218,6 +218,8 @@ def _summary_rows(r: StudyResult) -> str:
 
     metal = r.solution.metal
     rows = [row("Grid impedance |Zg|" if metal is not None else "Grid resistance Rg", f"{r.grid_resistance:.4f} Ω"),
+            row("Split factor Sf", f"{r.case.fault.split_factor:.3g}",
+                "from the lines and cables" if r.current_division is not None else "as given"),
             row("Grid current IG", f"{r.grid_current / 1000:.3f} kA", "Df · Sf · 3I0"),
             row("Ground potential rise", f"{r.ground_potential_rise:,.0f} V",
                 "at the injection point" if metal is not None else "GPR = IG · Rg")]
@@ -272,12 +274,14 @@ header{padding:10px 18px;background:#1f3b73;color:white}
 header h1{font-size:19px;margin:0}
 .caution{margin:12px 18px;padding:10px 14px;border:3px solid #d7301f;background:#fff4f0;font-size:14px}
 .caution b{color:#b00000}
-main{display:grid;grid-template-columns:minmax(0,1fr) 360px;gap:12px;padding:0 18px 18px;align-items:start}
+main{display:grid;grid-template-columns:minmax(0,1fr) 420px;gap:12px;padding:0 18px 18px;align-items:start}
 @media (max-width:1000px){main{grid-template-columns:minmax(0,1fr)}}
 main>.view{min-width:0}
-aside{font-size:13px;overflow-wrap:anywhere}
+aside{font-size:13px}
+.sha{overflow-wrap:anywhere}
 table{border-collapse:collapse;width:100%;margin-bottom:12px}
 th,td{border-bottom:1px solid #ddd;padding:4px 6px;text-align:left;vertical-align:top}
+td:nth-child(2),td:nth-child(3),td:nth-child(4),tr:first-child th{white-space:nowrap}
 tr.fail td,tr.fail th{background:#fde0dc}
 tr.pass td:nth-child(4){color:#1b7837;font-weight:bold}
 tr.fail td:nth-child(4){color:#b00000;font-weight:bold}
@@ -314,7 +318,7 @@ def _section(r: StudyResult, div_id: str, include_js: bool) -> str:
             f"<table><tr><th></th><th>worst</th><th>tolerable</th><th>verdict</th><th>where</th></tr>"
             f"{_verdict_rows(r)}</table>"
             + _scenario_rows(r) +
-            f"<p>Case {html.escape(r.case.source)}<br>SHA-256 {r.case.sha256}</p>"
+            f"<p class='sha'>Case {html.escape(r.case.source)}<br>SHA-256 {r.case.sha256}</p>"
             + (f"<details><summary>Notes on the model ({len(r.warnings)})</summary><ul>{warnings}</ul></details>"
                if warnings else "")
             + f"<script type='application/json' class='study-data' data-for='{div_id}'>{data}</script>"
