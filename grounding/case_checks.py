@@ -34,6 +34,14 @@ class _DuplicateKey(Exception):
         self.path, self.first, self.second = path, first, second
 
 
+class _Alias(Exception):
+    """A YAML node reached a second time: an alias of an anchored value."""
+
+    def __init__(self, path: str, line: int):
+        super().__init__(path)
+        self.path, self.line = path, line
+
+
 class Document:
     """Parsed YAML with the line of every key path."""
 
@@ -59,7 +67,11 @@ class Document:
         lines: dict[str, int] = {}
         if node is not None:
             try:
-                cls._index(node, "", lines)
+                cls._index(node, "", lines, set())
+            except _Alias as alias:
+                raise CaseError(file, alias.line, alias.path, "uses a YAML alias (*name) of an anchored value; write the "
+                                "value out: aliases are not accepted in case files (a few of them can expand a "
+                                "small file without bound)") from None
             except _DuplicateKey as dup:
                 raise CaseError(file, dup.second, dup.path, f"is given twice (lines {dup.first} and {dup.second}); "
                                 "keep one") from None
@@ -68,7 +80,14 @@ class Document:
         return cls(file, data, lines)
 
     @classmethod
-    def _index(cls, node: yaml.Node, path: str, lines: dict[str, int]) -> None:
+    def _index(cls, node: yaml.Node, path: str, lines: dict[str, int], visited: set) -> None:
+        if id(node) in visited and isinstance(node, (yaml.MappingNode, yaml.SequenceNode, yaml.ScalarNode)):
+            parent = path
+            while parent and parent not in lines:                   # the line where the alias is used
+                cut = max(parent.rfind("."), parent.rfind("["))
+                parent = parent[:cut] if cut > 0 else ""
+            raise _Alias(path, lines.get(parent, node.start_mark.line + 1))
+        visited.add(id(node))
         lines.setdefault(path, node.start_mark.line + 1)
         if isinstance(node, yaml.MappingNode):
             seen: dict[str, int] = {}
@@ -79,11 +98,11 @@ class Document:
                     raise _DuplicateKey(child, seen[str(key_node.value)], here)
                 seen[str(key_node.value)] = here
                 lines[child] = key_node.start_mark.line + 1
-                cls._index(value_node, child, lines)
+                cls._index(value_node, child, lines, visited)
                 lines[child] = key_node.start_mark.line + 1
         elif isinstance(node, yaml.SequenceNode):
             for i, item in enumerate(node.value):
-                cls._index(item, f"{path}[{i}]", lines)
+                cls._index(item, f"{path}[{i}]", lines, visited)
 
     def line(self, path: str) -> int | None:
         """Line of ``path``, or of its nearest ancestor that has one."""

@@ -171,3 +171,24 @@ def test_x_over_r_range():
 def test_title_must_be_text():
     assert "title must be one line of text" in error_of(case_text(ROD, extra="title2: x\n").replace(
         "title: test", "title: [a, b]").replace("title2: x\n", ""))
+
+
+def test_alias_bomb_is_refused_at_once_in_one_line(tmp_path):
+    """Regression (fuzzing): six nested YAML aliases under a valid key took 155 s (the line index walked every
+    expansion) before being refused; aliases are now refused where they are first met."""
+    import time
+
+    from grounding.case_loader import load_case
+    from grounding.errors import CaseError
+
+    text = ("format: 1\nsoil: {resistivity: 100}\nfault: {current: 1000, clearing_time: 0.5}\nelectrodes:\n"
+            "  rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}]\nx0: &a [[1, 1], [1, 1], [1, 1], [1, 1]]\n")
+    for k in range(1, 7):
+        text += f"x{k}: &a{k} [" + ", ".join(["*a" if k == 1 else f"*a{k - 1}"] * 10) + "]\n"
+    path = tmp_path / "bomb.yaml"
+    path.write_text(text + "probes: *a6\n")
+    t0 = time.perf_counter()
+    with pytest.raises(CaseError) as err:
+        load_case(path)
+    assert time.perf_counter() - t0 < 2.0
+    assert "uses a YAML alias" in str(err.value) and "\n" not in str(err.value) and ":7:" in str(err.value)
