@@ -8,6 +8,10 @@ from pathlib import Path
 from .errors import CaseError
 
 
+#: Largest text file read (case files and readings are kilobytes; this refuses a wrong file quickly).
+MAX_TEXT_BYTES = 20_000_000
+
+
 def read_user_text(path: str | Path, what: str, encoding: str = "utf-8") -> tuple[str, str]:
     """Text of a user's file and the SHA-256 of its bytes.
 
@@ -23,10 +27,14 @@ def read_user_text(path: str | Path, what: str, encoding: str = "utf-8") -> tupl
     Raises
     ------
     CaseError
-        When the file is missing, unreadable or not UTF-8 text.
+        When the file is missing, unreadable, larger than MAX_TEXT_BYTES or not UTF-8 text.
     """
     path = Path(path)
     try:
+        size = path.stat().st_size
+        if size > MAX_TEXT_BYTES:
+            raise CaseError(str(path), None, "", f"is {size / 1e6:,.0f} MB; {what} is at most {MAX_TEXT_BYTES / 1e6:.0f} MB: "
+                                                 "check that this is the right file")
         raw = path.read_bytes()
     except FileNotFoundError:
         raise CaseError(str(path), None, "", f"file not found; give the path of {what}") from None

@@ -192,3 +192,16 @@ def test_alias_bomb_is_refused_at_once_in_one_line(tmp_path):
         load_case(path)
     assert time.perf_counter() - t0 < 2.0
     assert "uses a YAML alias" in str(err.value) and "\n" not in str(err.value) and ":7:" in str(err.value)
+
+
+def test_oversized_file_is_refused_before_reading(tmp_path):
+    """Document size is bounded: a 21 MB file is refused in one line without parsing it."""
+    from grounding.case_loader import load_case
+    from grounding.errors import CaseError
+    from grounding.textfile import MAX_TEXT_BYTES
+
+    path = tmp_path / "huge.yaml"
+    path.write_text("format: 1\ntitle: " + "x" * (MAX_TEXT_BYTES + 1_000_000) + "\n")
+    with pytest.raises(CaseError) as err:
+        load_case(path)
+    assert "MB" in str(err.value) and "right file" in str(err.value)
