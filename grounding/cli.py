@@ -436,22 +436,21 @@ def check(case_file):
     from .geometry import segment
     from .study import check_model_size
 
+    variants = None
     try:
         case = load_case(case_file)
         segments = segment(case)
         check_model_size(case, segments)
+        if any(n.startswith("the sweep block") for n in case.notes):
+            from .case_loader import load_variants
+
+            variants = load_variants(case_file)          # before anything is printed: a refusal is one line
     except GroundingError as exc:
         _fail(exc)
     click.echo(f"{case_file}: valid; {len(segments)} segments, {segments.total_length:.1f} m of electrode")
     for w in case.notes + segments.warnings:
         click.echo(f"  note: {w}")
-    if any(n.startswith("the sweep block") for n in case.notes):
-        from .case_loader import load_variants
-
-        try:
-            variants = load_variants(case_file)
-        except GroundingError as exc:
-            _fail(exc)
+    if variants is not None:
         click.echo(f"  sweep: {len(variants)} options, each valid")
 
 

@@ -186,3 +186,15 @@ def test_one_path_for_two_outputs_is_refused(small_case, tmp_path):
     out = tmp_path / "same.out"
     res = run("study", small_case, "--quiet", "--json", out, "--csv", out)
     assert res.exit_code == 2 and "two outputs" in res.output and not out.exists()
+
+
+def test_check_of_a_bad_sweep_prints_only_the_refusal(tmp_path):
+    """Regression (fuzzing): `check` printed "valid" and the notes, then refused a sweep option (exit 2, several
+    lines); the options are validated before anything is printed."""
+    text = (ROOT / "cases" / "kestrel-bend-sweep.yaml").read_text().replace(
+        "  grid.depth: [0.5, 0.8]", "  grid.depth: [0.5, -0.8]")
+    path = tmp_path / "s.yaml"
+    path.write_text(text)
+    res = run("check", path)
+    lines = [line for line in res.output.strip().splitlines() if line.strip()]
+    assert res.exit_code == 2 and len(lines) == 1 and "valid" not in lines[0], res.output
