@@ -549,7 +549,7 @@ def sweep_settings(doc: "Document") -> list[tuple[str, list[tuple[str, Any]]]]:
                     raise doc.fail(f"{path}.count", f"must be a whole number from 1 to {MAX_VARIANTS:,}, got {fmt(n)}")
                 vals = [a] if n == 1 else [round(a + (b - a) * i / (n - 1), 12) for i in range(n)]
         elif isinstance(values, list) and values:
-            vals = values
+            vals = [as_number(v) for v in values]          # 12e3 / 1e-3 without a dot are text in YAML 1.1
         else:
             raise doc.fail(path, "must be a non-empty list of values or a range {from, to, step|count}")
         if name == "rods.layout":

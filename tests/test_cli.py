@@ -192,9 +192,12 @@ def test_check_of_a_bad_sweep_prints_only_the_refusal(tmp_path):
     """Regression (fuzzing): `check` printed "valid" and the notes, then refused a sweep option (exit 2, several
     lines); the options are validated before anything is printed."""
     text = (ROOT / "cases" / "kestrel-bend-sweep.yaml").read_text().replace(
-        "  grid.depth: [0.5, 0.8]", "  grid.depth: [0.5, -0.8]")
+        "  grid.depth: [0.5, 0.8]", "  grid.depth: [0.5, 20000]")
     path = tmp_path / "s.yaml"
     path.write_text(text)
     res = run("check", path)
     lines = [line for line in res.output.strip().splitlines() if line.strip()]
     assert res.exit_code == 2 and len(lines) == 1 and "valid" not in lines[0], res.output
+    # a number in exponent form without a dot (text to YAML 1.1) is a number in a sweep list too
+    path.write_text(text.replace("grid.depth: [0.5, 20000]", "grid.depth: [5e-1, 0.8]"))
+    assert run("check", path).exit_code == 0
