@@ -134,13 +134,6 @@ class SeriesImpedance:
             Z = Z + 1j * 2 * np.pi * self.frequency * self.inductance
         return Z
 
-    def per_metre(self, length: np.ndarray) -> np.ndarray:
-        """|self impedance| per metre of each segment (internal plus own partial inductance), Ω/m."""
-        z = self.internal.astype(complex)
-        if self.inductance is not None and self.frequency > 0:
-            z = z + 1j * 2 * np.pi * self.frequency * np.diag(self.inductance)
-        return np.abs(z) / length
-
 
 def element_properties(case: Case, segments: Segments) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per segment: resistivity at the conductor temperature (Ω·m), cross-section (m²) and μr, from each
@@ -210,7 +203,7 @@ class CompressedInductance:
         return self.correction.diagonal()
 
     def apply(self, x: np.ndarray) -> np.ndarray:
-        """M x for a real or complex vector x (A·s → V·s/H... in H times A)."""
+        """M x (H·A = V·s) for a real or complex vector x of branch currents (A)."""
         def real(v):
             X = self.weights * v[:, None]                                # (N, 3)
             return MU0 / (4 * np.pi) * np.einsum("ik,ik->i", self.weights, self.G.matvec(X)) + self.correction @ v

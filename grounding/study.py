@@ -345,13 +345,17 @@ class MetalDrop:
 def metal_drop(case: Case, segments: Segments, solution: Solution) -> MetalDrop:
     """The metal potential's spread: from the coupled solution, or screened for an equipotential study."""
     if solution.metal is not None:
-        metal = solution.metal
-        feed = tuple(float(v) for v in metal.network.nodes[metal.solution.injection_nodes[0]])
-        v = metal.node_potential[metal.network.group == 0]
-        v0 = metal.node_potential[metal.solution.injection_nodes[0]]
-        return MetalDrop(float(np.max(np.abs(v - v0)) / abs(v0)), metal.fraction(0)[0], feed, False,
-                         "from the coupled metal–soil solution")
+        return _drop_of(solution.metal, solution.metal.solution.injection_nodes[0], False,
+                        "from the coupled metal–soil solution")
     return estimate_metal_drop(case, len(segments))
+
+
+def _drop_of(metal: MetalState, feed_node: int, estimated: bool, note: str) -> MetalDrop:
+    """Largest |V_node − V_feed| / |V_feed| and least |V_node| / |V_feed| over the energised metal."""
+    v = metal.node_potential[metal.network.group == 0]
+    v0 = metal.node_potential[feed_node]
+    return MetalDrop(float(np.max(np.abs(v - v0)) / abs(v0)), float(np.min(np.abs(v)) / abs(v0)),
+                     tuple(float(x) for x in metal.network.nodes[feed_node]), estimated, note)
 
 
 def estimate_metal_drop(case: Case, segments_now: int | None = None) -> MetalDrop:
@@ -385,11 +389,8 @@ def estimate_metal_drop(case: Case, segments_now: int | None = None) -> MetalDro
         metal = _network_solve(coarse, segments, R, injection)
     except GroundingError as exc:
         return MetalDrop(None, None, None, True, f"not estimated: {exc}")
-    v = metal.node_potential[network.group == 0]
-    v0 = metal.node_potential[injection[0][0]]
-    feed = tuple(float(x) for x in network.nodes[injection[0][0]])
-    return MetalDrop(float(np.max(np.abs(v - v0)) / abs(v0)), float(np.min(np.abs(v)) / abs(v0)), feed, True,
-                     f"screening estimate: {len(segments)} segments of up to {h:g} m, current entering at {where}")
+    return _drop_of(metal, injection[0][0], True,
+                    f"screening estimate: {len(segments)} segments of up to {h:g} m, current entering at {where}")
 
 
 def connections(case: Case) -> tuple[str, ...]:

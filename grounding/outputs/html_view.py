@@ -31,7 +31,7 @@ LAYERS = (("potential", "Surface potential", "Viridis"), ("touch", "Touch voltag
           ("step", "Step voltage", "Cividis"), ("margin", "Touch margin to the local limit", "RdBu"))
 
 
-def _finite(a: np.ndarray) -> np.ndarray:
+def _float32(a: np.ndarray) -> np.ndarray:
     """float32 copy for compact embedding (NaN stays NaN: a gap in the heatmap)."""
     return np.asarray(a, dtype=np.float32)
 
@@ -81,7 +81,7 @@ def _layer_traces(r: StudyResult, prefix: str, k: int = 1) -> tuple[list[dict], 
     def heat(key, z, colorscale, title, hover, custom, zoned=True, **extra):
         if not zoned and zone_text is not None:
             hover = hover.replace(zone_part, "")
-        traces.append(go.Heatmap(x=s.x, y=s.y, z=_finite(z), colorscale=colorscale, customdata=custom,
+        traces.append(go.Heatmap(x=s.x, y=s.y, z=_float32(z), colorscale=colorscale, customdata=custom,
                                  text=zone_text if zoned else None, hovertemplate=hover + "<extra></extra>",
                                  name=f"{prefix}{title}",
                                  colorbar=dict(title=dict(text=title, side="right"), len=0.9), visible=False,
@@ -91,22 +91,22 @@ def _layer_traces(r: StudyResult, prefix: str, k: int = 1) -> tuple[list[dict], 
     xy = "x %{x:.2f} m, y %{y:.2f} m<br>"
     heat("potential", s.potential, "Viridis", "V",
          xy + "surface potential %{z:,.0f} V (%{customdata:.1f} % of GPR)" + zone_part,
-         _finite(100.0 * s.potential / gpr), zoned=False)
+         _float32(100.0 * s.potential / gpr), zoned=False)
     heat("touch", s.touch, "Cividis", "V",
-         xy + "touch voltage %{z:,.0f} V<br>local limit %{customdata:,.0f} V" + zone_part, _finite(touch_lim))
+         xy + "touch voltage %{z:,.0f} V<br>local limit %{customdata:,.0f} V" + zone_part, _float32(touch_lim))
     heat("step", s.step, "Cividis", "V",
          xy + "step voltage %{z:,.0f} V<br>local limit %{customdata:,.0f} V (−1: none set)" + zone_part,
-         _finite(step_lim_shown))
+         _float32(step_lim_shown))
     finite = margin[np.isfinite(margin)]
     span = float(np.max(np.abs(finite))) if finite.size else 1.0
     heat("margin", margin, "RdBu", "V", xy + "margin %{z:,.0f} V (limit − touch)<br>local limit %{customdata:,.0f} V"
-         + zone_part, _finite(touch_lim), zmid=0.0, zmin=-span, zmax=span)
+         + zone_part, _float32(touch_lim), zmid=0.0, zmin=-span, zmax=span)
     # exceeding areas: a translucent red layer and the limit contour
     exceed = np.where(margin < 0, 1.0, np.nan)
-    traces.append(go.Heatmap(x=s.x, y=s.y, z=_finite(exceed), colorscale=[[0, LIMIT], [1, LIMIT]], showscale=False,
+    traces.append(go.Heatmap(x=s.x, y=s.y, z=_float32(exceed), colorscale=[[0, LIMIT], [1, LIMIT]], showscale=False,
                              opacity=0.35, hoverinfo="skip", visible=False, name=f"{prefix}above the limit"))
     owner.append("margin")
-    traces.append(go.Contour(x=s.x, y=s.y, z=_finite(np.where(np.isnan(margin), 1.0, margin)),
+    traces.append(go.Contour(x=s.x, y=s.y, z=_float32(np.where(np.isnan(margin), 1.0, margin)),
                              contours=dict(start=0, end=0, size=1, coloring="none"), line=dict(color=LIMIT, width=2),
                              showscale=False, hoverinfo="skip", visible=False, name=f"{prefix}tolerable-limit contour",
                              showlegend=True))
