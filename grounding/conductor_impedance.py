@@ -29,6 +29,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.sparse
 import scipy.special
 from scipy.spatial import cKDTree
 
@@ -80,26 +81,33 @@ def skin_depth(resistivity, relative_permeability, frequency: float) -> np.ndarr
     return np.sqrt(2 * np.asarray(resistivity) / (2 * np.pi * frequency * MU0 * np.asarray(relative_permeability)))
 
 
-def partial_inductances(segments: Segments) -> np.ndarray:
-    """Neumann partial-inductance matrix of the segments, H, shape (N, N) (see the module text)."""
+def _exact_pairs(segments: Segments):
+    """The pairs i < j nearer than EXACT_REACH segment lengths that couple (u_i · u_j ≠ 0), as (i, j, u_i · u_j,
+    ∫∫ ds dt / r in m), and the self integrals ∫∫ ds dt / r of every segment (thin-wire kernel), m."""
     a, b = segments.start, segments.end
     L = segments.length
     u = (b - a) / L[:, None]
+    pairs = cKDTree(segments.midpoint).query_pairs(EXACT_REACH * L.max(), output_type="ndarray").reshape(-1, 2)
+    dot = np.einsum("ij,ij->i", u[pairs[:, 0]], u[pairs[:, 1]])
+    keep = np.abs(dot) > 1e-12
+    i, j, dot = pairs[keep, 0], pairs[keep, 1], dot[keep]
+    exact = segment_pair_integral(a[i], b[i], a[j], b[j], 0.5 * (segments.radius[i] + segments.radius[j]))
+    return i, j, dot, exact, segment_pair_integral(a, b, a, b, segments.radius)
+
+
+def partial_inductances(segments: Segments) -> np.ndarray:
+    """Neumann partial-inductance matrix of the segments, H, shape (N, N) (see the module text)."""
+    L = segments.length
+    u = (segments.end - segments.start) / L[:, None]
     dot = u @ u.T
     mid = segments.midpoint
     d = np.sqrt(np.maximum(np.sum(mid ** 2, 1)[:, None] + np.sum(mid ** 2, 1)[None, :] - 2 * mid @ mid.T, 0.0))
     with np.errstate(divide="ignore"):
         M = MU0 / (4 * np.pi) * dot * np.outer(L, L) / d
-    pairs = cKDTree(mid).query_pairs(EXACT_REACH * L.max(), output_type="ndarray").reshape(-1, 2)
-    i = np.concatenate([np.arange(len(L)), pairs[:, 0]])
-    j = np.concatenate([np.arange(len(L)), pairs[:, 1]])
-    keep = np.abs(dot[i, j]) > 1e-12
-    i, j = i[keep], j[keep]
-    radius = 0.5 * (segments.radius[i] + segments.radius[j])
-    exact = MU0 / (4 * np.pi) * dot[i, j] * segment_pair_integral(a[i], b[i], a[j], b[j], radius)
-    M[i, j] = exact
-    M[j, i] = exact
     M[np.abs(dot) <= 1e-12] = 0.0
+    i, j, dot_ij, exact, own = _exact_pairs(segments)
+    M[i, j] = M[j, i] = MU0 / (4 * np.pi) * dot_ij * exact
+    M[np.diag_indices(len(L))] = MU0 / (4 * np.pi) * own
     return M
 
 
@@ -176,26 +184,17 @@ class CompressedInductance:
     def __init__(self, segments: Segments):
         from .hmatrix import build_hmatrix
 
-        a, b = segments.start, segments.end
         L = segments.length
-        u = (b - a) / L[:, None]
         mid = segments.midpoint
-        self.weights = u * L[:, None]                                   # (N, 3)
+        self.weights = (segments.end - segments.start)                  # (N, 3): l · u_k
         self.G = build_hmatrix(lambda r, z, zp: 1.0 / np.sqrt(r * r + (z - zp) ** 2), mid)
-        pairs = cKDTree(mid).query_pairs(EXACT_REACH * L.max(), output_type="ndarray").reshape(-1, 2)
-        dot = np.einsum("ij,ij->i", u[pairs[:, 0]], u[pairs[:, 1]])
-        keep = np.abs(dot) > 1e-12
-        i, j, dot = pairs[keep, 0], pairs[keep, 1], dot[keep]
-        radius = 0.5 * (segments.radius[i] + segments.radius[j])
-        exact = segment_pair_integral(a[i], b[i], a[j], b[j], radius)
+        i, j, dot, exact, own = _exact_pairs(segments)
         midpoint = L[i] * L[j] / np.linalg.norm(mid[i] - mid[j], axis=1)
-        own = segment_pair_integral(a, b, a, b, segments.radius)
         n = len(L)
         rows = np.concatenate([i, j, np.arange(n)])
         cols = np.concatenate([j, i, np.arange(n)])
         vals = MU0 / (4 * np.pi) * np.concatenate([dot * (exact - midpoint), dot * (exact - midpoint), own])
-        import scipy.sparse as sp
-        self.correction = sp.csr_matrix((vals, (rows, cols)), shape=(n, n))
+        self.correction = scipy.sparse.csr_matrix((vals, (rows, cols)), shape=(n, n))
         self.size = n
 
     def diagonal(self) -> np.ndarray:

@@ -122,7 +122,6 @@ def solve_network(R: np.ndarray, network: MetalNetwork, Z: np.ndarray, injection
     ideal = np.flatnonzero((np.abs(Z).sum(axis=0) == 0) & (np.abs(Z).sum(axis=1) == 0))
     label, m, free, A, D, J, real = _nodal_setup(network, ideal, injection, connections)
     A, D = A.toarray(), D.toarray()
-    first = injection[0][0]
     try:
         factor = scipy.linalg.cho_factor(R, lower=True, check_finite=True)
     except (np.linalg.LinAlgError, ValueError) as exc:
@@ -143,23 +142,32 @@ def solve_network(R: np.ndarray, network: MetalNetwork, Z: np.ndarray, injection
     except (np.linalg.LinAlgError, ValueError) as exc:
         raise GroundingError(f"the metal–soil network could not be solved ({exc}); check the conductors' impedances "
                              "and that every floating part touches the soil") from None
-    phi_m = np.zeros(m, complex)
-    phi_m[free] = phi_free
-    phi = phi_m[label]
     leakage = RA @ phi_free
     branch = np.full(N, np.nan + 0j)
     if len(real):
         branch[real] = ZD @ phi_free
     segment_v = A @ phi_free
     residual = float(np.linalg.norm(R @ leakage - segment_v) / max(np.linalg.norm(segment_v), 1e-300))
-    p_in = float(np.real(np.vdot(J, phi_free)))
     p_metal = float(np.real(np.vdot(branch[real], Zr @ branch[real]))) if len(real) else 0.0
-    p_soil = float(np.real(np.vdot(leakage, R @ leakage)))
-    balance = abs(p_in - p_metal - p_soil) / max(abs(p_in), 1e-300)
-    if not (np.isfinite(residual) and residual < 1e-6 and balance < 1e-6 and np.all(np.isfinite(phi))):
+    solution = _network_solution(label, m, free, phi_free, leakage, branch, J, p_metal,
+                                 float(np.real(np.vdot(leakage, R @ leakage))), injection, residual)
+    if not (np.isfinite(residual) and residual < 1e-6 and solution.power_balance < 1e-6
+            and np.all(np.isfinite(solution.node_potential))):
         raise GroundingError(f"the metal–soil network solve is not accurate (residual {residual:.1e}, power balance "
-                             f"{balance:.1e}); check for coincident conductors or extreme impedances")
-    return NetworkSolution(phi, leakage, branch, complex(phi[first]), tuple(int(k) for k, _ in injection),
+                             f"{solution.power_balance:.1e}); check for coincident conductors or extreme impedances")
+    return solution
+
+
+def _network_solution(label, m, free, phi_free, leakage, branch, J, p_metal: float, p_soil: float, injection,
+                      residual: float) -> NetworkSolution:
+    """Node potentials of every node (contracted and remote ones included) and the power balance
+    |P_in − P_metal − P_soil| / P_in of a solved system."""
+    phi_m = np.zeros(m, complex)
+    phi_m[free] = phi_free
+    phi = phi_m[label]
+    p_in = float(np.real(np.vdot(J, phi_free)))
+    balance = abs(p_in - p_metal - p_soil) / max(abs(p_in), 1e-300)
+    return NetworkSolution(phi, leakage, branch, complex(phi[injection[0][0]]), tuple(int(k) for k, _ in injection),
                            residual, balance)
 
 
@@ -265,16 +273,11 @@ def solve_network_iterative(operator, network: MetalNetwork, internal: np.ndarra
                              f"residual {residual:.1e}); use a longer discretization.max_segment so that the dense "
                              "solve applies (up to 3 000 segments)")
     leakage, branch, phi_free = w[:N], w[N:2 * N], w[2 * N:]
-    phi_m = np.zeros(m, complex)
-    phi_m[free] = phi_free
-    phi = phi_m[label]
-    p_in = float(np.real(np.vdot(J, phi_free)))
-    p_metal = float(np.real(np.vdot(branch, Z_apply(branch))))
-    p_soil = float(np.real(np.vdot(leakage, R_apply(leakage))))
-    balance = abs(p_in - p_metal - p_soil) / max(abs(p_in), 1e-300)
-    if not balance < 1e-4:
-        raise GroundingError(f"the iterative metal–soil solve does not conserve power (balance {balance:.1e}); use "
-                             "a longer discretization.max_segment so that the dense solve applies")
-    first = injection[0][0]
-    return NetworkSolution(phi, leakage, branch, complex(phi[first]), tuple(int(k) for k, _ in injection),
-                           residual, balance), count[0]
+    solution = _network_solution(label, m, free, phi_free, leakage, branch, J,
+                                 float(np.real(np.vdot(branch, Z_apply(branch)))),
+                                 float(np.real(np.vdot(leakage, R_apply(leakage)))), injection, residual)
+    if not solution.power_balance < 1e-4:
+        raise GroundingError(f"the iterative metal–soil solve does not conserve power (balance "
+                             f"{solution.power_balance:.1e}); use a longer discretization.max_segment so that the "
+                             "dense solve applies")
+    return solution, count[0]

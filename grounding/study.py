@@ -347,7 +347,7 @@ def metal_drop(case: Case, segments: Segments, solution: Solution) -> MetalDrop:
     if solution.metal is not None:
         return _drop_of(solution.metal, solution.metal.solution.injection_nodes[0], False,
                         "from the coupled metal–soil solution")
-    return estimate_metal_drop(case, len(segments))
+    return estimate_metal_drop(case, segments)
 
 
 def _drop_of(metal: MetalState, feed_node: int, estimated: bool, note: str) -> MetalDrop:
@@ -358,22 +358,25 @@ def _drop_of(metal: MetalState, feed_node: int, estimated: bool, note: str) -> M
                      tuple(float(x) for x in metal.network.nodes[feed_node]), estimated, note)
 
 
-def estimate_metal_drop(case: Case, segments_now: int | None = None) -> MetalDrop:
+def estimate_metal_drop(case: Case, segments: Segments | None = None) -> MetalDrop:
     """Screening of an equipotential study: the coupled solve on a coarse discretisation (at most
     DROP_ESTIMATE_SEGMENTS segments), fed at the case's injection point or at the energised metal's node
-    nearest its centroid. ``segments_now``: the case's own segment count, to start near the right length."""
+    nearest its centroid. ``segments``: the case's own segmentation, used as it is when small enough, else to
+    start the coarsening near the right length."""
     h = case.discretization.max_segment
-    if segments_now:
-        h *= max(1.0, 1.1 * segments_now / DROP_ESTIMATE_SEGMENTS)
-    for _ in range(10):
-        coarse = replace(case, discretization=replace(case.discretization, max_segment=h))
-        segments = segment(coarse)
-        if len(segments) <= DROP_ESTIMATE_SEGMENTS:
-            break
-        h *= 2
-    else:
-        return MetalDrop(None, None, None, True, f"not estimated: the layout needs more than "
-                                                 f"{DROP_ESTIMATE_SEGMENTS} segments even when coarsened")
+    coarse = case
+    if segments is None or len(segments) > DROP_ESTIMATE_SEGMENTS:
+        if segments is not None:
+            h *= 1.1 * len(segments) / DROP_ESTIMATE_SEGMENTS
+        for _ in range(10):
+            coarse = replace(case, discretization=replace(case.discretization, max_segment=h))
+            segments = segment(coarse)
+            if len(segments) <= DROP_ESTIMATE_SEGMENTS:
+                break
+            h *= 2
+        else:
+            return MetalDrop(None, None, None, True, f"not estimated: the layout needs more than "
+                                                     f"{DROP_ESTIMATE_SEGMENTS} segments even when coarsened")
     kernel = make_kernel(coarse.soil, h)
     R = dense_operator(segments, kernel, AssemblyOptions()).matrix
     network = metal_network(segments)
