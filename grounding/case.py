@@ -552,6 +552,17 @@ class Case:
     source: str = ""
     sha256: str = ""
 
+    def input_files(self) -> tuple[tuple[str, str, str], ...]:
+        """Every file besides the case file that the case read, as (kind, path, SHA-256): the DXF drawing
+        ("drawing") and the sounding readings of the case and of its scenarios ("readings"), each once."""
+        out = []
+        if self.electrodes.drawing is not None:
+            out.append(("drawing", self.electrodes.drawing[0], self.electrodes.drawing[1]))
+        for c in (self, *(s.case for s in self.scenarios)):
+            if c.soil_fit is not None:
+                out.append(("readings", c.soil_fit.readings.source, c.soil_fit.readings.sha256))
+        return tuple(dict.fromkeys(out))
+
     @property
     def zones(self) -> tuple[SurfaceZone, ...]:
         """Every surface zone a verdict is evaluated in, the native soil last.

@@ -218,17 +218,22 @@ def _option_bar(quiet: bool, total: int):
     return bar, update
 
 
-def _study_options(cases, labels, by, quiet, workers, cluster):
-    """Run the options with a progress bar; return them with the winner and the reason."""
-    from .options.compare import best_option, make_options
+def _study_options(cases, labels, by, quiet, workers, cluster, reused=None):
+    """Run the options with a progress bar; return them with the winner and the reason. ``reused`` maps case
+    indices to recorded results that stand for their studies (those cases are not solved)."""
+    from .options.compare import best_option, make_options, recorded_option
     from .options.runner import run_options
 
-    bar, update = _option_bar(quiet, len(cases))
+    reused = reused or {}
+    todo = [i for i in range(len(cases)) if i not in reused]
+    bar, update = _option_bar(quiet, len(todo))
     try:
-        results = run_options(cases, workers=workers, cluster=cluster, progress=update)
+        results = run_options([cases[i] for i in todo], workers=workers, cluster=cluster, progress=update)
     finally:
         bar.close()
-    options = make_options(labels, results)
+    studied = dict(zip(todo, make_options([labels[i] for i in todo], results)))
+    options = [studied[i] if i in studied else recorded_option(labels[i], cases[i], reused[i])
+               for i in range(len(cases))]
     return (options, *best_option(options, by))
 
 
@@ -253,23 +258,32 @@ def _table_files(options, best, reason, by, json_file, csv_file, extra=None):
 @click.option("--report", "report_file", type=click.Path(dir_okay=False), help="Also write a comparison report (PDF).")
 @click.option("--html", "html_file", type=click.Path(dir_okay=False),
               help="Also write the options side by side as one interactive, self-contained HTML file.")
+@click.option("--results", "results_files", multiple=True, type=click.Path(dir_okay=False),
+              help="A study's --json results of one of the CASEs (repeatable): that case is not solved again while "
+                   "the case file, the files it reads and the tool version are unchanged.")
 @_parallel_options
-def compare(case_files, by, json_file, csv_file, report_file, html_file, quiet, workers, cluster):
+def compare(case_files, by, json_file, csv_file, report_file, html_file, results_files, quiet, workers, cluster):
     """Compare layout options side by side: one column per CASE."""
+    from .options.recorded import match_recorded, read_recorded
     from .outputs.options_outputs import compare_table, comparison_report
     from .outputs.summary_text import caution_box
 
     try:
         cases = [load_case(f) for f in case_files]
-        _check_outputs_early((json_file, csv_file, report_file, html_file), list(case_files) + _inputs_of(*cases))
-        options, best, reason = _study_options(cases, [c.title for c in cases], by, quiet, workers, cluster)
+        records = [read_recorded(f) for f in results_files]
+        _check_outputs_early((json_file, csv_file, report_file, html_file),
+                             list(case_files) + _inputs_of(*cases) + list(results_files))
+        reused, notes = match_recorded(cases, records, needs_maps=bool(report_file or html_file))
+        for line in notes:
+            click.echo(line)
+        options, best, reason = _study_options(cases, [c.title for c in cases], by, quiet, workers, cluster, reused)
         files = _table_files(options, best, reason, by, json_file, csv_file)
         if report_file:
             files.append((report_file, comparison_report(options, best, reason)))
         if html_file:
             from .outputs.html_view import compare_html
             files.append((html_file, compare_html([o.result for o in options], [o.label for o in options])))
-        _write_all(files, list(case_files) + _inputs_of(*cases))
+        _write_all(files, list(case_files) + _inputs_of(*cases) + list(results_files))
     except GroundingError as exc:
         _fail(exc)
     click.echo(caution_box())
@@ -365,20 +379,8 @@ def design(case_file, by, out_file, quiet, workers, cluster):
 
 
 def _inputs_of(*cases) -> list[str]:
-    """Every file a run read: the case files and their sounding readings."""
-    out = []
-    for c in cases:
-        if c is None:
-            continue
-        out.append(c.source)
-        if c.electrodes.drawing is not None:
-            out.append(c.electrodes.drawing[0])
-        if c.soil_fit is not None:
-            out.append(c.soil_fit.readings.source)
-        for sc in c.scenarios:
-            if sc.case.soil_fit is not None:
-                out.append(sc.case.soil_fit.readings.source)
-    return out
+    """Every file a run read: the case files, their drawings and their sounding readings."""
+    return [p for c in cases if c is not None for p in (c.source, *(path for _, path, _ in c.input_files()))]
 
 
 def _guard_outputs(paths, inputs) -> None:

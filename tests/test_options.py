@@ -132,6 +132,101 @@ def test_compare_command_json(tmp_path, variants):
     assert "licensed professional engineer" in " ".join(doc["cautions"])
 
 
+def _option_files(tmp_path, variants, n=2):
+    import yaml
+
+    files = []
+    for k, v in enumerate(variants[:n]):
+        p = tmp_path / f"o{k}.yaml"
+        p.write_text(yaml.safe_dump(v.data))
+        files.append(str(p))
+    return files
+
+
+def test_compare_reuses_the_json_results_of_the_same_case(tmp_path, variants, monkeypatch):
+    """A study's --json results stand in for solving that case again (issue: compare re-solved every case);
+    the table and CSV equal those of a full comparison to the results file's 6 significant digits."""
+    import csv
+
+    import grounding.options.runner as runner
+
+    files = _option_files(tmp_path, variants)
+    res = CliRunner().invoke(main, ["study", files[0], "--quiet", "--json", str(tmp_path / "a.json")])
+    assert res.exit_code == 0, res.output
+    solved = []
+    real = runner.run_options
+
+    def counting(cases, **kw):
+        solved.append([c.source for c in cases])
+        return real(cases, **kw)
+
+    monkeypatch.setattr(runner, "run_options", counting)
+    full = CliRunner().invoke(main, ["compare", *files, "--csv", str(tmp_path / "full.csv"), "--quiet"])
+    reuse = CliRunner().invoke(main, ["compare", *files, "--results", str(tmp_path / "a.json"), "--csv",
+                                      str(tmp_path / "re.csv"), "--json", str(tmp_path / "re.json"), "--quiet"])
+    assert full.exit_code == 0 and reuse.exit_code == 0, reuse.output
+    assert solved == [files, files[1:]]                       # the recorded case was not solved again
+    assert "a.json: results of" in reuse.output and "not solved again" in reuse.output
+    rows = [list(csv.reader((tmp_path / f).read_text().splitlines()[1:])) for f in ("full.csv", "re.csv")]
+    head = rows[0][0]
+    for a, b in zip(rows[0][1:], rows[1][1:]):
+        for key, x, y in zip(head, a, b):
+            if key.endswith("margin"):
+                assert float(x) == pytest.approx(float(y), abs=2e-4)   # margins from 6-digit values
+            else:
+                assert x == y, key
+    doc = json.loads((tmp_path / "re.json").read_text())
+    assert doc["options"][0]["results_file"] == str(tmp_path / "a.json") and doc["options"][1]["results_file"] is None
+    winner = [[line for line in r.output.splitlines() if line.startswith(("Winner", "No winner", "Verdicts"))]
+              for r in (full, reuse)]
+    assert winner[0] == winner[1] and len(winner[0]) == 2
+
+
+@pytest.mark.parametrize("change, reason", [
+    ("case", "none of the cases compared"),
+    ("version", "written by grounding 0.0.0"),
+    ("report", "draw each option's maps"),
+    ("converge", "--converge"),
+])
+def test_compare_solves_again_when_the_results_do_not_stand_for_the_case(tmp_path, variants, monkeypatch, change,
+                                                                         reason):
+    """Results are reused only for the same case bytes, the same tool version, a plain study, and outputs
+    that need no maps; otherwise the case is solved and the terminal says why."""
+    import grounding.options.runner as runner
+
+    files = _option_files(tmp_path, variants, n=1)
+    rec = tmp_path / "a.json"
+    assert CliRunner().invoke(main, ["study", files[0], "--quiet", "--json", str(rec)]).exit_code == 0
+    doc = json.loads(rec.read_text())
+    if change == "case":
+        with open(files[0], "a") as f:
+            f.write("# edited after the study\n")
+    elif change == "version":
+        doc["tool"]["version"] = "0.0.0"
+    elif change == "converge":
+        doc["diagnostics"]["convergence"] = {"converged": True, "rounds": []}
+    rec.write_text(json.dumps(doc))
+    solved = []
+    real = runner.run_options
+    monkeypatch.setattr(runner, "run_options", lambda cases, **kw: solved.append(len(cases)) or real(cases, **kw))
+    extra = ["--report", str(tmp_path / "r.pdf")] if change == "report" else []
+    res = CliRunner().invoke(main, ["compare", *files, "--results", str(rec), "--quiet", *extra])
+    assert res.exit_code == 0, res.output
+    assert solved == [1]
+    note = [line for line in res.output.splitlines() if line.startswith(str(rec))]
+    assert len(note) == 1 and "not reused" in note[0] and reason in note[0], res.output
+
+
+def test_compare_refuses_a_results_file_that_is_not_one_in_one_line(tmp_path, variants):
+    files = _option_files(tmp_path, variants, n=1)
+    bad = tmp_path / "bad.json"
+    bad.write_text('{"format": 1, "summary": [}')
+    res = CliRunner().invoke(main, ["compare", *files, "--results", str(bad), "--quiet"])
+    assert res.exit_code == 2
+    lines = res.output.strip().splitlines()
+    assert len(lines) == 1 and "bad.json" in lines[0] and "not JSON" in lines[0], res.output
+
+
 def test_design_command_writes_a_case_that_studies(tmp_path, sweep_file):
     out = tmp_path / "chosen.yaml"
     res = CliRunner().invoke(main, ["design", str(sweep_file), "--by", "cost", "--out", str(out), "--quiet"])

@@ -24,18 +24,16 @@ def _v(x: float) -> str:
 
 
 def _verdicts(o: Option) -> str:
-    r = o.result
-    flags = [("T", r.touch_ok), ("S", r.step_ok), ("M", r.mesh_ok), ("C", r.conductor.ok)]
-    if r.separate:
+    r = o.outcome
+    flags = [("T", r.touch_ok), ("S", r.step_ok), ("M", r.mesh_ok), ("C", r.conductor_ok)]
+    if r.separate_ok is not None:
         flags.append(("X", r.separate_ok))
     return " ".join(f"{k}:{'ok' if ok else ('—' if ok is None else 'FAIL')}" for k, ok in flags)
 
 
 def _governing(o: Option) -> str:
     """Names of the governing scenarios of touch and step ('' without scenarios)."""
-    r = o.result
-    names = list(dict.fromkeys(n for n in (r.touch_check.scenario, r.step_check.scenario) if n))
-    return " / ".join(names)
+    return " / ".join(o.outcome.governing_scenarios)
 
 
 def _pct(margin: float) -> str:
@@ -54,16 +52,16 @@ def _cost(o: Option) -> str:
 def compare_table(options: list[Option], best: int | None, reason: str) -> str:
     """A column per option."""
     rows = [
-        ("Rg", [f"{o.result.grid_resistance:.4f} Ω" for o in options]),
-        ("GPR", [_v(o.result.ground_potential_rise) for o in options]),
-        ("Worst touch", [_v(o.result.worst_touch) for o in options]),
-        ("  limit / margin", [f"{o.result.tolerable_touch:,.0f} V / {o.touch_margin * 100:+.0f}%" for o in options]),
-        ("Worst step", [_v(o.result.worst_step) for o in options]),
-        ("  limit / margin", [_limit_margin(o.result.tolerable_step, o.step_margin) for o in options]),
-        ("Worst mesh", [_v(o.result.mesh_check.worst.value) if o.result.mesh_check.worst else "—" for o in options]),
+        ("Rg", [f"{o.outcome.grid_resistance:.4f} Ω" for o in options]),
+        ("GPR", [_v(o.outcome.ground_potential_rise) for o in options]),
+        ("Worst touch", [_v(o.outcome.worst_touch) for o in options]),
+        ("  limit / margin", [f"{o.outcome.tolerable_touch:,.0f} V / {o.touch_margin * 100:+.0f}%" for o in options]),
+        ("Worst step", [_v(o.outcome.worst_step) for o in options]),
+        ("  limit / margin", [_limit_margin(o.outcome.tolerable_step, o.step_margin) for o in options]),
+        ("Worst mesh", [_v(o.outcome.worst_mesh) if o.outcome.worst_mesh is not None else "—" for o in options]),
         ("Verdicts", [_verdicts(o) for o in options]),
         *([("Worst scenario", [_governing(o) or "—" for o in options])]
-          if any(o.result.scenarios for o in options) else []),
+          if any(o.outcome.has_scenarios for o in options) else []),
         ("All pass", ["yes" if o.passes else "NO" for o in options]),
         ("Conductor", [f"{o.quantities.conductor_length_m:,.0f} m" for o in options]),
         ("Rods", [f"{o.quantities.rod_count} / {o.quantities.rod_length_m:,.0f} m" for o in options]),
@@ -89,16 +87,16 @@ def compare_table(options: list[Option], best: int | None, reason: str) -> str:
 
 def sweep_table(options: list[Option]) -> str:
     """A row per option, passing ones marked."""
-    scen = any(o.result.scenarios for o in options)
+    scen = any(o.outcome.has_scenarios for o in options)
     head = f"{'#':>4}  {'pass':<4} {'Rg Ω':>8} {'touch V':>9} {'margin':>7} {'step V':>8} {'margin':>7} " \
            f"{'mesh V':>8} {'metal kg':>9} {'cost':>10}  " + ("worst scenario  " if scen else "") + "settings"
     out = [head, "-" * len(head)]
     for i, o in enumerate(options, start=1):
-        mesh = o.result.mesh_check.worst
-        out.append(f"{i:>4}  {'✓' if o.passes else '✗':<4} {o.result.grid_resistance:8.4f} "
-                   f"{o.result.worst_touch:9,.0f} {o.touch_margin * 100:+6.0f}% "
-                   f"{o.result.worst_step:8,.0f} {_pct(o.step_margin):>7} "
-                   f"{(f'{mesh.value:,.0f}' if mesh else '—'):>8} "
+        mesh = o.outcome.worst_mesh
+        out.append(f"{i:>4}  {'✓' if o.passes else '✗':<4} {o.outcome.grid_resistance:8.4f} "
+                   f"{o.outcome.worst_touch:9,.0f} {o.touch_margin * 100:+6.0f}% "
+                   f"{o.outcome.worst_step:8,.0f} {_pct(o.step_margin):>7} "
+                   f"{(f'{mesh:,.0f}' if mesh is not None else '—'):>8} "
                    f"{o.quantities.mass_kg:9,.0f} {_cost(o):>10}  " + (f"{_governing(o)[:15]:<16}" if scen else "")
                    + o.label)
     n = sum(o.passes for o in options)
@@ -109,9 +107,10 @@ def sweep_table(options: list[Option]) -> str:
 
 def option_dict(o: Option) -> dict:
     """One option for JSON: the study's summary plus quantities and margins."""
-    doc = results_dict(o.result)
+    doc = o.recorded.document if o.result is None else results_dict(o.result)
     q = o.quantities
-    return {"label": o.label, "case": o.result.case.source, "title": o.result.case.title,
+    return {"label": o.label, "case": o.outcome.source, "title": o.outcome.title,
+            "results_file": None if o.recorded is None else o.recorded.path,
             "summary": doc["summary"], "simplified": doc["simplified"], "conductor": doc["conductor"],
             "quantities": {"conductor_length_m": q.conductor_length_m, "rod_count": q.rod_count,
                            "rod_length_m": q.rod_length_m, "mass_kg": round(q.mass_kg, 3),
@@ -139,12 +138,12 @@ def options_csv(options: list[Option]) -> bytes:
                 "max_step_v", "tolerable_step_v", "step_margin", "max_mesh_v", "passes", "conductor_length_m",
                 "rod_count", "rod_length_m", "mass_kg", "cost"])
     for i, o in enumerate(options, start=1):
-        r, q = o.result, o.quantities
+        r, q = o.outcome, o.quantities
         w.writerow([i, o.label, f"{r.grid_resistance:.6g}", f"{r.ground_potential_rise:.6g}",
                     f"{r.worst_touch:.6g}", f"{r.tolerable_touch:.6g}", f"{o.touch_margin:.4f}",
                     f"{r.worst_step:.6g}", "" if r.tolerable_step is None else f"{r.tolerable_step:.6g}",
                     "" if r.tolerable_step is None else f"{o.step_margin:.4f}",
-                    f"{r.mesh_check.worst.value:.6g}" if r.mesh_check.worst else "", int(o.passes),
+                    f"{r.worst_mesh:.6g}" if r.worst_mesh is not None else "", int(o.passes),
                     f"{q.conductor_length_m:.2f}", q.rod_count, f"{q.rod_length_m:.2f}", f"{q.mass_kg:.2f}",
                     "" if q.cost is None else f"{q.cost:.2f}"])
     return buf.getvalue().encode("utf-8")
@@ -216,11 +215,11 @@ def comparison_report(options: list[Option], best: int | None, reason: str, date
     story = [P("Layout options", "h1"), _caution_box(st), Spacer(1, 4 * mm)]
     head = ["", *[f"{i + 1}{' ★' if i == best else ''}" for i in range(len(options))]]
     rows = [head,
-            ["Rg", *[f"{o.result.grid_resistance:.3f} Ω" for o in options]],
-            ["GPR", *[_v(o.result.ground_potential_rise) for o in options]],
-            ["Touch / limit", *[f"{_v(o.result.worst_touch)} / {o.result.tolerable_touch:,.0f}"
+            ["Rg", *[f"{o.outcome.grid_resistance:.3f} Ω" for o in options]],
+            ["GPR", *[_v(o.outcome.ground_potential_rise) for o in options]],
+            ["Touch / limit", *[f"{_v(o.outcome.worst_touch)} / {o.outcome.tolerable_touch:,.0f}"
                                 for o in options]],
-            ["Step / limit", *[f"{_v(o.result.worst_step)} / " + ("none" if o.result.tolerable_step is None else f"{o.result.tolerable_step:,.0f}")
+            ["Step / limit", *[f"{_v(o.outcome.worst_step)} / " + ("none" if o.outcome.tolerable_step is None else f"{o.outcome.tolerable_step:,.0f}")
                                for o in options]],
             ["All pass", *["PASS" if o.passes else "FAIL" for o in options]],
             ["Metal", *[f"{o.quantities.mass_kg:,.0f} kg" for o in options]],
@@ -230,7 +229,7 @@ def comparison_report(options: list[Option], best: int | None, reason: str, date
         story.append(_table(rows, [30 * mm] + [col] * len(options), st))
     story.append(Spacer(1, 3 * mm))
     for i, o in enumerate(options, start=1):
-        story.append(P(f"{i}: {o.label} — {o.result.case.source}", "small"))
+        story.append(P(f"{i}: {o.label} — {o.outcome.source}", "small"))
     story.append(P(f"Winner: option {best + 1}: {reason}." if best is not None else f"No winner: {reason}.", "h2"))
     for i, o in enumerate(options, start=1):
         story.append(PageBreak())

@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import cmath
-import math
-
 import json
 import math
 
@@ -233,7 +231,8 @@ def results_dict(r: StudyResult) -> dict:
     return {
         "format": RESULTS_FORMAT,
         "tool": {"name": "grounding", "version": __version__},
-        "case": {"file": c.source, "sha256": c.sha256, "title": c.title},
+        "case": {"file": c.source, "sha256": c.sha256, "title": c.title,
+                 "inputs": [{"kind": k, "file": f, "sha256": h} for k, f, h in c.input_files()]},
         "summary": summary,
         "limits": {
             "surface_layer_factor_cs": _num(r.limits.cs),
