@@ -182,9 +182,16 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
                                  time.perf_counter() - t0)
 
 
-def sample_worst(case: Case, samples: int, seed: int = 0) -> dict[str, np.ndarray]:
+def _sample_row(case: Case, x: np.ndarray) -> dict:
+    """One Monte Carlo sample: the study's values with the soil parameters ``x``."""
+    return _values(run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False,
+                             screen_drop=False))
+
+
+def sample_worst(case: Case, samples: int, seed: int = 0, workers: int = 1) -> dict[str, np.ndarray]:
     """Monte Carlo reference: the results of ``samples`` studies with soil parameters drawn from the case's
-    log-normal model (used to check the first-order propagation)."""
+    log-normal model (used to check the first-order propagation); ``workers`` local processes share the
+    samples (the same draws and results in the same order as one process)."""
     got = parameter_covariance(case)
     if got is None:
         raise ValueError("the case gives no soil uncertainty")
@@ -193,6 +200,11 @@ def sample_worst(case: Case, samples: int, seed: int = 0) -> dict[str, np.ndarra
     _, x0 = soil_parameters(case.soil)
     rng = np.random.default_rng(seed)
     draws = rng.multivariate_normal(x0, cov, size=samples)
-    rows = [_values(run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False, screen_drop=False))
-            for x in draws]
+    if workers > 1:
+        from concurrent.futures import ProcessPoolExecutor
+
+        with ProcessPoolExecutor(max_workers=workers) as pool:
+            rows = list(pool.map(_sample_row, [case] * samples, draws, chunksize=max(1, samples // (4 * workers))))
+    else:
+        rows = [_sample_row(case, x) for x in draws]
     return {k: np.array([np.nan if r[k] is None else r[k] for r in rows]) for k in rows[0]}
