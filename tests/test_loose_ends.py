@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from grounding.case_loader import parse_case
@@ -190,3 +191,70 @@ def test_report_plan_is_a_vector_drawing_at_its_stated_scale():
     longest = max(abs(x.x2 - x.x1) for x in lines)
     assert longest == pytest.approx(60.0 * 1000 / n * mm, rel=1e-9)      # the grid's 60 m side
     assert n == 500                                                       # 68 m of metal fit 165 mm at 1:500
+
+
+LARGE_YARD = """\
+    grids:
+      - {origin: [0, 0], size: [150, 120], meshes: [10, 8], depth: 0.7, diameter: 0.0134}
+    conductors:
+      - {start: [150, 60, 0.7], end: [175, 60, 0.7], diameter: 0.0134}
+    rods:
+      - {top: [0, 0, 0.7], length: 6, diameter: 0.016}
+      - {top: [75, 0, 0.7], length: 6, diameter: 0.016}
+      - {top: [150, 120, 0.7], length: 6, diameter: 0.016}
+    """
+LARGE_YARD_EXTRA = """\
+    separate_electrodes:
+      - name: fence
+        connection: floating
+        conductors:
+          - {start: [-3, -3, 0.3], end: [153, -3, 0.3], diameter: 0.01}
+          - {start: [153, -3, 0.3], end: [153, 123, 0.3], diameter: 0.01}
+    discretization: {max_segment: 6.0}
+    surface: {margin: 5, resolution: 5.0}
+    """
+
+
+@pytest.fixture(scope="module")
+def large_yard():
+    return run_study(parse_case(case_text(LARGE_YARD, extra=LARGE_YARD_EXTRA)), estimate_error=False)
+
+
+def test_plan_mesh_label_crosses_no_conductor_on_a_large_yard(large_yard):
+    """On a 150 × 120 m yard the mesh label ran across the grid's edge conductor and a corner rod; it is now a
+    dimension under the plan, clear of all metal (checked in display coordinates)."""
+    from matplotlib.transforms import Bbox
+
+    from grounding.outputs.figures import plan_figure
+
+    fig = plan_figure(large_yard).figure
+    ax = fig.axes[0]
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    labels = [t for t in ax.texts if t.get_text().startswith("mesh")]
+    assert len(labels) == 1 and labels[0].get_text() == "mesh 15.0 × 15.0 m"
+    box = labels[0].get_window_extent(renderer)
+    c = large_yard.segments.conductors
+    ends = ax.transData.transform(np.vstack([c.start[:, :2], c.end[:, :2]]))
+    n = len(c.start)
+    for a, b in zip(ends[:n], ends[n:]):
+        # sample each conductor finely in display space: no point inside the label's box
+        pts = a + np.linspace(0, 1, 400)[:, None] * (b - a)
+        assert not box.count_contains(pts), (a, b)
+    assert Bbox.intersection(box, ax.bbox) is not None          # and the label is on the plot
+
+
+def test_leakage_figure_colours_the_energised_system_only(large_yard):
+    """A floating fence 3 m outside the grid, drawn in the same colours, hid the grid's edge conductors (the
+    end effect the figure is for); separate metal is now thin grey underneath."""
+    from matplotlib.collections import LineCollection
+
+    from grounding.outputs.figures import leakage_figure
+
+    ax = leakage_figure(large_yard).figure.axes[0]
+    coloured = [lc for lc in ax.collections if isinstance(lc, LineCollection) and lc.get_array() is not None]
+    s = large_yard.segments
+    main_lines = int((~s.is_rod & (s.group == 0)).sum())
+    assert len(coloured) == 1 and len(coloured[0].get_segments()) == main_lines
+    grey = [lc for lc in ax.collections if isinstance(lc, LineCollection) and lc.get_array() is None]
+    assert len(grey) == 1 and len(grey[0].get_segments()) == int((s.group != 0).sum())

@@ -140,9 +140,14 @@ def plan_figure(r: StudyResult) -> Rendered:
     ax.text(xd, (lo[1] + hi[1]) / 2, f"{hi[1] - lo[1]:.1f} m", ha="center", va="center", rotation=90,
             fontsize=8, bbox=dict(fc="white", ec="none", pad=0.5))
     for g in r.case.electrodes.grids:
+        # the mesh size as a dimension under the grid's first mesh: outside the metal, so that the text
+        # never crosses a conductor or a rod whatever the scale
         dx, dy = g.size[0] / g.meshes[0], g.size[1] / g.meshes[1]
-        ax.text(g.origin[0] + dx / 2, g.origin[1] + g.size[1] - dy / 2, f"mesh\n{dx:.1f} × {dy:.1f} m",
-                ha="center", va="center", fontsize=6.5, color="#444444")
+        ym = lo[1] - 0.22 * pad
+        ax.annotate("", (g.origin[0], ym), (g.origin[0] + dx, ym),
+                    arrowprops=dict(arrowstyle="|-|,widthA=0.3,widthB=0.3", lw=0.7, color="#444444", shrinkA=0, shrinkB=0))
+        ax.annotate(f"mesh {dx:.1f} × {dy:.1f} m", (g.origin[0] + dx, ym), xytext=(4, 0), textcoords="offset points",
+                    ha="left", va="center", fontsize=6.5, color="#444444")
     for k, (x, y) in enumerate(r.case.probes, start=1):
         ax.plot([x], [y], marker="^", ms=6, color="#b35806", ls="none")
         ax.annotate(f"P{k}", (x, y), xytext=(4, -10), textcoords="offset points", fontsize=8, color="#b35806")
@@ -235,7 +240,7 @@ def touch_figure(r: StudyResult) -> Rendered:
         cb.ax.axhline(z.tolerable_touch, color="#d7301f", lw=2)
     worst = r.touch_check.worst or s.max_touch
     _mark(ax, worst, f"worst {worst.value:,.0f} V")
-    verdict = "PASS" if r.touch_ok else "FAIL: hatched areas exceed"
+    verdict = "PASS" if r.touch_ok else "FAIL (hatched: above the limit)"
     where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
     ax.set_title(f"Touch voltage; {where} ({r.body_weight} kg, red line); {verdict}", fontsize=9)
     fig.tight_layout()
@@ -338,11 +343,18 @@ def leakage_figure(r: StudyResult) -> Rendered:
     seg = r.segments
     density = r.segment_currents / seg.length
     fig, ax = plt.subplots(figsize=(FIGSIZE[0], 4.6), dpi=DPI)
-    horizontal = ~seg.is_rod
+    # the energised system in colour; separate (floating or remote) metal thin and grey underneath, so that it
+    # does not hide the grid's edge conductors (its currents are reported in the separate-electrode table)
+    main = seg.conductors.group[seg.conductor] == 0
+    other = ~seg.is_rod & ~main
+    if other.any():
+        ax.add_collection(LineCollection(np.stack([seg.start[other, :2], seg.end[other, :2]], axis=1),
+                                         colors="#9a9a9a", linewidths=0.8, linestyles="--", zorder=1))
+    horizontal = ~seg.is_rod & main
     lines = np.stack([seg.start[horizontal, :2], seg.end[horizontal, :2]], axis=1)
-    lc = LineCollection(lines, array=density[horizontal], cmap="viridis", linewidths=3.0)
+    lc = LineCollection(lines, array=density[horizontal], cmap="viridis", linewidths=3.0, zorder=2)
     ax.add_collection(lc)
-    rods = seg.is_rod
+    rods = seg.is_rod & main
     if rods.any():
         # a rod's leakage per metre, shown at its top as the mean over its segments
         top = {}
@@ -354,10 +366,10 @@ def leakage_figure(r: StudyResult) -> Rendered:
     _fit_to_metal(ax, seg)
     cb = fig.colorbar(lc, ax=ax, shrink=0.85)
     cb.set_label("leakage current per metre (A/m)")
-    ax.set_title(f"Leakage current along the conductors (IG = {r.grid_current / 1000:,.2f} kA; squares: rods, "
-                 "mean per metre)", fontsize=9)
+    ax.set_title(f"Leakage current along the energised conductors (IG = {r.grid_current / 1000:,.2f} kA; squares: "
+                 "rods, mean per metre" + ("; grey dashed: separate metal" if other.any() else "") + ")", fontsize=9)
     fig.tight_layout()
-    return Rendered("leakage", "Leakage current", fig, float(density.max()))
+    return Rendered("leakage", "Leakage current", fig, float(density[main].max()))
 
 
 def metal_potential_figure(r: StudyResult) -> Rendered | None:

@@ -197,16 +197,21 @@ def _electrode_rows(c) -> list[list[str]]:
     """Every grid, conductor and rod with its coordinates, for a reviewer without the case file."""
     rows = [["Element", "Geometry", "Size"]]
     systems = [("", c.electrodes)] + [(f"{e.name} ({e.connection}): ", e) for e in c.separate_electrodes]
+
+    def label(prefix, x):
+        # within a named separate electrode, its own key (conductors[0]) is enough
+        return prefix + (x.name or (x.key.split(".", 1)[-1] if prefix else x.key))
+
     for prefix, el in systems:
         for g in el.grids:
-            rows.append([prefix + (g.name or g.key), f"grid, origin ({g.origin[0]:g}, {g.origin[1]:g}), size "
+            rows.append([label(prefix, g), f"grid, origin ({g.origin[0]:g}, {g.origin[1]:g}), size "
                          f"{g.size[0]:g} × {g.size[1]:g}, {g.meshes[0]} × {g.meshes[1]} meshes, depth {g.depth:g}",
                          _size_text(g, c.electrodes.material)])
         for k in el.conductors:
-            rows.append([prefix + (k.name or k.key), "from ({:g}, {:g}, {:g}) to ({:g}, {:g}, {:g})".format(*k.start, *k.end),
+            rows.append([label(prefix, k), "from ({:g}, {:g}, {:g}) to ({:g}, {:g}, {:g})".format(*k.start, *k.end),
                          _size_text(k, c.electrodes.material)])
         for rd in el.rods:
-            rows.append([prefix + (rd.name or rd.key), f"rod, top ({rd.top[0]:g}, {rd.top[1]:g}, {rd.top[2]:g}), "
+            rows.append([label(prefix, rd), f"rod, top ({rd.top[0]:g}, {rd.top[1]:g}, {rd.top[2]:g}), "
                          f"length {rd.length:g}", _size_text(rd, c.electrodes.material)])
     return rows
 
