@@ -18,6 +18,9 @@ from .errors import CaseError
 
 #: A diameter at or above this (m) is taken for millimetres given as metres.
 MM_SUSPECT_DIAMETER = 0.25
+#: Shortest straight electrode piece accepted, m (also never shorter than its diameter): the thin-wire model
+#: needs pieces longer than they are thick, and the geometry joins points closer than 0.1 mm.
+MIN_ELECTRODE_LENGTH = 0.001
 #: Physical range of every number, by unit (documented in docs/case-file.md): lengths and coordinates
 #: within 10 km, resistivities 0.01 Ω·m (sea water is about 0.2) to 10^6 Ω·m (dry rock), currents up to
 #: 1 MA, frequencies up to 1 kHz, voltages up to 100 MV.
@@ -221,6 +224,18 @@ class Checks:
             raise self.doc.fail(
                 path, f"= {d:g} m looks like millimetres given as metres; give metres, e.g. {d / 1000:g} for {d:g} mm")
         return d
+
+    def long_enough(self, path: str, length: float, diameter: float, what: str = "") -> float:
+        """A straight electrode piece's length (m), refused when shorter than its diameter or 1 mm."""
+        shortest = max(MIN_ELECTRODE_LENGTH, diameter)
+        if length <= 1e-6:
+            raise self.doc.fail(path, f"{what}has zero length (start = end); give two different points")
+        if length < shortest:
+            raise self.doc.fail(path, f"{what}is {length * 1000:.3g} mm long, shorter than "
+                                      f"{'its diameter' if diameter > MIN_ELECTRODE_LENGTH else '1 mm'} "
+                                      f"({shortest * 1000:g} mm): the thin-wire model needs pieces longer than "
+                                      "they are thick; remove it or join it to its neighbour")
+        return length
 
     def depth(self, path: str, value: float) -> float:
         if value <= 0:

@@ -162,6 +162,10 @@ class ElectrodeSections(Checks):
         meshes = tuple(self.integer(f"{p}.meshes[{i}]", v, le=MAX_MESHES) for i, v in enumerate(meshes))
         depth = self.depth(f"{p}.depth", self.number(f"{p}.depth", m["depth"], "m"))
         d, area = self.size(p, m)
+        for i, axis in enumerate("xy"):
+            self.long_enough(f"{p}.size[{i}]", size[i], d, "the grid side along " + axis + " ")
+            if meshes[i]:
+                self.long_enough(f"{p}.meshes[{i}]", size[i] / meshes[i], d, f"the mesh spacing along {axis} ")
         return Grid(origin=origin, size=size, meshes=meshes, depth=depth, diameter=d, key=p, name=self._label(p, m),
                     cross_section=area, material=self.element_material(p, m))
 
@@ -172,9 +176,8 @@ class ElectrodeSections(Checks):
         b = self.vector(f"{p}.end", m["end"], 3, "m", "x, y, depth")
         self.depth(f"{p}.start[2]", a[2])
         self.depth(f"{p}.end[2]", b[2])
-        if math.dist(a, b) <= 1e-6:
-            raise self.doc.fail(p, "has zero length (start = end); give two different points")
         d, area = self.size(p, m)
+        self.long_enough(p, math.dist(a, b), d)
         return Conductor(a, b, d, key=p, name=self._label(p, m), cross_section=area, material=self.element_material(p, m))
 
     def rod(self, p: str, value: Any) -> Rod:
@@ -185,5 +188,6 @@ class ElectrodeSections(Checks):
             raise self.doc.fail(f"{p}.top[2]", f"depth must be >= 0 m (z is positive downward), got {top[2]:g}")
         length = self.number(f"{p}.length", m["length"], "m", gt=0)
         d = self.diameter(f"{p}.diameter", m["diameter"])
+        self.long_enough(f"{p}.length", length, d)
         return Rod(top, length, d, key=p, name=self._label(p, m), cross_section=self.cross_section(p, m, d),
                    material=self.element_material(p, m))

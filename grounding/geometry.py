@@ -436,6 +436,8 @@ def segment(case: Case) -> Segments:
         p = np.sort(np.concatenate([[0.0, L[i]], cuts[i], extra]))
         p = p[np.concatenate([[True], np.diff(p) > 1e-4])]
         p[-1] = L[i]
+        if len(p) < 2:                    # a piece shorter than the node tolerance stays one segment
+            p = np.array([0.0, L[i]])
         if len(p) > 2 and p[-1] - p[-2] <= 1e-4:
             p = np.delete(p, -2)
         pieces = np.diff(p)

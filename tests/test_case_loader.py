@@ -205,3 +205,24 @@ def test_oversized_file_is_refused_before_reading(tmp_path):
     with pytest.raises(CaseError) as err:
         load_case(path)
     assert "MB" in str(err.value) and "right file" in str(err.value)
+
+
+@pytest.mark.parametrize("electrodes, message", [
+    # regressions (fuzzing): a 10 µm conductor, a 10 µm rod and a 20 µm grid side crashed the geometry
+    # ("need at least one array to concatenate"); a 0.5 mm conductor 10 mm thick was "valid"
+    ("conductors: [{start: [0, 0, 0.6], end: [0.00001, 0, 0.6], diameter: 0.01}]", "electrodes.conductors[0] is 0.01 mm long"),
+    ("rods: [{top: [0, 0, 0.5], length: 0.00001, diameter: 0.016}]", "electrodes.rods[0].length is 0.01 mm long"),
+    ("grids: [{origin: [0, 0], size: [0.00002, 10], meshes: [1, 1], depth: 0.5, diameter: 0.01}]",
+     "electrodes.grids[0].size[0] the grid side along x is 0.02 mm long"),
+    ("grids: [{origin: [0, 0], size: [0.5, 10], meshes: [100, 1], depth: 0.5, diameter: 0.01}]",
+     "the mesh spacing along x is 5 mm long, shorter than its diameter"),
+    ("conductors: [{start: [0, 0, 0.6], end: [0.0005, 0, 0.6], diameter: 0.01}]", "shorter than its diameter (10 mm)"),
+])
+def test_electrodes_shorter_than_they_are_thick_are_refused_in_one_line(tmp_path, electrodes, message):
+    from tests.conftest import case_text
+
+    path = tmp_path / "short.yaml"
+    path.write_text(case_text(electrodes))
+    with pytest.raises(CaseError) as err:
+        load_case(path)
+    assert message in str(err.value) and "\n" not in str(err.value), str(err.value)

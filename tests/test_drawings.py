@@ -95,6 +95,50 @@ def test_arcs_on_a_conductor_layer_are_refused(tmp_path):
     assert run.returncode == 2 and "approximate curves by straight chords" in run.stderr
 
 
+def test_drawing_in_feet_and_lowercase_layer_names_equal_metres(tmp_path):
+    """A drawing in feet ($INSUNITS 2) read with units: ft is the same layout (1 ft = 0.3048 m exactly, by
+    definition); DXF layer names are case-insensitive, so 'earth' finds layer EARTH."""
+    a = run_study(load_case(_drawing_case(tmp_path)), estimate_error=False)
+    path = _drawing_case(tmp_path, units="ft", scale=1 / 0.3048, code=2)
+    path.write_text(path.read_text().replace("conductor_layers: [EARTH]", "conductor_layers: [earth]"))
+    b = run_study(load_case(path), estimate_error=False)
+    # the reader is exact to rounding (coordinates 4e-15 m apart) ...
+    np.testing.assert_allclose(b.segments.start, a.segments.start, rtol=0, atol=1e-13)
+    np.testing.assert_allclose(b.segments.end, a.segments.end, rtol=0, atol=1e-13)
+    # ... and Rg moves 3e-6 with that rounding: on a regular grid many segment pairs sit exactly at the
+    # distance where the assembly switches quadrature tier, and a 1e-16 change flips them (the same case typed
+    # in YAML with those rounded coordinates gives the same Rg to the last digit; measured)
+    assert b.grid_resistance == pytest.approx(a.grid_resistance, rel=1e-5)
+
+
+def _add_and_check(tmp_path, add):
+    """Add entities to the test drawing with ``add(modelspace)``; the check's exit code and stderr."""
+    path = _drawing_case(tmp_path)
+    doc = ezdxf.readfile(tmp_path / "yard.dxf")
+    add(doc.modelspace())
+    doc.saveas(tmp_path / "yard.dxf")
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    return run.returncode, run.stderr
+
+
+@pytest.mark.parametrize("what, add, message", [
+    # regressions from a fuzz campaign of DXF inputs: each was read silently or crashed
+    ("bulged polyline", lambda m: m.add_lwpolyline([(0, 0, 0, 0, 0.5), (10, 0, 0, 0, 0), (10, 10, 0, 0, 0)],
+                                                   format="xyseb", dxfattribs={"layer": "EARTH"}),
+     "with arc segments (bulges)"),
+    ("polyface", lambda m: m.add_polyface(dxfattribs={"layer": "EARTH"}).append_face([(0, 0, 0), (5, 0, 0), (5, 5, 0)]),
+     "mesh or polyface"),
+    ("NaN coordinate", lambda m: m.add_line((float("nan"), 0), (5, 5), dxfattribs={"layer": "EARTH"}),
+     "has the coordinate nan"),
+    ("NaN rod depth", lambda m: m.add_point((3, 3, float("nan")), dxfattribs={"layer": "RODS"}), "z = nan"),
+    ("10 µm line", lambda m: m.add_line((3, 5), (3.00001, 5), dxfattribs={"layer": "EARTH"}),
+     "shorter than its diameter"),
+])
+def test_bad_drawing_entities_refused_in_one_line(tmp_path, what, add, message):
+    code, err = _add_and_check(tmp_path, add)
+    assert code == 2 and len(err.strip().splitlines()) == 1 and message in err, (what, err)
+
+
 def test_dxf_out_layers_and_touch_limit_contour(tmp_path):
     """The touch-limit line of the DXF lies where the touch voltage equals the reported limit (away from
     the edge of the touch area, where the touch map stops)."""
