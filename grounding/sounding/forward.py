@@ -37,23 +37,33 @@ def point_source_kernel(r: np.ndarray, resistivities, thicknesses) -> np.ndarray
     """F(r) = ∫0^∞ T1(λ) J0(λ r) dλ, Ω (surface potential = I F / (2π)); r in m, shape (...)."""
     base, w = _filter()
     r = np.asarray(r, float)
-    lam = base / r[..., None]
-    return resistivity_transform(lam, resistivities, thicknesses) @ w / r
+    # each distinct distance once (soundings repeat spacings across traverses, and Wenner's 2a is often
+    # another reading's a): the same numbers, fewer transforms
+    distinct, back = np.unique(r, return_inverse=True)
+    lam = base / distinct[:, None]
+    return (resistivity_transform(lam, resistivities, thicknesses) @ w / distinct)[back].reshape(r.shape)
+
+
+def _at_once(first: np.ndarray, second: np.ndarray, resistivities, thicknesses) -> tuple[np.ndarray, np.ndarray]:
+    """F at two sets of distances in one pass (shared distances computed once)."""
+    f = point_source_kernel(np.concatenate([first.ravel(), second.ravel()]), resistivities, thicknesses)
+    return f[:first.size].reshape(first.shape), f[first.size:].reshape(second.shape)
 
 
 def wenner(spacing: np.ndarray, resistivities, thicknesses) -> np.ndarray:
     """Wenner apparent resistivity ρa = 2a [F(a) − F(2a)], Ω·m, for spacings a (m)."""
     a = np.asarray(spacing, float)
-    return 2.0 * a * (point_source_kernel(a, resistivities, thicknesses)
-                      - point_source_kernel(2 * a, resistivities, thicknesses))
+    near, far = _at_once(a, 2 * a, resistivities, thicknesses)
+    return 2.0 * a * (near - far)
 
 
 def schlumberger(current_half: np.ndarray, potential_half: np.ndarray, resistivities, thicknesses) -> np.ndarray:
     """Schlumberger ρa = (L² − l²)/(2l) [F(L − l) − F(L + l)], Ω·m, L = AB/2, l = MN/2 (m)."""
     L = np.asarray(current_half, float)
     l = np.asarray(potential_half, float)
-    return (L * L - l * l) / (2 * l) * (point_source_kernel(L - l, resistivities, thicknesses)
-                                        - point_source_kernel(L + l, resistivities, thicknesses))
+    L, l = np.broadcast_arrays(L, l)
+    near, far = _at_once(L - l, L + l, resistivities, thicknesses)
+    return (L * L - l * l) / (2 * l) * (near - far)
 
 
 def wenner_geometric_factor(spacing, probe_depth) -> np.ndarray:
