@@ -258,3 +258,21 @@ def test_leakage_figure_colours_the_energised_system_only(large_yard):
     assert len(coloured) == 1 and len(coloured[0].get_segments()) == main_lines
     grey = [lc for lc in ax.collections if isinstance(lc, LineCollection) and lc.get_array() is None]
     assert len(grey) == 1 and len(grey[0].get_segments()) == int((s.group != 0).sum())
+
+
+def test_combined_fit_figure_marks_each_traverse():
+    """The report's sounding plot drew all traverses of a combined fit alike; a reviewer could not see
+    whether they agree. Each traverse now has its own marker and legend entry."""
+    from grounding.outputs.soil_outputs import fit_figure
+    from grounding.sounding.fit import fit_soil
+    from grounding.sounding.readings import load_readings
+    from tests.test_cli import ROOT
+
+    r = load_readings(ROOT / "cases" / "kestrel-bend-wenner.csv")
+    names = list(dict.fromkeys(r.traverse))
+    assert len(names) >= 2
+    ax = fit_figure(fit_soil(r, 1)).axes[0]
+    labels = [line.get_label() for line in ax.lines]
+    assert [f"readings, traverse {n}" for n in names] == [x for x in labels if x.startswith("readings")]
+    markers = {line.get_marker() for line in ax.lines if line.get_label().startswith("readings")}
+    assert len(markers) == len(names)

@@ -108,12 +108,26 @@ def fit_text(fit: SoilFit, name: str = "") -> str:
     return "\n".join(lines)
 
 
+#: Marker and colour per traverse when several are drawn on one plot.
+TRAVERSE_STYLES = (("o", "#1f3b73"), ("s", "#b35806"), ("^", "#1b7837"), ("D", "#5e3c99"), ("v", "#d7301f"))
+
+
 def fit_figure(fit: SoilFit, title: str = ""):
     """Readings and model curves on log–log axes; down-weighted readings drawn hollow in red."""
     r = fit.readings
     fig, ax = plt.subplots(figsize=(6.5, 4.2), dpi=160)
     keep = ~fit.best.down_weighted
-    ax.loglog(r.spacing[keep], r.apparent_resistivity[keep], "o", color="black", ms=4.5, label="readings")
+    names = list(dict.fromkeys(r.traverse))
+    if len(names) > 1:
+        # several traverses fitted together: each with its own marker, so a reviewer sees whether they agree
+        traverse = np.array(r.traverse, dtype=object)
+        for k, name in enumerate(names):
+            marker, color = TRAVERSE_STYLES[k % len(TRAVERSE_STYLES)]
+            sel = keep & (traverse == name)
+            ax.loglog(r.spacing[sel], r.apparent_resistivity[sel], marker, color=color, ms=4.5, ls="none",
+                      label=f"readings, traverse {name or '(unnamed)'}")
+    else:
+        ax.loglog(r.spacing[keep], r.apparent_resistivity[keep], "o", color="black", ms=4.5, label="readings")
     if (~keep).any():
         ax.loglog(r.spacing[~keep], r.apparent_resistivity[~keep], "o", mfc="none", mec="#d7301f", ms=7,
                   label="down-weighted")
@@ -138,10 +152,6 @@ def fit_figure(fit: SoilFit, title: str = ""):
     ax.set_title(title or f"{r.array.capitalize()} sounding and fitted models", fontsize=10)
     fig.tight_layout()
     return fig
-
-
-#: Marker and colour per traverse when several are drawn on one plot.
-TRAVERSE_STYLES = (("o", "#1f3b73"), ("s", "#b35806"), ("^", "#1b7837"), ("D", "#5e3c99"), ("v", "#d7301f"))
 
 
 def traverses_figure(fits: dict):
