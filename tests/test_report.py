@@ -142,3 +142,20 @@ def test_report_lists_every_rod_coordinate_and_reading(tmp_path):
     for s, rho in zip(rd.spacing, rd.apparent_resistivity):
         assert f"{rho:.4g}" in text
     assert "largest spacing" in text
+
+
+def test_report_leaves_no_figure_open():
+    """Building a report left the unused raster plan open: in a long-running process (the Python API, many
+    reports) matplotlib kept every one (it warned after 20)."""
+    import matplotlib.pyplot as plt
+
+    from grounding import parse_case, run_study
+    from grounding.outputs.report_pdf import build_report
+    from tests.conftest import case_text
+
+    r = run_study(parse_case(case_text(
+        "grids: [{origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, diameter: 0.01}]\n",
+        extra="discretization: {max_segment: 2}\nsurface: {resolution: 2}\n")), estimate_error=False)
+    before = set(plt.get_fignums())
+    build_report(r, date="2026-12-02")
+    assert set(plt.get_fignums()) == before

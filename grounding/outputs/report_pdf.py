@@ -629,4 +629,6 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         _table([["Reviewer name", ""], ["Licence number", ""], ["Date", ""], ["Signature", ""], ["Remarks", ""]],
                [45 * mm, 125 * mm], st, header=False, row_heights=[9 * mm, 9 * mm, 9 * mm, 16 * mm, 30 * mm])]))
     doc.build(story)
+    for fig in figs.values():          # the raster plan is not used (vector plan instead): free every figure
+        matplotlib.pyplot.close(fig.figure)
     return buf.getvalue()
