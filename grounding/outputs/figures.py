@@ -366,8 +366,9 @@ def leakage_figure(r: StudyResult) -> Rendered:
     _fit_to_metal(ax, seg)
     cb = fig.colorbar(lc, ax=ax, shrink=0.85)
     cb.set_label("leakage current per metre (A/m)")
-    ax.set_title(f"Leakage current along the energised conductors (IG = {r.grid_current / 1000:,.2f} kA; squares: "
-                 "rods, mean per metre" + ("; grey dashed: separate metal" if other.any() else "") + ")", fontsize=9)
+    ax.set_title(f"Leakage current along the energised conductors (IG = {r.grid_current / 1000:,.2f} kA)\n"
+                 "squares: rods, mean per metre" + ("; grey dashed: separate metal (not coloured)" if other.any() else ""),
+                 fontsize=9)
     fig.tight_layout()
     return Rendered("leakage", "Leakage current", fig, float(density[main].max()))
 
