@@ -187,6 +187,7 @@ def test_compare_reuses_the_json_results_of_the_same_case(tmp_path, variants, mo
     ("version", "written by grounding 0.0.0"),
     ("report", "draw each option's maps"),
     ("converge", "--converge"),
+    ("garbled", "summary.grid_resistance_ohm is not a number"),    # regression (fuzzing): a traceback
 ])
 def test_compare_solves_again_when_the_results_do_not_stand_for_the_case(tmp_path, variants, monkeypatch, change,
                                                                          reason):
@@ -203,6 +204,8 @@ def test_compare_solves_again_when_the_results_do_not_stand_for_the_case(tmp_pat
             f.write("# edited after the study\n")
     elif change == "version":
         doc["tool"]["version"] = "0.0.0"
+    elif change == "garbled":
+        doc["summary"]["grid_resistance_ohm"] = "x"
     elif change == "converge":
         doc["diagnostics"]["convergence"] = {"converged": True, "rounds": []}
     rec.write_text(json.dumps(doc))

@@ -22,10 +22,6 @@ from ..textfile import read_user_text
 #: The results format this reader knows (written by ``grounding study --json``).
 KNOWN_FORMAT = 1
 
-_SUMMARY_KEYS = ("grid_resistance_ohm", "ground_potential_rise_v", "max_touch_voltage_v", "tolerable_touch_voltage_v",
-                 "max_step_voltage_v", "tolerable_step_voltage_v", "max_mesh_voltage_v", "touch_ok", "step_ok",
-                 "mesh_ok", "separate_electrodes_ok", "all_pass")
-
 
 @dataclass(frozen=True)
 class RecordedStudy:
@@ -50,7 +46,10 @@ class RecordedStudy:
     def why_not_reusable(self, case: Case) -> str | None:
         """Why these results cannot stand for a fresh study of ``case`` (None when they can)."""
         doc = self.document
-        tool = doc.get("tool", {})
+        problem = _shape_problem(doc)
+        if problem:
+            return f"not a complete results file ({problem})"
+        tool = doc["tool"]
         if doc.get("format") != KNOWN_FORMAT:
             return f"results format {doc.get('format')!r}; this version reads format {KNOWN_FORMAT}"
         if tool.get("version") != __version__:
@@ -63,11 +62,50 @@ class RecordedStudy:
                 return f"the {kind} file {path} has changed since (or was not recorded)"
         if (doc.get("diagnostics") or {}).get("convergence") is not None:
             return "studied with --converge (a finer discretisation than the other options')"
-        missing = [k for k in _SUMMARY_KEYS if k not in doc.get("summary", {})]
-        if missing or "conductor" not in doc:
-            return f"not a complete results file (no summary.{missing[0]})" if missing else \
-                "not a complete results file (no conductor block)"
         return None
+
+
+#: Kinds of the values an option is compared by: finite numbers (None allowed where the study may leave a
+#: value out), and true/false verdicts (None where a criterion does not apply).
+_NUMBERS = {"grid_resistance_ohm": False, "ground_potential_rise_v": False, "max_touch_voltage_v": True,
+            "tolerable_touch_voltage_v": False, "max_step_voltage_v": True, "tolerable_step_voltage_v": True,
+            "max_mesh_voltage_v": True}
+_VERDICTS = {"touch_ok": False, "step_ok": True, "mesh_ok": True, "separate_electrodes_ok": False, "all_pass": False}
+
+
+def _shape_problem(doc: dict) -> str | None:
+    """What in a results document is missing or of the wrong kind for reuse (None when nothing)."""
+    for key in ("tool", "case", "summary", "conductor"):
+        if not isinstance(doc.get(key), dict):
+            return f"no {key} block"
+    if not isinstance(doc["case"].get("sha256"), str) or not isinstance(doc["case"].get("inputs", []), list) \
+            or not all(isinstance(i, dict) for i in doc["case"].get("inputs", [])):
+        return "case.sha256 or case.inputs is not as written by grounding study"
+    for key in ("file", "title"):
+        if not isinstance(doc["case"].get(key, ""), str):
+            return f"case.{key} is not text"
+    s = doc["summary"]
+    for key, may_be_null in _NUMBERS.items():
+        v = s.get(key, "missing")
+        if v is None and may_be_null:
+            continue
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            return f"summary.{key} is not a number" if key in s else f"no summary.{key}"
+    for key, may_be_null in _VERDICTS.items():
+        v = s.get(key, "missing")
+        if not (isinstance(v, bool) or (v is None and may_be_null)):
+            return f"summary.{key} is not true or false" if key in s else f"no summary.{key}"
+    if not isinstance(doc["conductor"].get("ok"), bool):
+        return "conductor.ok is not true or false"
+    gov = s.get("governing_scenario", {})
+    if gov is not None and (not isinstance(gov, dict) or not all(isinstance(v, (str, type(None))) for v in gov.values())):
+        return "summary.governing_scenario is not as written by grounding study"
+    for key in ("scenarios", "separate_electrodes"):
+        if not isinstance(doc.get(key, []), (list, type(None))):
+            return f"{key} is not a list"
+    if not isinstance(doc.get("diagnostics") or {}, dict):
+        return "diagnostics is not a block"
+    return None
 
 
 def read_recorded(path: str) -> RecordedStudy:
