@@ -6,10 +6,8 @@ import math
 from dataclasses import dataclass
 
 from ..case import Case
-from ..geometry import segment
 from ..study import StudyResult
-from ..surface import touch_region
-from .quantities import Quantities, layout_quantities, quantities
+from .quantities import Quantities, geometry_quantities, quantities
 from .recorded import RecordedStudy, number
 
 CRITERIA = ("cost", "margin", "resistance", "material")
@@ -131,9 +129,7 @@ def make_options(labels, results) -> list[Option]:
 def recorded_option(label: str, case: Case, rec: RecordedStudy) -> Option:
     """An option whose figures come from its study's results file (see :mod:`.recorded`); the quantities
     follow from the case's geometry, as in a fresh study."""
-    s = segment(case)
-    area, _ = touch_region(s, case.surface)
-    return Option(label, None, layout_quantities(case, s, area), Outcome.of_recorded(rec), rec)
+    return Option(label, None, geometry_quantities(case), Outcome.of_recorded(rec), rec)
 
 
 def best_option(options: list[Option], by: str) -> tuple[int | None, str]:

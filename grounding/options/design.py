@@ -10,10 +10,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from ..case_loader import Variant
-from ..geometry import segment
-from ..surface import touch_region
 from .compare import Option, make_options
-from .quantities import layout_quantities
+from .quantities import geometry_quantities
 from .runner import run_options
 
 
@@ -29,9 +27,7 @@ class DesignResult:
 
 def estimated_quantity(v: Variant, by: str) -> float:
     """Mass (kg) or cost of an option from its geometry alone, the same numbers the study reports."""
-    s = segment(v.case)
-    area, _ = touch_region(s, v.case.surface)
-    q = layout_quantities(v.case, s, area)
+    q = geometry_quantities(v.case)
     return q.cost if by == "cost" and q.cost is not None else q.mass_kg
 
 

@@ -83,3 +83,13 @@ def layout_quantities(c: Case, seg: Segments, touch_area) -> Quantities:
         layer = sum(a * (h / 0.1) * k.surface_layer_per_m2 for a, h in covered)
         cost = conductor_len * k.conductor_per_m + rod_len * k.rod_per_m + rod_count * k.rod_each + layer
     return Quantities(conductor_len, rod_count, rod_len, mass, area, cost, c.costs.currency if c.costs else "")
+
+
+def geometry_quantities(c: Case) -> Quantities:
+    """Quantities of a case's layout without a study: its segments and default touch area."""
+    from ..geometry import segment
+    from ..surface import touch_region
+
+    s = segment(c)
+    area, _ = touch_region(s, c.surface)
+    return layout_quantities(c, s, area)
