@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import cmath
+import contextvars
 import json
 import math
 
@@ -11,14 +12,20 @@ from ..study import StudyResult
 
 RESULTS_FORMAT = 1
 
+#: When True, numbers keep every digit (the stored golden results of the tests); the files keep 6.
+_FULL_PRECISION = contextvars.ContextVar("full_precision", default=False)
+
 
 def _num(x, digits: int = 6):
-    """A float rounded to ``digits`` significant digits, or None for None/NaN."""
+    """A float rounded to ``digits`` significant digits (every digit under ``results_dict(full_precision=True)``),
+    or None for None/NaN."""
     if x is None:
         return None
     x = float(x)
     if not math.isfinite(x):
         return None
+    if _FULL_PRECISION.get():
+        return x
     return float(f"{x:.{digits}g}")
 
 
@@ -206,8 +213,19 @@ def _fault_split(r: StudyResult) -> dict | None:
             "basis": d.basis}
 
 
-def results_dict(r: StudyResult) -> dict:
-    """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named)."""
+def results_dict(r: StudyResult, full_precision: bool = False) -> dict:
+    """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named).
+
+    Numbers keep 6 significant digits, or every digit with ``full_precision`` (for regression comparisons).
+    """
+    token = _FULL_PRECISION.set(full_precision)
+    try:
+        return _results_dict(r)
+    finally:
+        _FULL_PRECISION.reset(token)
+
+
+def _results_dict(r: StudyResult) -> dict:
     s = r.surface
     c = r.case
     summary = _summary(r)
