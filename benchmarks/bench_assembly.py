@@ -14,11 +14,11 @@ import time
 
 import scipy.linalg
 
-from grounding.assembly import assemble
-from grounding.case_loader import parse_case
-from grounding.geometry import segment
-from grounding.soil import make_kernel
-from grounding.solve import solve_equipotential
+from grounding.operators.assembly import assemble
+from grounding.case.load import parse_case
+from grounding.geometry.segments import segment
+from grounding.kernels import make_kernel
+from grounding.solve.equipotential import solve_equipotential
 
 CASE = """\
 format: 1

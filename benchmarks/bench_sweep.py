@@ -10,7 +10,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from grounding.case_loader import load_variants
+from grounding.options.sweep import load_variants
 from grounding.options.runner import run_options
 
 CASE = """\

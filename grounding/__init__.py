@@ -8,12 +8,12 @@ Python API::
     print(result.grid_resistance, result.ground_potential_rise, result.surface.max_touch)
 """
 
-from .case_loader import load_case, parse_case
+from .case.load import load_case, parse_case
 from .cautions import CAUTIONS
 from .errors import CaseError, GroundingError
-from .study import StudyResult, run_study
-
-__version__ = "0.1.0"
+from .study.pipeline import run_study
+from .study.result import StudyResult
+from .version import __version__
 
 __all__ = ["CAUTIONS", "CaseError", "GroundingError", "StudyResult", "load_case", "parse_case", "run_study",
            "__version__"]

@@ -7,9 +7,9 @@ import sys
 import click
 import numpy as np
 
-from . import __version__
-from .case_loader import load_case
+from .case.load import load_case
 from .errors import CaseError, GroundingError
+from .version import __version__
 
 
 class _Bar:
@@ -96,7 +96,8 @@ def main(verbose):
 def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html_file, units, converge, quiet):
     """Run a study of CASE (YAML) and print the summary."""
     from .outputs.summary_text import study_summary
-    from .study import converge_study, run_study
+    from .study.converge import converge_study
+    from .study.pipeline import run_study
 
     bar = _Bar(enabled=not quiet and sys.stderr.isatty())
     written = []
@@ -106,7 +107,7 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html
         result = converge_study(case, progress=bar)[0] if converge else run_study(case, progress=bar)
         from dataclasses import replace as _replace
 
-        from .uncertainty import propagate_soil_uncertainty
+        from .study.uncertainty import propagate_soil_uncertainty
         result = _replace(result, uncertainty=propagate_soil_uncertainty(result, bar))
         bar.close()
         written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file,
@@ -145,7 +146,7 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=(
         folder.mkdir(exist_ok=True)
         from .outputs.figures import svg_bytes
         for f in all_figures(result):
-            files.append((str(folder / f"{f.name}.svg"), svg_bytes(f.figure, close=False)))
+            files.append((str(folder / f"{f.name}.svg"), svg_bytes(f.figure)))
             files.append((str(folder / f"{f.name}.png"), png_bytes(f.figure)))
     if report_file:
         from .outputs.report_pdf import build_report
@@ -302,7 +303,7 @@ def compare(case_files, by, json_file, csv_file, report_file, html_file, results
 @_parallel_options
 def sweep(case_file, by, json_file, csv_file, plot_file, quiet, workers, cluster):
     """Run every combination of the CASE's sweep block and tabulate the options."""
-    from .case_loader import load_variants
+    from .options.sweep import load_variants
     from .outputs.figures import png_bytes
     from .outputs.options_outputs import sweep_table, tradeoff_figure
     from .outputs.summary_text import caution_box
@@ -337,8 +338,8 @@ def design(case_file, by, out_file, quiet, workers, cluster):
     """Search CASE's sweep space for the least material (or cost) that passes every criterion."""
     from pathlib import Path
 
-    from .case_loader import load_variants
     from .options.design import search
+    from .options.sweep import load_variants
     from .outputs.design_case import design_case_yaml
     from .outputs.options_outputs import sweep_table
     from .outputs.summary_text import MARGINAL, caution_box
@@ -435,8 +436,8 @@ def _write_all(files, inputs=()) -> None:
 @click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
 def check(case_file):
     """Validate CASE without solving it."""
-    from .geometry import segment
-    from .study import check_model_size
+    from .geometry.segments import segment
+    from .solve.policy import check_model_size
 
     variants = None
     try:
@@ -444,7 +445,7 @@ def check(case_file):
         segments = segment(case)
         check_model_size(case, segments)
         if any(n.startswith("the sweep block") for n in case.notes):
-            from .case_loader import load_variants
+            from .options.sweep import load_variants
 
             variants = load_variants(case_file)          # before anything is printed: a refusal is one line
     except GroundingError as exc:

@@ -7,7 +7,6 @@ from pathlib import Path
 
 from .errors import CaseError
 
-
 #: Largest text file read (case files and readings are kilobytes; this refuses a wrong file quickly).
 MAX_TEXT_BYTES = 20_000_000
 

@@ -6,7 +6,7 @@ import textwrap
 
 import pytest
 
-from grounding.case_loader import parse_case
+from grounding.case.load import parse_case
 
 
 def case_text(electrodes: str, soil: str = "{resistivity: 100}", extra: str = "", fault: str | None = None) -> str:

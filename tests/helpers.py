@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-from grounding.assembly import AssemblyOptions, assemble
-from grounding.case_loader import parse_case
-from grounding.geometry import segment
-from grounding.soil import make_kernel
-from grounding.solve import solve_equipotential
+from grounding.operators.assembly import AssemblyOptions, assemble
+from grounding.case.load import parse_case
+from grounding.geometry.segments import segment
+from grounding.kernels import make_kernel
+from grounding.solve.equipotential import solve_equipotential
 from tests.conftest import case_text
 
 

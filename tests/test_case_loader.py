@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from grounding.case_loader import load_case, parse_case
+from grounding.case.load import load_case, parse_case
 from grounding.errors import CaseError
 from tests.conftest import case_text
 
@@ -147,7 +147,7 @@ def test_absurd_mesh_count_refused_before_geometry():
 def test_too_many_segments_refused_before_they_are_built():
     """Long conductors cut very finely: the segment count is estimated from the raw numbers first."""
     from grounding.errors import ModelTooLargeError
-    from grounding.geometry import segment
+    from grounding.geometry.segments import segment
 
     rows = "".join(f"  - {{start: [0, {i}, 0.5], end: [9000, {i}, 0.5], diameter: 0.001}}\n" for i in range(300))
     case = parse_case(case_text("conductors:\n" + rows, extra="discretization: {max_segment: 0.004}\n"))
@@ -178,7 +178,7 @@ def test_alias_bomb_is_refused_at_once_in_one_line(tmp_path):
     expansion) before being refused; aliases are now refused where they are first met."""
     import time
 
-    from grounding.case_loader import load_case
+    from grounding.case.load import load_case
     from grounding.errors import CaseError
 
     text = ("format: 1\nsoil: {resistivity: 100}\nfault: {current: 1000, clearing_time: 0.5}\nelectrodes:\n"
@@ -196,7 +196,7 @@ def test_alias_bomb_is_refused_at_once_in_one_line(tmp_path):
 
 def test_oversized_file_is_refused_before_reading(tmp_path):
     """Document size is bounded: a 21 MB file is refused in one line without parsing it."""
-    from grounding.case_loader import load_case
+    from grounding.case.load import load_case
     from grounding.errors import CaseError
     from grounding.textfile import MAX_TEXT_BYTES
 

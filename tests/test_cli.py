@@ -149,8 +149,8 @@ def test_demo_studies_run(name, tmp_path):
 
 
 def test_profile_and_site_from_case(tmp_path):
-    from grounding.case_loader import parse_case
-    from grounding.study import run_study
+    from grounding.case.load import parse_case
+    from grounding.study.pipeline import run_study
 
     text = SMALL.replace("surface: {margin: 2, resolution: 1.0}",
                          "surface: {margin: 2, resolution: 1.0, profile: [[0, 7.5], [20, 7.5]]}") + "site: Testfield\n"

@@ -14,15 +14,16 @@ import numpy as np
 import pytest
 
 from grounding import load_case, run_study
-from grounding.case import Injection, ShieldWireLine, SplitNetwork
+from grounding.case.model import Injection, ShieldWireLine, SplitNetwork
 from grounding.errors import CaseError
-from grounding.conductor_impedance import MU0, internal_impedance, partial_inductances, skin_depth
-from grounding.geometry import segment
-from grounding.metal_network import metal_network
+from grounding.kernels.impedance import MU0, internal_impedance, partial_inductances, skin_depth
+from grounding.geometry.segments import segment
+from grounding.geometry.network import metal_network
 from grounding.safety.current_division import current_division, infinite_ladder_impedance, ladder_impedance
-from grounding.solve import solve_equipotential
-from grounding.solve_network import solve_network
-from grounding.study import _solve, estimate_metal_drop
+from grounding.solve.equipotential import solve_equipotential
+from grounding.solve.network import solve_network
+from grounding.solve.run import _solve
+from grounding.study.metal_drop import estimate_metal_drop
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -148,9 +149,9 @@ def test_zero_series_impedance_reproduces_the_equipotential_solution(tmp_path):
     case = load_case(ROOT / "cases" / "kestrel-bend-uniform.yaml")
     case = replace(case, discretization=replace(case.discretization, max_segment=3.0))
     segments = segment(case)
-    from grounding.assembly import AssemblyOptions
-    from grounding.operators import dense_operator
-    from grounding.soil import make_kernel
+    from grounding.operators.assembly import AssemblyOptions
+    from grounding.operators.mutual_resistance import dense_operator
+    from grounding.kernels import make_kernel
     R = dense_operator(segments, make_kernel(case.soil, 3.0), AssemblyOptions()).matrix
     network = metal_network(segments)
     ns = solve_network(R, network, np.zeros((len(segments),) * 2, complex), [(0, 1.0)])
@@ -184,9 +185,9 @@ def test_power_entering_equals_metal_losses_plus_power_into_the_soil(tmp_path):
     # iᴴ R i, recomputed here from the returned currents.
     case = _case(tmp_path, COUNTERPOISE.format(f=50, length=300, h=5))
     segments, kernel, solution, _ = _solve(case)
-    from grounding.assembly import AssemblyOptions
-    from grounding.conductor_impedance import series_impedance
-    from grounding.operators import dense_operator
+    from grounding.operators.assembly import AssemblyOptions
+    from grounding.kernels.impedance import series_impedance
+    from grounding.operators.mutual_resistance import dense_operator
     R = dense_operator(segments, kernel, AssemblyOptions()).matrix
     Z = series_impedance(case, segments).matrix()
     ns = solution.metal.solution
@@ -317,7 +318,7 @@ def test_dc_series_resistance_never_lowers_the_input_resistance(nx, ny, lx, ly, 
             f"injection: {feed}}}\nelectrodes:\n  material: {material}\n  conductor_impedance: true\n"
             f"  grids: [{{origin: [0, 0], size: [{lx:.6f}, {ly:.6f}], meshes: [{nx}, {ny}], depth: 0.5, "
             f"diameter: 0.01}}]\ndiscretization: {{max_segment: 2.0}}\n")
-    from grounding.case_loader import parse_case
+    from grounding.case.load import parse_case
     case = parse_case(text)
     _, _, coupled, _ = _solve(case)
     _, _, eq, _ = _solve(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))

@@ -9,10 +9,9 @@ import sys
 import numpy as np
 import pytest
 
-from grounding.case_loader import parse_case
-from grounding.safety.en50522 import (UTP_TABLE, body_impedance, permissible_touch_voltage,
-                                      prospective_touch_voltage)
-from grounding.study import run_study
+from grounding.case.load import parse_case
+from grounding.safety.en50522 import UTP_TABLE, body_impedance, permissible_touch_voltage, prospective_touch_voltage
+from grounding.study.pipeline import run_study
 from tests.conftest import case_text
 
 GRID = "grids: [{origin: [0, 0], size: [20, 20], meshes: [4, 4], depth: 0.5, diameter: 0.01}]\n"
@@ -169,7 +168,7 @@ def test_trade_sizes(size, mm2):
     """AWG areas from the gauge's defining rule d = 0.127 mm · 92^((36 − n)/39) (ASTM B258); 1 kcmil =
     1000 circular mils = 0.5067 mm². Tabulated areas recalled from memory: 4/0 AWG 107.2 mm², 1/0 AWG
     53.5 mm², 2 AWG 33.6 mm²."""
-    from grounding.case_electrodes import trade_size_area
+    from grounding.case.electrodes import trade_size_area
 
     assert trade_size_area(size) * 1e6 == pytest.approx(mm2, abs=0.1)
 

@@ -11,9 +11,9 @@ import pytest
 
 ezdxf = pytest.importorskip("ezdxf")
 
-from grounding.case_loader import load_case  # noqa: E402
-from grounding.study import run_study  # noqa: E402
-from grounding.surface import surface_potential  # noqa: E402
+from grounding.case.load import load_case
+from grounding.study.pipeline import run_study
+from grounding.operators.potential import surface_potential
 
 HEAD = """\
 format: 1

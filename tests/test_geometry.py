@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from grounding.geometry import segment
+from grounding.geometry.segments import segment
 
 
 def test_grid_cut_at_every_crossing(make_case):

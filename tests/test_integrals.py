@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy.integrate import dblquad, quad
 
-from grounding.integrals import line_integral, segment_pair_integral
+from grounding.kernels.integrals import line_integral, segment_pair_integral
 
 A = 0.006  # wire radius, m
 

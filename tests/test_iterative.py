@@ -12,18 +12,18 @@ import pytest
 from click.testing import CliRunner
 from scipy.spatial.distance import cdist
 
-import grounding.solve as solve_module
-import grounding.surface as surface_module
+import grounding.solve.equipotential as solve_module
+import grounding.operators.potential as potential_module
 from grounding import run_study
 from grounding.cli import main
-from grounding.case_loader import parse_case
+from grounding.case.load import parse_case
 from grounding.errors import CaseError, GroundingError
-from grounding.geometry import segment
-from grounding.hmatrix import apply_once, build_hmatrix
-from grounding.operators import compressed_operator, dense_operator
-from grounding.soil import TwoLayerSoil, UniformSoil, make_kernel
-from grounding.solve import solve_equipotential, solve_iterative, solve_operator
-from grounding.study import DENSE_LIMIT, solver_kind
+from grounding.geometry.segments import segment
+from grounding.operators.hmatrix import apply_once, build_hmatrix
+from grounding.operators.mutual_resistance import compressed_operator, dense_operator
+from grounding.kernels import TwoLayerSoil, UniformSoil, make_kernel
+from grounding.solve.equipotential import solve_equipotential, solve_iterative, solve_operator
+from grounding.solve.policy import DENSE_LIMIT, solver_kind
 
 GRID = """\
 format: 1
@@ -126,10 +126,10 @@ def test_compressed_surface_map_matches_the_direct_map(monkeypatch):
     sol = solve_operator(dense_operator(seg, kernel))
     x, y = np.meshgrid(np.arange(-4, 57, 0.5), np.arange(-4, 35, 0.5))
     xy = np.column_stack([x.ravel(), y.ravel()])
-    monkeypatch.setattr(surface_module, "COMPRESS_FROM_PAIRS", 10 ** 18)
-    direct = surface_module.surface_potential(xy, seg, sol.currents_per_volt, kernel)
-    monkeypatch.setattr(surface_module, "COMPRESS_FROM_PAIRS", 0)
-    compressed = surface_module.surface_potential(xy, seg, sol.currents_per_volt, kernel)
+    monkeypatch.setattr(potential_module, "COMPRESS_FROM_PAIRS", 10 ** 18)
+    direct = potential_module.surface_potential(xy, seg, sol.currents_per_volt, kernel)
+    monkeypatch.setattr(potential_module, "COMPRESS_FROM_PAIRS", 0)
+    compressed = potential_module.surface_potential(xy, seg, sol.currents_per_volt, kernel)
     # per volt of GPR (the currents are for 1 V): the issue's bound is 1e-4 of the GPR
     assert np.abs(compressed - direct).max() < 1e-4
 
@@ -171,7 +171,7 @@ def test_json_reports_solver_and_peak_memory(tmp_path):
 
 
 def test_model_size_refusal_names_both_solvers(monkeypatch):
-    import grounding.study as study
+    import grounding.solve.policy as study
 
     monkeypatch.setattr(study, "available_memory", lambda: 2 * 2 ** 20)       # a 2 MB machine
     case = _case(solver="dense")

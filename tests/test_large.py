@@ -6,12 +6,12 @@ import os
 
 import pytest
 
-from grounding.assembly import AssemblyOptions, assemble
-from grounding.case_loader import parse_case
-from grounding.geometry import segment
-from grounding.soil import make_kernel
-from grounding.operators import compressed_operator
-from grounding.solve import SINGLE_THREAD_FROM, blas_threads_for, solve_equipotential, solve_iterative
+from grounding.operators.assembly import AssemblyOptions, assemble
+from grounding.case.load import parse_case
+from grounding.geometry.segments import segment
+from grounding.kernels import make_kernel
+from grounding.operators.mutual_resistance import compressed_operator
+from grounding.solve.equipotential import SINGLE_THREAD_FROM, blas_threads_for, solve_equipotential, solve_iterative
 
 BIG = """\
 format: 1
@@ -28,7 +28,7 @@ def _faulty_kernels() -> bool:
     """Whether OpenBLAS runs the AVX-512 kernels whose threaded factorisation crashed (solve.FAULTY_KERNELS)."""
     from threadpoolctl import threadpool_info
 
-    from grounding.solve import FAULTY_KERNELS
+    from grounding.solve.equipotential import FAULTY_KERNELS
     return any(str(d.get("architecture", "")).lower() in FAULTY_KERNELS
                for d in threadpool_info() if d.get("internal_api") == "openblas")
 

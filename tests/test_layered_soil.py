@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from grounding.soil import LayeredSoil, TwoLayerSoil, UniformSoil
+from grounding.kernels import LayeredSoil, TwoLayerSoil, UniformSoil
 from grounding.sounding.forward import point_source_kernel
 from tests.helpers import resistance
 
@@ -113,11 +113,11 @@ def test_high_contrast_two_layer_uses_the_hankel_kernel_with_bounded_memory():
     """Rock under thin soil (K → 1): the image series would need ~10^5 orders (an 18 GiB table was seen);
     the Hankel-transform kernel takes over above MAX_IMAGE_ORDERS, and agrees with the series where both run
     (K = 0.977: the image series of Sunde/Tagg against the Hankel transform, the same physics two ways)."""
-    from grounding.assembly import AssemblyOptions, assemble
-    from grounding.case_loader import parse_case
-    from grounding.geometry import segment
-    from grounding.soil import LayeredSoil, TwoLayerSoil, make_kernel
-    from grounding.solve import solve_equipotential
+    from grounding.operators.assembly import AssemblyOptions, assemble
+    from grounding.case.load import parse_case
+    from grounding.geometry.segments import segment
+    from grounding.kernels import LayeredSoil, TwoLayerSoil, make_kernel
+    from grounding.solve.equipotential import solve_equipotential
     from tests.conftest import case_text
 
     grid = "grids: [{origin: [0, 0], size: [20, 20], meshes: [4, 4], depth: 0.5, diameter: 0.01}]\n"
@@ -140,8 +140,8 @@ def test_grid_on_a_layer_interface_runs():
     """Regression: a grid lying exactly on an interface of a three-layer soil made the matrix indefinite
     (its image through the interface coincided with it). It is now taken one radius inside the more
     resistive layer, with a note, and Rg lies between those of the grid 10 mm above and below."""
-    from grounding.case_loader import parse_case
-    from grounding.study import run_study
+    from grounding.case.load import parse_case
+    from grounding.study.pipeline import run_study
     from tests.conftest import case_text
 
     soil = "{layers: [{resistivity: 100, thickness: 0.3}, {resistivity: 300, thickness: 0.2}, {resistivity: 50}]}"

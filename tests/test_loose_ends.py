@@ -7,9 +7,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from grounding.case_loader import parse_case
-from grounding.geometry import segment
-from grounding.study import run_study
+from grounding.case.load import parse_case
+from grounding.geometry.segments import segment
+from grounding.study.pipeline import run_study
 from tests.conftest import case_text
 
 

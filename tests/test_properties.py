@@ -15,11 +15,12 @@ hypothesis = pytest.importorskip("hypothesis")
 from hypothesis import HealthCheck, given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 
-from grounding.case_loader import parse_case  # noqa: E402
-from grounding.errors import CaseError, GroundingError  # noqa: E402
-from grounding.geometry import segment  # noqa: E402
-from grounding.outputs.results_json import results_dict  # noqa: E402
-from grounding.study import check_model_size, run_study  # noqa: E402
+from grounding.case.load import parse_case
+from grounding.errors import CaseError, GroundingError
+from grounding.geometry.segments import segment
+from grounding.outputs.results_json import results_dict
+from grounding.solve.policy import check_model_size
+from grounding.study.pipeline import run_study
 
 settings.register_profile("ci", max_examples=12, deadline=None, derandomize=True,
                           suppress_health_check=[HealthCheck.too_slow])

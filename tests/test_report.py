@@ -9,14 +9,14 @@ import pytest
 from click.testing import CliRunner
 from pypdf import PdfReader
 
-from grounding.case_loader import parse_case
+from grounding.case.load import parse_case
 from grounding.cautions import CAUTIONS
 from grounding.cli import main
 from grounding.outputs import report_pdf
 from grounding.outputs.figures import all_figures, touch_figure
 from grounding.outputs.report_pdf import build_report
 from grounding.outputs.surface_csv import surface_csv
-from grounding.study import run_study
+from grounding.study.pipeline import run_study
 from tests.test_cli import SMALL
 
 

@@ -12,12 +12,13 @@ import textwrap
 import numpy as np
 import pytest
 
-from grounding.case_loader import parse_case
+from grounding.case.load import parse_case
 from grounding.errors import CaseError
-from grounding.geometry import segment
+from grounding.geometry.segments import segment
 from grounding.safety.ieee80 import DALZIEL_K
-from grounding.study import run_study
-from grounding.surface import Zoning, surface_potential
+from grounding.study.pipeline import run_study
+from grounding.surface.zoning import Zoning
+from grounding.operators.potential import surface_potential
 from tests.conftest import case_text
 
 RHO = 100.0

@@ -14,8 +14,8 @@ import pytest
 from scipy.integrate import quad
 from scipy.special import j0
 
-from grounding.case import Layer, Soil
-from grounding.soil import TwoLayerSoil, UniformSoil, make_kernel
+from grounding.case.model import Layer, Soil
+from grounding.kernels import TwoLayerSoil, UniformSoil, make_kernel
 
 RHO1, RHO2, H = 300.0, 60.0, 4.0
 
@@ -137,7 +137,7 @@ def test_remainder_plus_near_terms_is_whole_kernel():
 
 
 def test_series_truncation_order():
-    from grounding.soil.two_layer import series_order
+    from grounding.kernels.two_layer import series_order
     k = 0.9
     n = series_order(k, 1e-6)
     assert abs(k) ** n / (1 - abs(k)) < 1e-6 <= abs(k) ** (n - 1) / (1 - abs(k))

@@ -11,8 +11,7 @@ from click.testing import CliRunner
 from grounding.cli import main
 from grounding.errors import CaseError
 from grounding.sounding.fit import fit_soil
-from grounding.sounding.forward import (schlumberger, schlumberger_geometric_factor, wenner,
-                                        wenner_geometric_factor)
+from grounding.sounding.forward import schlumberger, schlumberger_geometric_factor, wenner, wenner_geometric_factor
 from grounding.sounding.readings import parse_readings, readings_from_arrays
 
 A = np.geomspace(0.5, 150, 16)
@@ -165,9 +164,9 @@ def test_soil_command_bad_file_exit_2(tmp_path):
 
 def test_case_with_readings_fits_at_load_time(tmp_path):
     """A case naming a readings file gets the fitted model; the study JSON records the fit."""
-    from grounding.case_loader import load_case
+    from grounding.case.load import load_case
     from grounding.outputs.results_json import results_dict
-    from grounding.study import run_study
+    from grounding.study.pipeline import run_study
 
     rho = synthetic([300.0, 60.0], [3.0], 6)
     (tmp_path / "site.csv").write_text("spacing,apparent_resistivity\n" +
@@ -188,7 +187,7 @@ def test_case_with_readings_fits_at_load_time(tmp_path):
 
 
 def test_case_with_missing_readings_file(tmp_path):
-    from grounding.case_loader import load_case
+    from grounding.case.load import load_case
 
     (tmp_path / "case.yaml").write_text(
         "format: 1\nsoil: {readings: nope.csv}\nfault: {current: 2000, clearing_time: 0.5}\n"

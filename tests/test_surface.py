@@ -7,11 +7,11 @@ import pytest
 import shapely
 from scipy.integrate import quad
 
-from grounding.case_loader import parse_case
-from grounding.geometry import segment
-from grounding.soil import make_kernel
-from grounding.study import run_study
-from grounding.surface import surface_potential
+from grounding.case.load import parse_case
+from grounding.geometry.segments import segment
+from grounding.kernels import make_kernel
+from grounding.study.pipeline import run_study
+from grounding.operators.potential import surface_potential
 from tests.conftest import case_text
 
 ROD = "rods: [{top: [0, 0, 0], length: 5, diameter: 0.016}]\n"
@@ -127,9 +127,9 @@ def test_touch_peak_on_the_edge_of_the_touch_area_is_found_on_a_coarse_map():
     """Regression: with a 2 m map and the default 1 m reach, no map point lies in the band outside the
     grid; the worst touch voltage is 1 m diagonally outside a corner (the surface potential falls away from
     the metal fastest there) and must be found (an earlier line search reported 745 V where 1379 V occur)."""
-    from grounding.case_loader import parse_case
-    from grounding.study import run_study
-    from grounding.surface import surface_potential
+    from grounding.case.load import parse_case
+    from grounding.study.pipeline import run_study
+    from grounding.operators.potential import surface_potential
     from tests.conftest import case_text
 
     case = parse_case(case_text("""\

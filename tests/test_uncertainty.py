@@ -11,9 +11,10 @@ import sys
 import numpy as np
 import pytest
 
-from grounding.case_loader import parse_case
-from grounding.study import converge_study, refined, run_study
-from grounding.uncertainty import propagate_soil_uncertainty, sample_worst
+from grounding.case.load import parse_case
+from grounding.study.converge import converge_study, refined
+from grounding.study.pipeline import run_study
+from grounding.study.uncertainty import propagate_soil_uncertainty, sample_worst
 
 GRID = """\
 format: 1
@@ -61,9 +62,9 @@ def test_converge_settles_within_one_percent_of_a_finer_reference(ladder):
 
 
 def test_converge_stops_before_a_model_too_large(monkeypatch):
-    import grounding.study as study
+    import grounding.solve.policy as policy
 
-    monkeypatch.setattr(study, "MAX_MAP_POINTS", 3000)            # the next map would exceed this
+    monkeypatch.setattr(policy, "MAX_MAP_POINTS", 3000)            # the next map would exceed this
     result, conv = converge_study(_grid(2, 1), tolerance=1e-9)
     assert not conv.converged and "stopped before round" in conv.note
 

@@ -5,8 +5,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from ..case import Case
-from ..study import StudyResult
+from ..case.model import Case
+from ..study.result import StudyResult
 from .quantities import Quantities, geometry_quantities, quantities
 from .recorded import RecordedStudy, number
 

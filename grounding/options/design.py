@@ -9,10 +9,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from ..case_loader import Variant
 from .compare import Option, make_options
 from .quantities import geometry_quantities
 from .runner import run_options
+from .sweep import Variant
 
 
 @dataclass(frozen=True)

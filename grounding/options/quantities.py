@@ -7,10 +7,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..case import Case
-from ..geometry import Segments
+from ..case.model import Case
+from ..geometry.segments import Segments
 from ..materials import MATERIALS
-from ..study import StudyResult
+from ..study.result import StudyResult
 
 
 @dataclass(frozen=True)
@@ -59,7 +59,7 @@ def layout_quantities(c: Case, seg: Segments, touch_area) -> Quantities:
     merged, noded geometry, so metal shared by two electrodes is counted once; separate electrodes (fences,
     pipes) are not part of the layout and are left out. A whole-map surface layer is priced over the
     touch area; surface zones over their own areas."""
-    from ..case_site import shapely_polygon
+    from ..case.site import shapely_polygon
 
     own = ~seg.conductors.matching(("separate_electrodes",))
     keep = own[seg.conductor]
@@ -87,8 +87,8 @@ def layout_quantities(c: Case, seg: Segments, touch_area) -> Quantities:
 
 def geometry_quantities(c: Case) -> Quantities:
     """Quantities of a case's layout without a study: its segments and default touch area."""
-    from ..geometry import segment
-    from ..surface import touch_region
+    from ..geometry.plan import touch_region
+    from ..geometry.segments import segment
 
     s = segment(c)
     area, _ = touch_region(s, c.surface)

@@ -14,10 +14,10 @@ import json
 import math
 from dataclasses import dataclass
 
-from .. import __version__
-from ..case import Case
+from ..case.model import Case
 from ..errors import GroundingError
 from ..textfile import read_user_text
+from ..version import __version__
 
 #: The results format this reader knows (written by ``grounding study --json``).
 KNOWN_FORMAT = 1

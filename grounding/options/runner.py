@@ -10,9 +10,10 @@ from __future__ import annotations
 
 from typing import Callable, Sequence
 
-from ..case import Case
+from ..case.model import Case
 from ..errors import GroundingError
-from ..study import StudyResult, geometry_key, run_study, solve_geometry
+from ..study.pipeline import geometry_key, run_study, solve_geometry
+from ..study.result import StudyResult
 
 Progress = Callable[[int, int], None]
 

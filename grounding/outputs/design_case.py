@@ -14,7 +14,8 @@ from ruamel.yaml import YAML
 from ruamel.yaml.comments import CommentedMap, CommentedSeq
 from ruamel.yaml.util import load_yaml_guess_indent
 
-from ..case_loader import Variant, apply_setting, setting_order
+from ..case.sweep import apply_setting, setting_order
+from ..options.sweep import Variant
 from ..textfile import read_user_text
 
 

@@ -8,8 +8,8 @@ import io
 
 import numpy as np
 
-from ..study import StudyResult
-from ..surface import contour_lines
+from ..study.result import StudyResult
+from ..surface.contours import contour_lines
 
 #: DXF colour index per layer (ACI), and the layers written.
 LAYERS = {"GRD-CONDUCTORS": 5, "GRD-RODS": 5, "GRD-SEPARATE": 30, "GRD-TOUCH-AREA": 8, "GRD-ZONES": 9,
@@ -45,7 +45,7 @@ def study_dxf(r: StudyResult) -> bytes:
             msp.add_line(tuple(c.start[k, :2]), tuple(c.end[k, :2]), dxfattribs={"layer": layer})
     for ring in _polygon_rings(r.surface.touch_area):
         msp.add_lwpolyline(ring, close=True, dxfattribs={"layer": "GRD-TOUCH-AREA"})
-    from ..case_site import shapely_polygon
+    from ..case.site import shapely_polygon
     for z in r.case.surface_zones:
         for ring in _polygon_rings(shapely_polygon(z.area)):
             msp.add_lwpolyline(ring, close=True, dxfattribs={"layer": "GRD-ZONES"})

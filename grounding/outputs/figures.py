@@ -9,14 +9,11 @@ from __future__ import annotations
 import io
 from dataclasses import dataclass
 
-import matplotlib
+import numpy as np
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-
-from ..study import StudyResult  # noqa: E402
+from ..study.result import StudyResult
+from .style import new_figure
 
 #: Figure size for a report page column, inches.
 FIGSIZE = (7.0, 5.2)
@@ -117,7 +114,7 @@ def _mark(ax, ext, label, color="black"):
 
 def plan_figure(r: StudyResult) -> Rendered:
     """Plan of the electrodes to scale, with dimensions, rods, probes, north arrow and scale bar."""
-    fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
+    fig, ax = new_figure(figsize=FIGSIZE, dpi=DPI)
     _draw_zones(ax, r)
     _overlay_electrodes(ax, r, color="#1f3b73", lw=1.4, legend=True)
     c = r.segments.conductors
@@ -184,7 +181,7 @@ def _nice_length(x: float) -> float:
 def potential_figure(r: StudyResult) -> Rendered:
     """Surface potential contours in volts, with contour labels in % of GPR."""
     s = r.surface
-    fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
+    fig, ax = new_figure(figsize=FIGSIZE, dpi=DPI)
     gpr = r.ground_potential_rise
     im = ax.contourf(s.x, s.y, s.potential, levels=20, cmap="viridis")
     pct = np.arange(10, 100, 10)
@@ -212,7 +209,7 @@ def touch_figure(r: StudyResult) -> Rendered:
     s = r.surface
     limit = r.tolerable_touch
     local, _ = r.local_limits()
-    fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
+    fig, ax = new_figure(figsize=FIGSIZE, dpi=DPI)
     im = ax.contourf(s.x, s.y, s.touch, levels=20, cmap="cividis")
     excess = np.where(np.isnan(s.touch), -np.inf, s.touch - local)
     handles = []
@@ -252,7 +249,7 @@ def step_figure(r: StudyResult) -> Rendered:
     s = r.surface
     limit = r.tolerable_step
     _, local = r.local_limits()
-    fig, ax = plt.subplots(figsize=FIGSIZE, dpi=DPI)
+    fig, ax = new_figure(figsize=FIGSIZE, dpi=DPI)
     im = ax.contourf(s.x, s.y, s.step, levels=20, cmap="cividis")
     if np.isfinite(local).all() and np.max(s.step - local) > 0:
         ax.contour(s.x, s.y, s.step - local, levels=[0], colors="#d7301f", linewidths=1.6)
@@ -275,7 +272,7 @@ def profile_figure(r: StudyResult) -> Rendered:
     """Surface potential and touch voltage along the profile line."""
     p = r.surface.profile
     gpr = r.ground_potential_rise
-    fig, ax = plt.subplots(figsize=(FIGSIZE[0], 3.6), dpi=DPI)
+    fig, ax = new_figure(figsize=(FIGSIZE[0], 3.6), dpi=DPI)
     ax.plot(p.distance, p.potential, color="#1f3b73", lw=1.5, label="surface potential")
     ax.plot(p.distance, gpr - p.potential, color="#b35806", lw=1.2, ls="--",
             label="GPR − potential" if r.solution.metal is None else
@@ -308,7 +305,7 @@ def uncertainty_figure(r: StudyResult) -> Rendered | None:
     lo, hi = dist.ppf(1e-4), dist.ppf(1 - 1e-4)
     lo, hi = min(lo, 0.9 * limit), max(hi, 1.1 * limit)
     v = np.linspace(lo, hi, 400)
-    fig, ax = plt.subplots(figsize=(FIGSIZE[0], 3.4), dpi=DPI)
+    fig, ax = new_figure(figsize=(FIGSIZE[0], 3.4), dpi=DPI)
     ax.plot(v, dist.pdf(v), color="#1f3b73", lw=1.5, label="worst touch voltage (soil uncertainty)")
     above = v >= limit
     ax.fill_between(v[above], dist.pdf(v[above]), color="#d7301f", alpha=0.35, hatch="////", lw=0,
@@ -342,7 +339,7 @@ def leakage_figure(r: StudyResult) -> Rendered:
 
     seg = r.segments
     density = r.segment_currents / seg.length
-    fig, ax = plt.subplots(figsize=(FIGSIZE[0], 4.6), dpi=DPI)
+    fig, ax = new_figure(figsize=(FIGSIZE[0], 4.6), dpi=DPI)
     # the energised system in colour; separate (floating or remote) metal thin and grey underneath, so that it
     # does not hide the grid's edge conductors (its currents are reported in the separate-electrode table)
     main = seg.conductors.group[seg.conductor] == 0
@@ -383,7 +380,7 @@ def metal_potential_figure(r: StudyResult) -> Rendered | None:
     seg = r.segments
     node = np.abs(metal.node_potential)
     percent = 50.0 * (node[metal.network.ends[:, 0]] + node[metal.network.ends[:, 1]])
-    fig, ax = plt.subplots(figsize=(FIGSIZE[0], 4.6), dpi=DPI)
+    fig, ax = new_figure(figsize=(FIGSIZE[0], 4.6), dpi=DPI)
     horizontal = ~seg.is_rod
     lc = LineCollection(np.stack([seg.start[horizontal, :2], seg.end[horizontal, :2]], axis=1),
                         array=percent[horizontal], cmap="viridis", linewidths=3.0)
@@ -413,15 +410,13 @@ def all_figures(r: StudyResult) -> list[Rendered]:
     return figs + ([u] if u is not None else [])
 
 
-def svg_bytes(fig: Figure, close: bool = True) -> bytes:
+def svg_bytes(fig: Figure) -> bytes:
     """The figure as SVG bytes (vector; deterministic: no date, fixed ids)."""
     import matplotlib as mpl
 
     buf = io.BytesIO()
     with mpl.rc_context({"svg.hashsalt": "grounding", "svg.fonttype": "path"}):
         fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
-    if close:
-        plt.close(fig)
     return buf.getvalue()
 
 
@@ -429,5 +424,4 @@ def png_bytes(fig: Figure) -> bytes:
     """The figure as PNG bytes (deterministic for the same figure)."""
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None})
-    plt.close(fig)
     return buf.getvalue()

@@ -15,9 +15,9 @@ import json
 import numpy as np
 import shapely
 
-from .. import __version__
 from ..cautions import CAUTIONS
-from ..study import StudyResult
+from ..study.result import StudyResult
+from ..version import __version__
 from .figures import SEPARATE_STYLE
 
 #: Colours as in the PDF figures: conductors, probes, the tolerable-limit contour, worst points.

@@ -6,15 +6,11 @@ import csv
 import io
 import json
 
-import matplotlib
-
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-
-from .. import __version__  # noqa: E402
-from ..cautions import CAUTIONS  # noqa: E402
-from ..options.compare import Option  # noqa: E402
-from .results_json import results_dict  # noqa: E402
+from ..cautions import CAUTIONS
+from ..options.compare import Option
+from ..version import __version__
+from .results_json import results_dict
+from .style import new_figure
 
 OPTIONS_FORMAT = 1
 
@@ -154,7 +150,7 @@ def tradeoff_figure(options: list[Option], best: int | None = None):
     use_cost = all(o.quantities.cost is not None for o in options)
     x = [o.quantities.cost if use_cost else o.quantities.mass_kg for o in options]
     y = [o.touch_margin * 100 for o in options]
-    fig, ax = plt.subplots(figsize=(6.8, 4.4), dpi=160)
+    fig, ax = new_figure(figsize=(6.8, 4.4), dpi=160)
     ok = [o.passes for o in options]
     ax.scatter([a for a, k in zip(x, ok) if k], [b for b, k in zip(y, ok) if k], marker="o", color="#1b7837",
                label="passes every criterion", zorder=3)

@@ -4,11 +4,11 @@ report's page, 1 m on site is exactly 1000/n mm on paper for the scale 1:n given
 from __future__ import annotations
 
 import numpy as np
-from reportlab.graphics.shapes import Circle, Drawing, Line, PolyLine, Polygon, Rect, String
+from reportlab.graphics.shapes import Circle, Drawing, Line, Polygon, PolyLine, Rect, String
 from reportlab.lib import colors
 from reportlab.lib.units import mm
 
-from ..study import StudyResult
+from ..study.result import StudyResult
 from .figures import SEPARATE_STYLE
 
 #: Scales offered, 1:n (the common drawing scales of site plans).

@@ -9,7 +9,6 @@ byte-for-byte reproducible.
 from __future__ import annotations
 
 import cmath
-
 import datetime as _dt
 import io
 import math
@@ -24,13 +23,23 @@ from reportlab.lib.styles import ParagraphStyle
 from reportlab.lib.units import mm
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
-from reportlab.platypus import (BaseDocTemplate, Frame, Image, KeepTogether, PageBreak, PageTemplate, Paragraph,
-                                Spacer, Table, TableStyle)
+from reportlab.platypus import (
+    BaseDocTemplate,
+    Frame,
+    Image,
+    KeepTogether,
+    PageBreak,
+    PageTemplate,
+    Paragraph,
+    Spacer,
+    Table,
+    TableStyle,
+)
 
-from .. import __version__
 from ..cautions import CAUTIONS
-from ..study import StudyResult
-from ..validation import validation_checks
+from ..study.result import StudyResult
+from ..study.validation import validation_checks
+from ..version import __version__
 from .figures import all_figures, png_bytes
 from .plan_vector import plan_drawing
 from .summary_text import UNCERTAINTY_LABELS, covering_text, soil_text, solver_text
@@ -629,6 +638,4 @@ def build_report(r: StudyResult, date: str | None = None) -> bytes:
         _table([["Reviewer name", ""], ["Licence number", ""], ["Date", ""], ["Signature", ""], ["Remarks", ""]],
                [45 * mm, 125 * mm], st, header=False, row_heights=[9 * mm, 9 * mm, 9 * mm, 16 * mm, 30 * mm])]))
     doc.build(story)
-    for fig in figs.values():          # the raster plan is not used (vector plan instead): free every figure
-        matplotlib.pyplot.close(fig.figure)
     return buf.getvalue()

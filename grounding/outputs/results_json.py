@@ -7,8 +7,8 @@ import contextvars
 import json
 import math
 
-from .. import __version__
-from ..study import StudyResult
+from ..study.result import StudyResult
+from ..version import __version__
 
 RESULTS_FORMAT = 1
 

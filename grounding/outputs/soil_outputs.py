@@ -4,15 +4,12 @@ from __future__ import annotations
 
 import json
 
-import matplotlib
+import numpy as np
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from ..cautions import CAUTIONS  # noqa: E402
-from ..sounding.fit import FittedModel, SoilFit, forward  # noqa: E402
-from ..sounding.readings import WENNER, Readings  # noqa: E402
+from ..cautions import CAUTIONS
+from ..sounding.fit import FittedModel, SoilFit, forward
+from ..sounding.readings import WENNER, Readings
+from .style import new_figure
 
 SOIL_FORMAT = 1
 
@@ -115,7 +112,7 @@ TRAVERSE_STYLES = (("o", "#1f3b73"), ("s", "#b35806"), ("^", "#1b7837"), ("D", "
 def fit_figure(fit: SoilFit, title: str = ""):
     """Readings and model curves on log–log axes; down-weighted readings drawn hollow in red."""
     r = fit.readings
-    fig, ax = plt.subplots(figsize=(6.5, 4.2), dpi=160)
+    fig, ax = new_figure(figsize=(6.5, 4.2), dpi=160)
     keep = ~fit.best.down_weighted
     names = list(dict.fromkeys(r.traverse))
     if len(names) > 1:
@@ -157,7 +154,7 @@ def fit_figure(fit: SoilFit, title: str = ""):
 def traverses_figure(fits: dict):
     """Several traverses fitted separately on one log–log plot: each traverse's readings with its own marker
     and its recommended model's curve in the same colour."""
-    fig, ax = plt.subplots(figsize=(6.5, 4.2), dpi=160)
+    fig, ax = new_figure(figsize=(6.5, 4.2), dpi=160)
     array = None
     for k, (name, fit) in enumerate(sorted(fits.items())):
         marker, color = TRAVERSE_STYLES[k % len(TRAVERSE_STYLES)]

@@ -6,9 +6,9 @@ import cmath
 import math
 import textwrap
 
-from .. import __version__
 from ..cautions import CAUTIONS
-from ..study import StudyResult
+from ..study.result import StudyResult
+from ..version import __version__
 
 WIDTH = 78
 #: Margins smaller than this share of the limit are reported as marginal.
@@ -131,7 +131,7 @@ def safety_lines(r: StudyResult) -> list[str]:
     out.append(line("Step voltage", r.step_check))
     out.append(line("Mesh voltage", r.mesh_check))
     if r.touch_check.worst is not None:
-        from ..surface import describe_place
+        from ..geometry.plan import describe_place
         w = r.touch_check.worst
         out.append(f"  The worst touch voltage is {describe_place(r.segments, r.surface.meshes, w.x, w.y)}.")
     if several:

@@ -7,7 +7,7 @@ import io
 import numpy as np
 
 from ..cautions import CAUTIONS
-from ..study import StudyResult
+from ..study.result import StudyResult
 
 
 def surface_csv(r: StudyResult) -> bytes:

@@ -6,7 +6,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from ..case import Case
+from ..case.model import Case
 
 
 def sverak_resistance(rho: float, total_length: float, area: float, depth: float) -> float:

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
-from ..case import SurfaceZone
-from ..surface import Extreme, ZoneExtremes
+from ..case.model import SurfaceZone
+from ..surface.results import Extreme, ZoneExtremes
 from .en50522 import DEFAULT_FOOTWEAR, prospective_touch_voltage
 from .ieee80 import Limits, tolerable_limits
 

@@ -64,8 +64,8 @@ VOLATILE = {("diagnostics", "assemble_s"), ("diagnostics", "solve_s"), ("diagnos
 def run_case(case: GoldenCase):
     """The study of ``case`` as ``grounding study`` runs it (including soil uncertainty)."""
     from grounding import load_case
-    from grounding.study import run_study
-    from grounding.uncertainty import propagate_soil_uncertainty
+    from grounding.study.pipeline import run_study
+    from grounding.study.uncertainty import propagate_soil_uncertainty
 
     result = run_study(load_case(ROOT / case.path))
     return replace(result, uncertainty=propagate_soil_uncertainty(result))

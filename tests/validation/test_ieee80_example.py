@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import pytest
 
-from grounding.case_loader import parse_case
+from grounding.case.load import parse_case
 from grounding.safety.ieee80 import (decrement_factor, surface_layer_factor, tolerable_step_voltage,
                                      tolerable_touch_voltage)
 from grounding.safety.simplified import mesh_and_step, simplified_method, sverak_resistance
@@ -74,7 +74,7 @@ def test_numerical_results_near_the_simplified_method():
     fits to computer analyses of such grids, so the method of moments should land within about ten
     per cent of them (common practice, not a published tolerance). Measured here: Rg −4.7 %, mesh
     voltage −3.4 %, step voltage −6.9 %."""
-    from grounding.study import run_study
+    from grounding.study.pipeline import run_study
 
     r = run_study(parse_case(CASE + "surface: {margin: 3, resolution: 0.5}\n"), estimate_error=False)
     simp = r.simplified

@@ -11,13 +11,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .assembly import assemble
-from .case import Case, Conductor, Criteria, Discretization, Electrodes, Fault, Layer, Rod, Soil
-from .geometry import segment
-from .safety.ieee80 import surface_layer_factor, tolerable_touch_voltage
-from .safety.simplified import mesh_and_step, sverak_resistance
-from .soil import make_kernel
-from .solve import solve_equipotential
+from ..case.model import Case, Conductor, Criteria, Discretization, Electrodes, Fault, Layer, Rod, Soil
+from ..geometry.segments import segment
+from ..kernels import make_kernel
+from ..operators.assembly import assemble
+from ..safety.ieee80 import surface_layer_factor, tolerable_touch_voltage
+from ..safety.simplified import mesh_and_step, sverak_resistance
+from ..solve.equipotential import solve_equipotential
 
 
 @dataclass(frozen=True)

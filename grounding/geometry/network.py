@@ -14,7 +14,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
-from .geometry import NODE_TOLERANCE, Segments
+from .segments import NODE_TOLERANCE, Segments
 
 
 @dataclass(frozen=True)

@@ -7,8 +7,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from .case import CONNECTIONS, NATIVE_ZONE, Area, Electrodes, SeparateElectrode, SurfaceLayer, SurfaceZone, TouchArea
-from .case_checks import Checks, fmt
+from .document import Checks, fmt
+from .model import CONNECTIONS, NATIVE_ZONE, Area, Electrodes, SeparateElectrode, SurfaceLayer, SurfaceZone, TouchArea
 
 #: Overlap area (m²) below which two zones only share an edge.
 OVERLAP_TOLERANCE = 1e-6

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-from ..case import Soil
+from ..case.model import Soil
 from .base import ImageTerms, RadialTable, SoilKernel
 from .layered import LayeredSoil
 from .two_layer import TwoLayerSoil, series_order

@@ -14,8 +14,8 @@ import math
 from pathlib import Path
 from typing import Any
 
-from .case import Conductor, Rod
-from .case_checks import Checks, fmt
+from .document import Checks, fmt
+from .model import Conductor, Rod
 
 #: $INSUNITS codes of the units a drawing may be in, and metres per unit.
 INSUNITS = {"mm": 4, "cm": 5, "m": 6, "in": 1, "ft": 2}

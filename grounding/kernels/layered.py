@@ -23,7 +23,7 @@ import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.special import j0
 
-from .base import DEPTH_QUANTUM, ImageTerms, Radial, RadialTable, SoilKernel, TABLE_REACH, _levels
+from .base import DEPTH_QUANTUM, TABLE_REACH, ImageTerms, Radial, RadialTable, SoilKernel, _levels
 
 #: Sub-grids per filter spacing on the logarithmic r nodes (lagged convolution).
 SUBGRIDS = 4

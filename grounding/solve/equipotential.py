@@ -21,8 +21,8 @@ import numpy as np
 import scipy.linalg
 from threadpoolctl import threadpool_limits
 
-from .errors import GroundingError
-from .hmatrix import threaded_map
+from ..errors import GroundingError
+from ..operators.hmatrix import threaded_map
 
 
 @dataclass(frozen=True)

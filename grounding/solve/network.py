@@ -27,8 +27,8 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
-from .errors import GroundingError
-from .metal_network import MetalNetwork
+from ..errors import GroundingError
+from ..geometry.network import MetalNetwork
 
 
 @dataclass(frozen=True)
@@ -228,7 +228,7 @@ def solve_network_iterative(operator, network: MetalNetwork, internal: np.ndarra
     Aᵀ diag(R)⁻¹ A + D diag(Z)⁻¹ Dᵀ by sparse LU). Returns the solution and the iteration count."""
     import scipy.sparse.linalg as spla
 
-    from .solve import block_jacobi
+    from .equipotential import block_jacobi
 
     N = len(network.ends)
     label, m, free, A, D, J, real = _nodal_setup(network, np.zeros(0, int), injection, connections)

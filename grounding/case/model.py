@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from .sounding.fit import SoilFit
+from ..sounding.fit import SoilFit
 
 Point2 = tuple[float, float]
 Point3 = tuple[float, float, float]

@@ -23,8 +23,9 @@ from dataclasses import dataclass, replace
 import numpy as np
 from scipy.stats import norm
 
-from .case import Case, Layer, Soil
-from .study import StudyResult, run_study
+from ..case.model import Case, Layer, Soil
+from .pipeline import run_study
+from .result import StudyResult
 
 #: Step of the forward differences in log-parameter space (≈ 3 %).
 LOG_STEP = 0.03

@@ -12,8 +12,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .case import Case
-from .errors import CaseError, ModelTooLargeError
+from ..case.model import Case
+from ..errors import CaseError, ModelTooLargeError
 
 #: Distance below which two points are the same node, m.
 NODE_TOLERANCE = 1e-6

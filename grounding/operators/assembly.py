@@ -20,9 +20,9 @@ import numpy as np
 from scipy.spatial import cKDTree
 from scipy.spatial.distance import cdist
 
-from .geometry import Segments
-from .integrals import GAUSS2, segment_pair_integral
-from .soil.base import DEPTH_QUANTUM, SoilKernel
+from ..geometry.segments import Segments
+from ..kernels.base import DEPTH_QUANTUM, SoilKernel
+from ..kernels.integrals import GAUSS2, segment_pair_integral
 
 Progress = Callable[[str, float], None]
 

@@ -14,7 +14,7 @@ from typing import Any
 
 import yaml
 
-from .errors import CaseError
+from ..errors import CaseError
 
 #: A diameter at or above this (m) is taken for millimetres given as metres.
 MM_SUSPECT_DIAMETER = 0.25

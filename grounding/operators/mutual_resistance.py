@@ -20,10 +20,10 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import scipy.sparse as sp
 
+from ..geometry.segments import Segments
+from ..kernels.base import SoilKernel
 from .assembly import PAIR_CHUNK, AssemblyOptions, Progress, assemble, middle_values, near_pairs, near_values
-from .geometry import Segments
 from .hmatrix import HMatrix, build_hmatrix, pair_values, threaded_map, unique_csr
-from .soil.base import SoilKernel
 
 #: Largest diagonal block of the block-Jacobi preconditioner (segments).
 PRECONDITIONER_BLOCK = 256

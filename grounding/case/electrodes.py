@@ -6,10 +6,9 @@ import difflib
 import math
 from typing import Any
 
-from .case import Conductor, Electrodes, Grid, Rod, Soil
-from .case_checks import Checks, fmt
-from .materials import MATERIALS
-
+from ..materials import MATERIALS
+from .document import Checks, fmt
+from .model import Conductor, Electrodes, Grid, Rod, Soil
 
 #: Most meshes along one side of a grid (a spacing given where a count is asked for is the usual cause).
 MAX_MESHES = 1000

@@ -1,0 +1,136 @@
+"""Step voltages: the map of the largest potential difference one step away, and the worst step per zone checked on the exact potential."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+from scipy.interpolate import RectBivariateSpline
+
+from ..operators.potential import SurfacePotential
+from .results import Extreme, _better, _top_candidates
+from .search import _distinct, _refine
+from .zoning import Zoning
+
+#: Directions searched for the step voltage on the map.
+STEP_DIRECTIONS = 16
+
+
+class _PhasorSpline:
+    """Bicubic spline of a real map, or of the real and imaginary parts of a phasor map."""
+
+    def __init__(self, x, y, V):
+        # cubic where the map has the points for it (a narrow map may have fewer than 4 along one side)
+        kx, ky = min(3, len(x) - 1), min(3, len(y) - 1)
+        self.re = RectBivariateSpline(x, y, V.real.T, kx=kx, ky=ky)
+        self.im = RectBivariateSpline(x, y, V.imag.T, kx=kx, ky=ky) if np.iscomplexobj(V) else None
+
+    def ev(self, px, py):
+        out = self.re.ev(px, py)
+        return out if self.im is None else out + 1j * self.im.ev(px, py)
+
+
+def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray,
+                   coarse: np.ndarray | None = None):
+    """Step-voltage map from a bicubic spline of the potential, and the worst step per zone checked
+    exactly and refined, and again from the ``coarse`` map points when given (``Extreme.map_check``). A step
+    belongs to the zone of the foot with the more severe zone."""
+    resolution = float(x[1] - x[0]) if len(x) > 1 else 1.0
+    spline = _PhasorSpline(x, y, V)
+
+    def smooth(xy):
+        xy = np.atleast_2d(xy)
+        return spline.ev(np.clip(xy[:, 0], x[0], x[-1]), np.clip(xy[:, 1], y[0], y[-1]))
+
+    X, Y = np.meshgrid(x, y)
+    ang = np.pi * np.arange(STEP_DIRECTIONS) / STEP_DIRECTIONS
+    step = np.zeros(V.shape)
+    nz = len(zoning)
+    per_zone = np.zeros((nz,) + V.shape)
+    for t in ang:
+        for sign in (1.0, -1.0):                    # both directions: every step is seen from both feet
+            px, py = X + sign * step_len * np.cos(t), Y + sign * step_len * np.sin(t)
+            inside = (px >= x[0]) & (px <= x[-1]) & (py >= y[0]) & (py <= y[-1])
+            dv = np.where(inside, np.abs(spline.ev(np.clip(px, x[0], x[-1]), np.clip(py, y[0], y[-1])) - V), 0.0)
+            step = np.maximum(step, dv)
+            if nz == 1:
+                per_zone[0] = step
+                continue
+            owner = zoning.worse(labels, zoning.label(px, py))
+            for k in range(nz):
+                per_zone[k] = np.maximum(per_zone[k], np.where(owner == k, dv, 0.0))
+    # exact check around the best few map points of each zone: both ends of the step evaluated directly
+    out = []
+    for k in range(nz):
+        if nz > 1 and not ((labels == k).any() or (per_zone[k] > 0).any()):
+            out.append(None)
+            continue
+        best = _exact_step(per_zone[k], X, Y, step_len, potential, zoning, k, resolution, smooth)
+        if best is not None and coarse is not None:
+            check = _exact_step(np.where(coarse, per_zone[k], 0.0), X, Y, step_len, potential, zoning, k,
+                                2 * resolution, smooth)
+            best = replace(best, map_check=None if check is None else check.value)
+        out.append(best)
+    return step, out
+
+
+#: Directions of the exact step check (half circle, each both ways), and of the zoom search for it.
+EXACT_STEP_DIRECTIONS = 64
+REFINE_STEP_DIRECTIONS = 12
+#: Candidates within this share of the best exact value are refined.
+REFINE_SHARE = 0.1
+
+
+def steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None" = None, k: int = 0,
+             directions: int = EXACT_STEP_DIRECTIONS) -> np.ndarray:
+    """Largest potential difference (V) between each point and the points one step away, over
+    2·``directions`` directions. ``potential`` is any vectorised function of (M, 2) points (the exact
+    potential, or a spline of the map for a cheap search). With ``zoning``, only steps that belong to
+    zone k (the zone of the more severe foot) count (−inf where none does). ``xy`` has shape (M, 2)."""
+    xy = np.atleast_2d(np.asarray(xy, float))
+    ang = np.pi * np.arange(directions) / directions
+    d = step_len * np.concatenate([np.column_stack([np.cos(ang), np.sin(ang)]),
+                                   -np.column_stack([np.cos(ang), np.sin(ang)])])
+    ends = (xy[:, None, :] + d[None, :, :]).reshape(-1, 2)
+    v = potential(np.vstack([xy, ends]))
+    v0, ve = v[:len(xy)], v[len(xy):].reshape(len(xy), len(d))
+    dv = np.abs(ve - v0[:, None])
+    if zoning is not None and len(zoning) > 1:
+        own = zoning.label(xy[:, 0], xy[:, 1])
+        owner = zoning.worse(np.repeat(own, len(d)), zoning.label(ends[:, 0], ends[:, 1])).reshape(dv.shape)
+        dv = np.where(owner == k, dv, -np.inf)
+    return dv.max(axis=1)
+
+
+def step_at(potential, px: float, py: float, step_len: float) -> float:
+    """Largest potential difference (V) between (px, py) and the points one step away (exact)."""
+    return float(steps_at(potential, np.array([[px, py]]), step_len)[0])
+
+
+def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, k: int, resolution: float,
+                smooth=None) -> Extreme | None:
+    """The best few map points of ``values`` checked exactly (both feet evaluated directly); those within
+    REFINE_SHARE of the best refined by a zoom search of the step voltage on ``smooth`` (a bicubic spline of
+    the map; the exact potential when None), and the point found evaluated exactly in the full set of
+    directions (kept only if it beats the map point)."""
+    search = potential if smooth is None else smooth
+    cand = [c for c in _top_candidates(values, X, Y) if values.ravel()[c] > -np.inf]
+    if not cand:
+        return None
+    xy = np.column_stack([X.ravel()[cand], Y.ravel()[cand]])
+    first = steps_at(potential, xy, step_len, zoning, k)
+    if not np.isfinite(first).any():
+        return None
+    best = None
+    start = {(float(p[0]), float(p[1])): float(v0) for p, v0 in zip(xy, first)}
+    for px, py in _distinct([p for p, v0 in start.items() if v0 >= (1 - REFINE_SHARE) * np.max(first)], resolution):
+        v0 = start[(px, py)]
+        _, qx, qy = _refine(lambda p: steps_at(search, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
+                            float(px), float(py), 0.5 * resolution, lambda x, y: np.ones(np.shape(x), bool),
+                            points=5, levels=5)
+        v = float(steps_at(potential, np.array([[qx, qy]]), step_len, zoning, k)[0])
+        if v < v0:                                          # the coarse-direction search may mislead
+            v, qx, qy = float(v0), float(px), float(py)
+        if np.isfinite(v) and (best is None or _better(v, qx, qy, best)):
+            best = Extreme(v, qx, qy)
+    return best
