@@ -149,7 +149,7 @@ def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=(
             files.append((str(folder / f"{f.name}.svg"), svg_bytes(f.figure)))
             files.append((str(folder / f"{f.name}.png"), png_bytes(f.figure)))
     if report_file:
-        from .outputs.report_pdf import build_report
+        from .outputs.report import build_report
         files.append((report_file, build_report(result)))
     _write_all(files, inputs)
     return [p for p, _ in files]

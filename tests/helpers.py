@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
-from grounding.operators.assembly import AssemblyOptions, assemble
 from grounding.case.load import parse_case
 from grounding.geometry.segments import segment
 from grounding.kernels import make_kernel
+from grounding.operators.assembly import AssemblyOptions, assemble
 from grounding.solve.equipotential import solve_equipotential
 from tests.conftest import case_text
 

@@ -36,8 +36,9 @@ ORDER = {
     "study": ("__init__", "result", "metal_drop", "accuracy", "pipeline", "uncertainty", "converge", "validation"),
     "options": ("__init__", "quantities", "sweep", "runner", "recorded", "compare", "design"),
     "outputs": ("__init__", "style", "atomic", "surface_csv", "soil_outputs", "results_json", "summary_text",
-                "figures", "plan_vector", "drawing_dxf", "html_view", "report", "report_pdf", "options_outputs",
+                "figures", "plan_vector", "drawing_dxf", "html_view", "report", "options_outputs",
                 "design_case"),
+    "outputs.report": ("common", "tables", "method", "sections", "build", "__init__"),
     "cli": ("cli",),
     "face": ("__init__",),
 }
@@ -58,7 +59,8 @@ def exists(name: str) -> bool:
 
 
 def place(name: str) -> tuple[str, str]:
-    """(stage, module within the stage) of a dotted module name inside the package."""
+    """(stage, module within the stage) of a dotted module name inside the package; for a package nested in a
+    stage (``outputs.report``), the nested package is the stage."""
     if name == "":
         return "face", "__init__"
     parts = name.split(".")
@@ -66,9 +68,14 @@ def place(name: str) -> tuple[str, str]:
         return "shared", parts[0]
     if parts[0] == "cli":
         return "cli", "cli"
-    stage = parts[0]
-    sub = parts[1] if len(parts) > 1 else "__init__"
-    return stage, sub
+    if len(parts) > 2 or (len(parts) == 2 and ".".join(parts) in ORDER):
+        return ".".join(parts[:2]), parts[2] if len(parts) > 2 else "__init__"
+    return parts[0], parts[1] if len(parts) > 1 else "__init__"
+
+
+def rank(stage: str) -> int:
+    """Position of a stage in STAGES (a nested package ranks with its stage)."""
+    return STAGES.index(stage.split(".")[0])
 
 
 def imported_modules(path: Path, source: str | None = None) -> set[str]:
@@ -118,10 +125,15 @@ def test_no_module_imports_a_later_stage_or_a_later_module_of_its_stage():
         stage, sub = place(module_name(path))
         for target in imported_modules(path):
             t_stage, t_sub = place(target)
-            if STAGES.index(t_stage) > STAGES.index(stage):
+            if rank(t_stage) > rank(stage):
                 bad.append(f"{path.relative_to(PACKAGE)} imports the later stage {target or 'grounding'}")
             elif t_stage == stage and ORDER[stage].index(t_sub) >= ORDER[stage].index(sub):
                 bad.append(f"{path.relative_to(PACKAGE)} imports {target}, which comes after it in its stage")
+            elif t_stage.startswith(stage + ".") and ORDER[stage].index(t_stage.split(".")[1]) >= ORDER[stage].index(sub):
+                bad.append(f"{path.relative_to(PACKAGE)} imports {target}, which comes after it in its stage")
+            elif stage.startswith(t_stage + ".") and ORDER[t_stage].index(t_sub) >= ORDER[t_stage].index(
+                    stage.split(".")[1]):
+                bad.append(f"{path.relative_to(PACKAGE)} imports {target}, which comes after its package")
     assert not bad, "\n".join(bad)
 
 

@@ -16,13 +16,13 @@ import pytest
 from grounding import load_case, run_study
 from grounding.case.model import Injection, ShieldWireLine, SplitNetwork
 from grounding.errors import CaseError
-from grounding.kernels.impedance import MU0, internal_impedance, partial_inductances, skin_depth
-from grounding.geometry.segments import segment
 from grounding.geometry.network import metal_network
+from grounding.geometry.segments import segment
+from grounding.kernels.impedance import MU0, internal_impedance, partial_inductances, skin_depth
 from grounding.safety.current_division import current_division, infinite_ladder_impedance, ladder_impedance
 from grounding.solve.equipotential import solve_equipotential
 from grounding.solve.network import solve_network
-from grounding.solve.run import _solve
+from grounding.solve.run import solve_case
 from grounding.study.metal_drop import estimate_metal_drop
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -114,8 +114,8 @@ def test_long_counterpoise_at_dc_matches_the_transmission_line_model(tmp_path):
     # Systems", 1949/1968): Z_in = Z0 coth(γl), far end at 1/cosh(γl) of the feed, with Z0 = √(r/g),
     # γ = √(r g), g the leakage conductance per metre taken from the equipotential solution.
     case = _case(tmp_path, COUNTERPOISE.format(f=0, length=1000, h=5))
-    segments, _, coupled, _ = _solve(case)
-    _, _, equipotential, _ = _solve(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))
+    segments, _, coupled, _ = solve_case(case)
+    _, _, equipotential, _ = solve_case(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))
     r = 1.59e-7 / 50e-6                                         # steel-1020, 20 °C (IEEE Std 80 Table 1)
     z_in, z0, far = _line_model(equipotential.resistance, 1000.0, r)
     assert coupled.resistance == pytest.approx(z_in, rel=0.02)
@@ -134,8 +134,8 @@ def test_input_resistance_of_a_long_wire_saturates_near_the_characteristic_imped
     values, rg = {}, {}
     for length in (2000, 3000, 4000):
         case = _case(tmp_path, COUNTERPOISE.format(f=0, length=length, h=10), f"cp{length}.yaml")
-        _, _, coupled, _ = _solve(case)
-        _, _, eq, _ = _solve(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))
+        _, _, coupled, _ = solve_case(case)
+        _, _, eq, _ = solve_case(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))
         values[length], rg[length] = coupled.resistance, eq.resistance
     assert values[4000] == pytest.approx(values[3000], rel=0.01)
     assert rg[4000] < 0.8 * rg[3000]
@@ -149,9 +149,9 @@ def test_zero_series_impedance_reproduces_the_equipotential_solution(tmp_path):
     case = load_case(ROOT / "cases" / "kestrel-bend-uniform.yaml")
     case = replace(case, discretization=replace(case.discretization, max_segment=3.0))
     segments = segment(case)
+    from grounding.kernels import make_kernel
     from grounding.operators.assembly import AssemblyOptions
     from grounding.operators.mutual_resistance import dense_operator
-    from grounding.kernels import make_kernel
     R = dense_operator(segments, make_kernel(case.soil, 3.0), AssemblyOptions()).matrix
     network = metal_network(segments)
     ns = solve_network(R, network, np.zeros((len(segments),) * 2, complex), [(0, 1.0)])
@@ -184,9 +184,9 @@ def test_power_entering_equals_metal_losses_plus_power_into_the_soil(tmp_path):
     # Energy conservation (Tellegen's theorem on the discrete network): Re(V_feed · I*) = Σ Re(Z) |I_b|² +
     # iᴴ R i, recomputed here from the returned currents.
     case = _case(tmp_path, COUNTERPOISE.format(f=50, length=300, h=5))
-    segments, kernel, solution, _ = _solve(case)
-    from grounding.operators.assembly import AssemblyOptions
+    segments, kernel, solution, _ = solve_case(case)
     from grounding.kernels.impedance import series_impedance
+    from grounding.operators.assembly import AssemblyOptions
     from grounding.operators.mutual_resistance import dense_operator
     R = dense_operator(segments, kernel, AssemblyOptions()).matrix
     Z = series_impedance(case, segments).matrix()
@@ -301,7 +301,8 @@ def test_screening_estimate_flags_a_long_steel_lead(tmp_path):
 
 
 # ---- property: Rayleigh's monotonicity law ----------------------------------------------------------------
-from hypothesis import given, settings, strategies as st  # noqa: E402
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st
 
 
 @settings(max_examples=10, deadline=None, derandomize=True)
@@ -320,8 +321,8 @@ def test_dc_series_resistance_never_lowers_the_input_resistance(nx, ny, lx, ly, 
             f"diameter: 0.01}}]\ndiscretization: {{max_segment: 2.0}}\n")
     from grounding.case.load import parse_case
     case = parse_case(text)
-    _, _, coupled, _ = _solve(case)
-    _, _, eq, _ = _solve(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))
+    _, _, coupled, _ = solve_case(case)
+    _, _, eq, _ = solve_case(replace(case, electrodes=replace(case.electrodes, conductor_impedance=False)))
     assert coupled.resistance >= eq.resistance * (1 - 1e-9)
     lo, hi = coupled.metal.fraction(0)
     assert hi == pytest.approx(1.0, abs=1e-9) and 0 < lo <= 1.0
@@ -347,8 +348,8 @@ def test_iterative_coupled_solve_matches_the_dense_one(tmp_path):
     assert iterative.worst_step == pytest.approx(dense.worst_step, rel=1e-4)
     dc = _case(tmp_path, COUNTERPOISE.format(f=0, length=500, h=5).replace("max_segment: 5}",
                                                                           "max_segment: 5, solver: iterative}"))
-    _, _, it, _ = _solve(dc)
-    _, _, de, _ = _solve(replace(dc, discretization=replace(dc.discretization, solver="dense")))
+    _, _, it, _ = solve_case(dc)
+    _, _, de, _ = solve_case(replace(dc, discretization=replace(dc.discretization, solver="dense")))
     assert it.resistance == pytest.approx(de.resistance, rel=1e-6)
 
 
@@ -378,4 +379,4 @@ def test_injection_in_plan_takes_the_metal_depth_there(tmp_path):
                                                                              "injection: [100, 0, 0.8]"), "a.yaml")
     plan = _case(tmp_path, COUNTERPOISE.format(f=0, length=300, h=5).replace("injection: [0, 0, 0.8]",
                                                                              "injection: [100, 0]"), "b.yaml")
-    assert _solve(plan)[2].resistance == pytest.approx(_solve(full)[2].resistance, rel=1e-12)
+    assert solve_case(plan)[2].resistance == pytest.approx(solve_case(full)[2].resistance, rel=1e-12)

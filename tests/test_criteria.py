@@ -145,8 +145,8 @@ def test_fault_sources_and_split_from_currents():
 
 def test_quantities_use_the_nominal_area():
     """Metal mass from the nominal 120 mm² of a stranded conductor, not the 143 mm² circle of its diameter."""
-    from grounding.options.quantities import quantities
     from grounding.materials import MATERIALS
+    from grounding.options.quantities import quantities
 
     text = ("grids: [{origin: [0, 0], size: [20, 20], meshes: [2, 2], depth: 0.5, diameter: 0.0135%s}]\n")
     r = run_study(parse_case(case_text(text % ", cross_section: 120e-6", extra="surface: {resolution: 2.0}\n")),

@@ -12,8 +12,8 @@ import pytest
 ezdxf = pytest.importorskip("ezdxf")
 
 from grounding.case.load import load_case
-from grounding.study.pipeline import run_study
 from grounding.operators.potential import surface_potential
+from grounding.study.pipeline import run_study
 
 HEAD = """\
 format: 1

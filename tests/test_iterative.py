@@ -12,16 +12,16 @@ import pytest
 from click.testing import CliRunner
 from scipy.spatial.distance import cdist
 
-import grounding.solve.equipotential as solve_module
 import grounding.operators.potential as potential_module
+import grounding.solve.equipotential as solve_module
 from grounding import run_study
-from grounding.cli import main
 from grounding.case.load import parse_case
+from grounding.cli import main
 from grounding.errors import CaseError, GroundingError
 from grounding.geometry.segments import segment
+from grounding.kernels import TwoLayerSoil, UniformSoil, make_kernel
 from grounding.operators.hmatrix import apply_once, build_hmatrix
 from grounding.operators.mutual_resistance import compressed_operator, dense_operator
-from grounding.kernels import TwoLayerSoil, UniformSoil, make_kernel
 from grounding.solve.equipotential import solve_equipotential, solve_iterative, solve_operator
 from grounding.solve.policy import DENSE_LIMIT, solver_kind
 

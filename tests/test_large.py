@@ -4,12 +4,10 @@ from __future__ import annotations
 
 import os
 
-import pytest
-
-from grounding.operators.assembly import AssemblyOptions, assemble
 from grounding.case.load import parse_case
 from grounding.geometry.segments import segment
 from grounding.kernels import make_kernel
+from grounding.operators.assembly import AssemblyOptions, assemble
 from grounding.operators.mutual_resistance import compressed_operator
 from grounding.solve.equipotential import SINGLE_THREAD_FROM, blas_threads_for, solve_equipotential, solve_iterative
 

@@ -113,10 +113,10 @@ def test_high_contrast_two_layer_uses_the_hankel_kernel_with_bounded_memory():
     """Rock under thin soil (K → 1): the image series would need ~10^5 orders (an 18 GiB table was seen);
     the Hankel-transform kernel takes over above MAX_IMAGE_ORDERS, and agrees with the series where both run
     (K = 0.977: the image series of Sunde/Tagg against the Hankel transform, the same physics two ways)."""
-    from grounding.operators.assembly import AssemblyOptions, assemble
     from grounding.case.load import parse_case
     from grounding.geometry.segments import segment
     from grounding.kernels import LayeredSoil, TwoLayerSoil, make_kernel
+    from grounding.operators.assembly import AssemblyOptions, assemble
     from grounding.solve.equipotential import solve_equipotential
     from tests.conftest import case_text
 

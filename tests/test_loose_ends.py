@@ -35,7 +35,7 @@ def test_auto_fit_with_few_readings_says_why_one_layer(tmp_path):
 
 
 def test_report_says_unresolved_like_the_terminal():
-    from grounding.outputs.report_pdf import _pm
+    from grounding.outputs.report.common import plus_minus as _pm
 
     assert _pm(float("inf")) == "unresolved" and _pm(1.5) == "unresolved" and _pm(0.12) == "±12%"
 
@@ -80,7 +80,7 @@ def test_pdf_metadata_date_is_the_study_date():
 
     import pypdf
 
-    from grounding.outputs.report_pdf import build_report
+    from grounding.outputs.report import build_report
 
     r = run_study(parse_case(case_text("rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}]\n",
                                        extra="surface: {resolution: 1.0}\n")), estimate_error=False)

@@ -8,12 +8,12 @@ import pytest
 from click.testing import CliRunner
 
 from grounding.case.load import load_case
-from grounding.options.sweep import load_variants
-from grounding.errors import CaseError
 from grounding.cli import main
+from grounding.errors import CaseError
 from grounding.options.compare import best_option, make_options
 from grounding.options.design import search
 from grounding.options.runner import group_by_geometry, run_options
+from grounding.options.sweep import load_variants
 from grounding.study.pipeline import run_study
 
 SWEEP = """\

@@ -12,9 +12,9 @@ from pypdf import PdfReader
 from grounding.case.load import parse_case
 from grounding.cautions import CAUTIONS
 from grounding.cli import main
-from grounding.outputs import report_pdf
 from grounding.outputs.figures import all_figures, touch_figure
-from grounding.outputs.report_pdf import build_report
+from grounding.outputs.report import build as report_build
+from grounding.outputs.report import build_report
 from grounding.outputs.surface_csv import surface_csv
 from grounding.study.pipeline import run_study
 from tests.test_cli import SMALL
@@ -92,7 +92,7 @@ def test_failed_report_writes_nothing(result, tmp_path, monkeypatch):
     def boom(r):
         raise RuntimeError("figure failed")
 
-    monkeypatch.setattr(report_pdf, "all_figures", boom)
+    monkeypatch.setattr(report_build, "all_figures", boom)
     with pytest.raises(RuntimeError):
         cli._write_outputs(result, str(json_file), str(pdf_file), None, None)
     assert json_file.read_text() == "previous" and pdf_file.read_bytes() == b"previous"
@@ -125,13 +125,12 @@ def test_report_lists_every_rod_coordinate_and_reading(tmp_path):
     """A reviewer can check the layout and the sounding without the case file: every rod's top and every
     reading is in the text of the PDF."""
     import io
+    from pathlib import Path
 
     import pypdf
 
     from grounding import load_case, run_study
-    from grounding.outputs.report_pdf import build_report
-
-    from pathlib import Path
+    from grounding.outputs.report import build_report
 
     case = load_case(Path(__file__).resolve().parents[1] / "cases" / "kestrel-bend-fitted.yaml")
     r = run_study(case, estimate_error=False)
@@ -150,7 +149,7 @@ def test_report_leaves_no_figure_open():
     import matplotlib.pyplot as plt
 
     from grounding import parse_case, run_study
-    from grounding.outputs.report_pdf import build_report
+    from grounding.outputs.report import build_report
     from tests.conftest import case_text
 
     r = run_study(parse_case(case_text(
@@ -159,3 +158,36 @@ def test_report_leaves_no_figure_open():
     before = set(plt.get_fignums())
     build_report(r, date="2026-12-02")
     assert set(plt.get_fignums()) == before
+
+
+def test_footer_carries_the_cautions_own_text_on_every_page(pdf):
+    reader = PdfReader(io.BytesIO(pdf))
+    for page in reader.pages:
+        text = squash(page.extract_text())
+        for caution in CAUTIONS:
+            assert squash(caution) in text
+
+
+def test_method_section_says_what_ran_dense_equipotential_uniform(result):
+    from grounding.outputs.report.method import method_paragraphs
+
+    text = " ".join(method_paragraphs(result))
+    assert "one equipotential body" in text and "Cholesky" in text and "uniform soil" in text
+    assert "conjugate gradients" not in text and "GMRES" not in text and "image series" not in text
+
+
+def test_method_section_names_the_coupled_solve_and_the_iterative_solve():
+    """A conductor-impedance study is described as the coupled metal–soil solve; an iterative two-layer study as
+    conjugate gradients on the compressed operator with the image series (not the fixed Cholesky text)."""
+    from grounding import load_case
+    from grounding.outputs.report.method import method_paragraphs
+    from tests.golden.harness import ROOT
+
+    coupled = " ".join(method_paragraphs(run_study(load_case(ROOT / "cases/kestrel-bend-steel-lead.yaml"),
+                                                   estimate_error=False)))
+    assert "solved together as one network" in coupled and "LU factorisation" in coupled
+    assert "one equipotential body" not in coupled and "Cholesky" not in coupled
+    iterative = " ".join(method_paragraphs(run_study(load_case(ROOT / "tests/golden/cases/iterative-two-layer.yaml"),
+                                                     estimate_error=False)))
+    assert "conjugate gradients" in iterative and "iterations" in iterative and "image series" in iterative
+    assert "Cholesky" not in iterative

@@ -8,11 +8,11 @@ import textwrap
 
 import pytest
 
-from grounding.options.sweep import load_variants
 from grounding.case.load import parse_case
 from grounding.options.compare import make_options
 from grounding.options.design import search
 from grounding.options.runner import run_options
+from grounding.options.sweep import load_variants
 from grounding.outputs.results_json import results_dict
 from grounding.study.pipeline import run_study
 

@@ -15,10 +15,10 @@ import pytest
 from grounding.case.load import parse_case
 from grounding.errors import CaseError
 from grounding.geometry.segments import segment
+from grounding.operators.potential import surface_potential
 from grounding.safety.ieee80 import DALZIEL_K
 from grounding.study.pipeline import run_study
 from grounding.surface.zoning import Zoning
-from grounding.operators.potential import surface_potential
 from tests.conftest import case_text
 
 RHO = 100.0

@@ -10,8 +10,8 @@ from scipy.integrate import quad
 from grounding.case.load import parse_case
 from grounding.geometry.segments import segment
 from grounding.kernels import make_kernel
-from grounding.study.pipeline import run_study
 from grounding.operators.potential import surface_potential
+from grounding.study.pipeline import run_study
 from tests.conftest import case_text
 
 ROD = "rods: [{top: [0, 0, 0], length: 5, diameter: 0.016}]\n"
@@ -128,8 +128,8 @@ def test_touch_peak_on_the_edge_of_the_touch_area_is_found_on_a_coarse_map():
     grid; the worst touch voltage is 1 m diagonally outside a corner (the surface potential falls away from
     the metal fastest there) and must be found (an earlier line search reported 745 V where 1379 V occur)."""
     from grounding.case.load import parse_case
-    from grounding.study.pipeline import run_study
     from grounding.operators.potential import surface_potential
+    from grounding.study.pipeline import run_study
     from tests.conftest import case_text
 
     case = parse_case(case_text("""\

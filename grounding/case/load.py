@@ -78,10 +78,10 @@ def load_case(path: str | Path) -> Case:
 def parse_case(text: str, file: str = "<case>", sha256: str = "") -> Case:
     """Validate case-file text (YAML) into a :class:`Case`; ``file`` is used in messages only."""
     doc = Document.parse(text, file)
-    return _CaseReader(doc).read(sha256 or hashlib.sha256(text.encode("utf-8")).hexdigest())
+    return CaseReader(doc).read(sha256 or hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
-class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
+class CaseReader(ElectrodeSections, SiteSections, DrawingSections):
     """Walks the document section by section; validation happens here once, then data is trusted."""
 
     def __init__(self, doc: Document, fits: dict | None = None):
@@ -190,7 +190,7 @@ class _CaseReader(ElectrodeSections, SiteSections, DrawingSections):
                     if key == prefix or key.startswith(prefix + ".") or key.startswith(prefix + "["):
                         lines[b + key[len(prefix):]] = line
             try:
-                case = _CaseReader(Document(self.doc.file, data, lines), self.fits).read(
+                case = CaseReader(Document(self.doc.file, data, lines), self.fits).read(
                     hashlib.sha256((sha256 + "scenario " + name).encode()).hexdigest())
             except CaseError as exc:
                 raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in scenario '{name}')") from None

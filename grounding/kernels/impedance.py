@@ -80,7 +80,7 @@ def skin_depth(resistivity, relative_permeability, frequency: float) -> np.ndarr
     return np.sqrt(2 * np.asarray(resistivity) / (2 * np.pi * frequency * MU0 * np.asarray(relative_permeability)))
 
 
-def _exact_pairs(segments: Segments):
+def exact_pairs(segments: Segments):
     """The pairs i < j nearer than EXACT_REACH segment lengths that couple (u_i · u_j ≠ 0), as (i, j, u_i · u_j,
     ∫∫ ds dt / r in m), and the self integrals ∫∫ ds dt / r of every segment (thin-wire kernel), m."""
     a, b = segments.start, segments.end
@@ -104,7 +104,7 @@ def partial_inductances(segments: Segments) -> np.ndarray:
     with np.errstate(divide="ignore"):
         M = MU0 / (4 * np.pi) * dot * np.outer(L, L) / d
     M[np.abs(dot) <= 1e-12] = 0.0
-    i, j, dot_ij, exact, own = _exact_pairs(segments)
+    i, j, dot_ij, exact, own = exact_pairs(segments)
     M[i, j] = M[j, i] = MU0 / (4 * np.pi) * dot_ij * exact
     M[np.diag_indices(len(L))] = MU0 / (4 * np.pi) * own
     return M

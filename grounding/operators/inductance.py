@@ -7,7 +7,7 @@ import scipy.sparse
 import scipy.special
 
 from ..geometry.segments import Segments
-from ..kernels.impedance import MU0, _exact_pairs
+from ..kernels.impedance import MU0, exact_pairs
 
 
 class CompressedInductance:
@@ -24,7 +24,7 @@ class CompressedInductance:
         mid = segments.midpoint
         self.weights = (segments.end - segments.start)                  # (N, 3): l · u_k
         self.G = build_hmatrix(lambda r, z, zp: 1.0 / np.sqrt(r * r + (z - zp) ** 2), mid)
-        i, j, dot, exact, own = _exact_pairs(segments)
+        i, j, dot, exact, own = exact_pairs(segments)
         midpoint = L[i] * L[j] / np.linalg.norm(mid[i] - mid[j], axis=1)
         n = len(L)
         rows = np.concatenate([i, j, np.arange(n)])

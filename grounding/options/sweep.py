@@ -10,7 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from ..case.document import Document
-from ..case.load import _CaseReader
+from ..case.load import CaseReader
 from ..case.model import Case
 from ..case.sweep import apply_setting, setting_order, sweep_settings
 from ..errors import CaseError
@@ -39,7 +39,7 @@ def load_variants(path: str | Path) -> list[Variant]:
     text, sha = read_user_text(path, "a YAML case file")
     doc = Document.parse(text, str(path))
     fits: dict = {}
-    base = _CaseReader(doc, fits).read(sha)           # validates the file itself, sweep block included
+    base = CaseReader(doc, fits).read(sha)           # validates the file itself, sweep block included
     if "sweep" not in doc.data:
         raise CaseError(str(path), None, "sweep", "is missing; add a sweep block to vary parameters")
     settings = sweep_settings(doc)
@@ -56,7 +56,7 @@ def load_variants(path: str | Path) -> list[Variant]:
                 msg = str(exc) if isinstance(exc, ValueError) else f"cannot be applied ({exc})"
                 raise CaseError(str(path), doc.line(f"sweep.{n}"), f"sweep.{n}", msg.split(": ", 1)[-1]) from None
         try:
-            case = _CaseReader(Document(str(path), data, doc.lines), fits).read(
+            case = CaseReader(Document(str(path), data, doc.lines), fits).read(
                 hashlib.sha256((base.sha256 + label).encode()).hexdigest())
         except CaseError as exc:
             raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in sweep option {label})") from None

@@ -180,9 +180,9 @@ def comparison_report(options: list[Option], best: int | None, reason: str, date
     from reportlab.platypus import BaseDocTemplate, Frame, Image, PageBreak, PageTemplate, Paragraph, Spacer, Table
 
     from .figures import plan_figure, png_bytes, touch_figure
-    from .report_pdf import ACCENT, WARN, _caution_box, _styles, _table
+    from .report.common import ACCENT, WARN, caution_box, styles, table
 
-    st = _styles()
+    st = styles()
     date = date or _dt.datetime.now(_dt.timezone.utc).date().isoformat()
     buf = io.BytesIO()
     size = landscape(A4)
@@ -208,7 +208,7 @@ def comparison_report(options: list[Option], best: int | None, reason: str, date
     doc.addPageTemplates([PageTemplate(id="p", frames=[Frame(doc.leftMargin, doc.bottomMargin, doc.width,
                                                               doc.height)], onPage=decorate)])
     P = lambda t, s="body": Paragraph(t, st[s])  # noqa: E731
-    story = [P("Layout options", "h1"), _caution_box(st), Spacer(1, 4 * mm)]
+    story = [P("Layout options", "h1"), caution_box(st), Spacer(1, 4 * mm)]
     head = ["", *[f"{i + 1}{' ★' if i == best else ''}" for i in range(len(options))]]
     rows = [head,
             ["Rg", *[f"{o.outcome.grid_resistance:.3f} Ω" for o in options]],
@@ -222,7 +222,7 @@ def comparison_report(options: list[Option], best: int | None, reason: str, date
             ["Cost", *[_cost(o) for o in options]]]
     col = min(40 * mm, (doc.width - 30 * mm) / max(1, len(options)))
     if len(options) <= 8:
-        story.append(_table(rows, [30 * mm] + [col] * len(options), st))
+        story.append(table(rows, [30 * mm] + [col] * len(options), st))
     story.append(Spacer(1, 3 * mm))
     for i, o in enumerate(options, start=1):
         story.append(P(f"{i}: {o.label} — {o.outcome.source}", "small"))

@@ -24,7 +24,7 @@ from .policy import check_model_size, solver_kind, solver_memory_bytes
 Progress = Callable[[str, float], None]
 
 
-def _solve(case: Case, progress: Progress | None = None):
+def solve_case(case: Case, progress: Progress | None = None):
     """Segment, assemble and solve one discretisation; returns (segments, kernel, solution, timings)."""
     segments = segment(case)
     check_model_size(case, segments)
@@ -48,16 +48,16 @@ def _solve(case: Case, progress: Progress | None = None):
     return segments, kernel, solution, {"assemble_s": t1 - t0, "solve_s": t2 - t1}
 
 
-def _injection_nodes(case: Case, network: MetalNetwork) -> list[tuple[int, float]]:
+def injection_nodes(case: Case, network: MetalNetwork) -> list[tuple[int, float]]:
     """Node and share of each injection point (the geometry put a node on each)."""
     return [(network.nearest_node(inj.point)[0], inj.share) for inj in case.fault.injection]
 
 
-def _network_solve(case: Case, segments: Segments, R: np.ndarray, injection=None) -> MetalState:
+def network_solve(case: Case, segments: Segments, R: np.ndarray, injection=None) -> MetalState:
     """The coupled metal–soil solution for 1 A at the case's injection points (or ``injection``)."""
     network = metal_network(segments)
     Z = series_impedance(case, segments).matrix()
-    ns = solve_network(R, network, Z, injection or _injection_nodes(case, network), connections(case))
+    ns = solve_network(R, network, Z, injection or injection_nodes(case, network), connections(case))
     return MetalState(network, ns)
 
 
@@ -72,7 +72,7 @@ def _solve_with_impedance(case: Case, segments: Segments, kernel: SoilKernel, pr
         if kind == "dense":
             operator = dense_operator(segments, kernel, AssemblyOptions(), progress)
             t1 = time.perf_counter()
-            metal = _network_solve(case, segments, operator.matrix)
+            metal = network_solve(case, segments, operator.matrix)
         else:
             operator = compressed_operator(segments, kernel, AssemblyOptions(), progress)
             network = metal_network(segments)
@@ -81,7 +81,7 @@ def _solve_with_impedance(case: Case, segments: Segments, kernel: SoilKernel, pr
             internal = series_impedance(case, segments, inductance=False).internal
             t1 = time.perf_counter()
             ns, iterations = solve_network_iterative(operator, network, internal, inductance, f,
-                                                     _injection_nodes(case, network), connections(case))
+                                                     injection_nodes(case, network), connections(case))
             metal = MetalState(network, ns)
     except MemoryError:
         raise ModelTooLargeError(

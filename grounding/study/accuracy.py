@@ -9,7 +9,7 @@ import numpy as np
 from ..case.model import Case
 from ..operators.potential import SurfacePotential
 from ..solve.equipotential import Solution
-from ..solve.run import _solve
+from ..solve.run import solve_case
 from ..surface.results import Extreme, SurfaceResult, ZoneExtremes
 from ..surface.steps import step_at
 from .result import DiscretizationError
@@ -25,7 +25,7 @@ def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int
     re-evaluated at the same points from the coarse solve (``Extreme.segment_check``)."""
     coarse_case = replace(case, discretization=replace(case.discretization,
                                                             max_segment=2 * case.discretization.max_segment))
-    segments, kernel, coarse, _ = _solve(coarse_case)
+    segments, kernel, coarse, _ = solve_case(coarse_case)
     if len(segments) == fine_segments:
         return DiscretizationError(coarse.resistance, None, None,
                                    "not estimated: doubling max_segment does not change the segments "

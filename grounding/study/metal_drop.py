@@ -15,7 +15,7 @@ from ..operators.assembly import AssemblyOptions
 from ..operators.mutual_resistance import dense_operator
 from ..solve.equipotential import Solution
 from ..solve.network import MetalState
-from ..solve.run import _injection_nodes, _network_solve
+from ..solve.run import injection_nodes, network_solve
 from .result import MetalDrop
 
 #: The potential-drop screening of an equipotential study runs on at most this many segments (the
@@ -64,7 +64,7 @@ def estimate_metal_drop(case: Case, segments: Segments | None = None) -> MetalDr
     R = dense_operator(segments, kernel, AssemblyOptions()).matrix
     network = metal_network(segments)
     if case.fault.injection:
-        injection = _injection_nodes(coarse, network)
+        injection = injection_nodes(coarse, network)
         where = "the case's fault.injection"
     else:
         main = network.group == 0
@@ -72,7 +72,7 @@ def estimate_metal_drop(case: Case, segments: Segments | None = None) -> MetalDr
         injection = [(network.nearest_node(centre)[0], 1.0)]
         where = "the metal nearest the centroid (no fault.injection given)"
     try:
-        metal = _network_solve(coarse, segments, R, injection)
+        metal = network_solve(coarse, segments, R, injection)
     except GroundingError as exc:
         return MetalDrop(None, None, None, True, f"not estimated: {exc}")
     return _drop_of(metal, injection[0][0], True,

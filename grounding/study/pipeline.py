@@ -23,7 +23,7 @@ from ..safety.ieee80 import decrement_factor
 from ..safety.simplified import simplified_method
 from ..safety.site import Check, CriteriaResult, ZoneVerdict, governing, least_margin, separate_result, zone_limits
 from ..solve.equipotential import Solution
-from ..solve.run import _solve
+from ..solve.run import solve_case
 from ..surface.contours import contour_lines
 from ..surface.fields import surface_fields
 from ..surface.results import SeparateMetal, SurfaceResult
@@ -104,7 +104,7 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
                    screen_drop: bool = True) -> UnitStudy:
     """Solve the electrodes at 1 V and map the surface; see :class:`UnitStudy`. ``screen_drop``: also screen
     the potential drop along the metal of an equipotential study (:func:`estimate_metal_drop`)."""
-    segments, kernel, solution, timings = _solve(case, progress)
+    segments, kernel, solution, timings = solve_case(case, progress)
     t0 = time.perf_counter()
     surface = surface_fields(segments, solution.currents_per_volt, 1.0, kernel, case.surface, case.probes,
                              progress=progress, zoning=zoning(case),

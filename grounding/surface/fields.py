@@ -19,9 +19,9 @@ from ..geometry.segments import Segments
 from ..kernels.base import SoilKernel
 from ..operators.assembly import AssemblyOptions
 from ..operators.potential import SurfacePotential
-from .results import Extreme, Profile, SeparateMetal, SurfaceResult, ZoneExtremes, _largest
-from .search import _metal_touch, _worst_place
-from .steps import _step_voltages
+from .results import Extreme, Profile, SeparateMetal, SurfaceResult, ZoneExtremes, largest
+from .search import touch_near_metal, worst_place
+from .steps import step_voltages
 from .zoning import Zoning
 
 Progress = Callable[[str, float], None]
@@ -93,21 +93,21 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     grid2 = (X, Y, 2 * surface.resolution)
 
     def worst_main(region, mask, k):
-        best = _worst_place(touch_at, touch_map, mask & (labels == k), grid, region, zoning, k)
+        best = worst_place(touch_at, touch_map, mask & (labels == k), grid, region, zoning, k)
         if best is not None and check_map:
-            check = _worst_place(touch_at, touch_map, mask & (labels == k) & coarse, grid2, region, zoning, k)
+            check = worst_place(touch_at, touch_map, mask & (labels == k) & coarse, grid2, region, zoning, k)
             best = replace(best, map_check=None if check is None else check.value)
         return best
 
     zone_touch = [worst_main(area, in_area, k) for k in range(len(zoning))]
     zone_mesh = [worst_main(meshes, in_mesh, k) if in_mesh.any() else None for k in range(len(zoning))]
-    step, zone_step = _step_voltages(x, y, V, surface.step_distance, potential, zoning, labels,
+    step, zone_step = step_voltages(x, y, V, surface.step_distance, potential, zoning, labels,
                                      coarse if check_map else None)
     zones = tuple(ZoneExtremes(t, st, m) for t, st, m in zip(zone_touch, zone_step, zone_mesh))
-    max_touch = _largest(zone_touch)
+    max_touch = largest(zone_touch)
     if max_touch is None:                                  # no touch area at all: nothing to report
         max_touch = Extreme(float("nan"), float(x[0]), float(y[0]))
-    metal_touch = tuple(_metal_touch(m, segments, surface, potential, V, labels, grid, zoning) for m in metal)
+    metal_touch = tuple(touch_near_metal(m, segments, surface, potential, V, labels, grid, zoning) for m in metal)
     probe_xy = np.array(probes, float).reshape(-1, 2)
     probe_complex = potential(probe_xy) if probes else np.zeros(0)
     probe_v = np.abs(probe_complex)
@@ -116,5 +116,5 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     f = np.linspace(0.0, 1.0, PROFILE_POINTS)
     px, py = x0 + f * (x1 - x0), y0 + f * (y1 - y0)
     profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, np.abs(potential(np.column_stack([px, py]))))
-    return SurfaceResult(x, y, np.abs(V), touch, step, area, meshes, max_touch, _largest(zone_step), _largest(zone_mesh),
+    return SurfaceResult(x, y, np.abs(V), touch, step, area, meshes, max_touch, largest(zone_step), largest(zone_mesh),
                          probe_v, profile, zones, metal_touch, labels, probe_touch)

@@ -151,11 +151,11 @@ class Profile:
     potential: np.ndarray
 
 
-def _largest(extremes) -> Extreme | None:
+def largest(extremes) -> Extreme | None:
     """The largest of some extremes (None entries skipped), ties broken by position."""
     best = None
     for e in extremes:
-        if e is not None and (best is None or _better(e.value, e.x, e.y, best)):
+        if e is not None and (best is None or beats(e.value, e.x, e.y, best)):
             best = e
     return best
 
@@ -165,7 +165,7 @@ def _largest(extremes) -> Extreme | None:
 TIE = 1e-9
 
 
-def _top_candidates(values: np.ndarray, X: np.ndarray, Y: np.ndarray, count: int = 3) -> np.ndarray:
+def top_candidates(values: np.ndarray, X: np.ndarray, Y: np.ndarray, count: int = 3) -> np.ndarray:
     """Indices of the largest values, ties (within TIE) ordered by y, then x."""
     flat = values.ravel()
     finite = np.isfinite(flat)
@@ -174,7 +174,7 @@ def _top_candidates(values: np.ndarray, X: np.ndarray, Y: np.ndarray, count: int
     return np.lexsort((X.ravel(), Y.ravel(), -q))[:count]
 
 
-def _better(value: float, x: float, y: float, best: Extreme) -> bool:
+def beats(value: float, x: float, y: float, best: Extreme) -> bool:
     """Whether (value, x, y) beats ``best``: larger beyond TIE, or tied and first by y, then x."""
     scale = max(abs(value), abs(best.value), 1e-300) * TIE
     if value > best.value + scale:

@@ -10,7 +10,7 @@ import shapely
 from ..case.model import SurfaceMap
 from ..geometry.plan import metal_footprint
 from ..geometry.segments import Segments
-from .results import TIE, Extreme, MetalTouch, SeparateMetal, _better, _top_candidates
+from .results import TIE, Extreme, MetalTouch, SeparateMetal, beats, top_candidates
 from .zoning import Zoning
 
 #: Most points sampled along the edge of an area when searching its worst point.
@@ -20,7 +20,7 @@ ZOOM_POINTS = 7
 ZOOM_LEVELS = 4
 
 
-def _refine(field, x0: float, y0: float, half_width: float, accept, points: int = ZOOM_POINTS,
+def zoom_maximum(field, x0: float, y0: float, half_width: float, accept, points: int = ZOOM_POINTS,
             levels: int = ZOOM_LEVELS) -> tuple[float, float, float]:
     """Local maximum of ``field`` (vectorised over (M, 2) points) near (x0, y0) by a zoom search: a patch of
     ZOOM_POINTS² points over ±half_width, then patches a third the size around the best point,
@@ -41,7 +41,7 @@ def _refine(field, x0: float, y0: float, half_width: float, accept, points: int 
     return best
 
 
-def _distinct(points, resolution: float) -> list[tuple[float, float]]:
+def distinct_points(points, resolution: float) -> list[tuple[float, float]]:
     """The points in order, leaving out any within 1.5 map spacings of one already kept (a zoom search from
     it would find the same peak)."""
     kept: list[tuple[float, float]] = []
@@ -52,7 +52,7 @@ def _distinct(points, resolution: float) -> list[tuple[float, float]]:
     return kept
 
 
-def _worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> Extreme | None:
+def worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> Extreme | None:
     """Largest value over the map points in ``mask`` (zone k of ``region``), refined by a local search on
     the exact ``field`` (vectorised over (M, 2) points). A zone part of the region with area but no map point is
     evaluated at points inside it, so that a criterion is never passed without evidence. None when
@@ -62,7 +62,7 @@ def _worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> E
     candidates_xy = []
     if mask.any():
         flat = np.where(mask, values, -np.inf).ravel()
-        for c in _top_candidates(flat, X, Y):
+        for c in top_candidates(flat, X, Y):
             if np.isfinite(flat[c]):
                 candidates_xy.append((float(X.ravel()[c]), float(Y.ravel()[c])))
     elif part.area > 1e-9:
@@ -91,14 +91,14 @@ def _worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> E
     start = field(np.array(candidates_xy, float))
     order = np.lexsort((np.array(candidates_xy)[:, 0], np.array(candidates_xy)[:, 1], -start))
     best = None
-    for cx, cy in _distinct([candidates_xy[i] for i in order], resolution):
-        v, px, py = _refine(field, cx, cy, resolution, accept)
-        if best is None or _better(v, px, py, best):
+    for cx, cy in distinct_points([candidates_xy[i] for i in order], resolution):
+        v, px, py = zoom_maximum(field, cx, cy, resolution, accept)
+        if best is None or beats(v, px, py, best):
             best = Extreme(v, px, py)
     return best
 
 
-def _metal_touch(m: SeparateMetal, segments: Segments, surface: SurfaceMap, potential, V, labels, grid,
+def touch_near_metal(m: SeparateMetal, segments: Segments, surface: SurfaceMap, potential, V, labels, grid,
                  zoning: Zoning) -> MetalTouch:
     """Touch voltages within reach of one separate electrode, per zone."""
     X, Y, resolution = grid
@@ -106,6 +106,6 @@ def _metal_touch(m: SeparateMetal, segments: Segments, surface: SurfaceMap, pote
     shapely.prepare(reach)
     near = shapely.intersects_xy(reach, X, Y)
     values = np.abs(m.potential - V)
-    touch = tuple(_worst_place(lambda xy: np.abs(m.potential - potential(xy)), values, near & (labels == k), grid,
+    touch = tuple(worst_place(lambda xy: np.abs(m.potential - potential(xy)), values, near & (labels == k), grid,
                                reach, zoning, k) for k in range(len(zoning)))
     return MetalTouch(touch)

@@ -8,8 +8,8 @@ import numpy as np
 from scipy.interpolate import RectBivariateSpline
 
 from ..operators.potential import SurfacePotential
-from .results import Extreme, _better, _top_candidates
-from .search import _distinct, _refine
+from .results import Extreme, beats, top_candidates
+from .search import distinct_points, zoom_maximum
 from .zoning import Zoning
 
 #: Directions searched for the step voltage on the map.
@@ -30,7 +30,7 @@ class _PhasorSpline:
         return out if self.im is None else out + 1j * self.im.ev(px, py)
 
 
-def _step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray,
+def step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning, labels: np.ndarray,
                    coarse: np.ndarray | None = None):
     """Step-voltage map from a bicubic spline of the potential, and the worst step per zone checked
     exactly and refined, and again from the ``coarse`` map points when given (``Extreme.map_check``). A step
@@ -114,7 +114,7 @@ def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, k: int, resol
     the map; the exact potential when None), and the point found evaluated exactly in the full set of
     directions (kept only if it beats the map point)."""
     search = potential if smooth is None else smooth
-    cand = [c for c in _top_candidates(values, X, Y) if values.ravel()[c] > -np.inf]
+    cand = [c for c in top_candidates(values, X, Y) if values.ravel()[c] > -np.inf]
     if not cand:
         return None
     xy = np.column_stack([X.ravel()[cand], Y.ravel()[cand]])
@@ -123,14 +123,14 @@ def _exact_step(values, X, Y, step_len, potential, zoning: Zoning, k: int, resol
         return None
     best = None
     start = {(float(p[0]), float(p[1])): float(v0) for p, v0 in zip(xy, first)}
-    for px, py in _distinct([p for p, v0 in start.items() if v0 >= (1 - REFINE_SHARE) * np.max(first)], resolution):
+    for px, py in distinct_points([p for p, v0 in start.items() if v0 >= (1 - REFINE_SHARE) * np.max(first)], resolution):
         v0 = start[(px, py)]
-        _, qx, qy = _refine(lambda p: steps_at(search, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
+        _, qx, qy = zoom_maximum(lambda p: steps_at(search, p, step_len, zoning, k, REFINE_STEP_DIRECTIONS),
                             float(px), float(py), 0.5 * resolution, lambda x, y: np.ones(np.shape(x), bool),
                             points=5, levels=5)
         v = float(steps_at(potential, np.array([[qx, qy]]), step_len, zoning, k)[0])
         if v < v0:                                          # the coarse-direction search may mislead
             v, qx, qy = float(v0), float(px), float(py)
-        if np.isfinite(v) and (best is None or _better(v, qx, qy, best)):
+        if np.isfinite(v) and (best is None or beats(v, qx, qy, best)):
             best = Extreme(v, qx, qy)
     return best

@@ -12,8 +12,12 @@ from __future__ import annotations
 import pytest
 
 from grounding.case.load import parse_case
-from grounding.safety.ieee80 import (decrement_factor, surface_layer_factor, tolerable_step_voltage,
-                                     tolerable_touch_voltage)
+from grounding.safety.ieee80 import (
+    decrement_factor,
+    surface_layer_factor,
+    tolerable_step_voltage,
+    tolerable_touch_voltage,
+)
 from grounding.safety.simplified import mesh_and_step, simplified_method, sverak_resistance
 
 CASE = """\
