@@ -12,7 +12,12 @@ import pytest
 from tests.golden.harness import CASES, differences, golden_document, read, run_case
 
 
-@pytest.mark.parametrize("case", CASES, ids=[c.name for c in CASES])
+#: Golden cases that take more than about 10 s (left out of the quick loop, ``-m "not slow"``).
+SLOW = {"seasons"}
+
+
+@pytest.mark.parametrize("case", [pytest.param(c, marks=pytest.mark.slow) if c.name in SLOW else c for c in CASES],
+                         ids=[c.name for c in CASES])
 def test_study_gives_the_stored_results(case):
     fresh = golden_document(run_case(case))
     diff = differences(read(case), fresh, case.rtol)

@@ -130,6 +130,7 @@ def _open_offline(browser, path: Path):
     return browser.execute_script("return document.querySelector('.js-plotly-plot')")
 
 
+@pytest.mark.browser
 def test_view_renders_offline_with_no_console_errors(browser, view, tmp_path):
     _open_offline(browser, view["html"])
     assert browser.execute_script("return document.querySelectorAll('.main-svg').length") >= 1
@@ -144,6 +145,7 @@ def test_view_renders_offline_with_no_console_errors(browser, view, tmp_path):
     assert len(np.unique((pixels.reshape(-1, 3) * 255).astype(int), axis=0)) > 200
 
 
+@pytest.mark.browser
 def test_hover_at_the_worst_touch_point_shows_the_reported_value(browser, view):
     _open_offline(browser, view["html"])
     summary = json.loads(view["json"].read_text())["summary"]
@@ -155,6 +157,7 @@ def test_hover_at_the_worst_touch_point_shows_the_reported_value(browser, view):
     assert f"{summary['max_touch_voltage_v']:,.0f} V" in text, text
 
 
+@pytest.mark.browser
 def test_map_in_the_browser_equals_the_csv_map(browser, view):
     _open_offline(browser, view["html"])
     z = browser.execute_script("""
@@ -177,6 +180,7 @@ def test_map_in_the_browser_equals_the_csv_map(browser, view):
     assert checked > 100
 
 
+@pytest.mark.browser
 def test_scenarios_get_one_layer_set_each(browser, tmp_path):
     out = _study(tmp_path, CASE + SCENARIOS, "seasons")
     data = _data(out["html"].read_text(encoding="utf-8"))

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import pytest
+
 import os
 
 from grounding.case.load import parse_case
@@ -31,6 +33,7 @@ def _faulty_kernels() -> bool:
                for d in threadpool_info() if d.get("internal_api") == "openblas")
 
 
+@pytest.mark.slow
 def test_a_16400_segment_case_solves():
     """Regression: this case ended in a segmentation fault inside the Cholesky factorisation with OpenBLAS's
     SkylakeX kernels on 2 threads (exit 139, nothing written). The dense factorisation (4.3 GB; 45 s on
@@ -68,6 +71,7 @@ def test_single_thread_only_for_large_factorisations_on_avx512_kernels(monkeypat
     assert isinstance(blas_threads_for(20_000), nullcontext)
 
 
+@pytest.mark.slow
 def test_a_2200_segment_study_runs_within_2_gb_of_address_space(tmp_path):
     """Resource test: under a 2 GB address-space limit (ulimit -v) a 2 200-segment study runs, or is refused in
     one line; never a MemoryError traceback or a signal."""

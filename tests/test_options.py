@@ -85,6 +85,7 @@ def test_process_pool_identical_to_serial(variants, serial):
     assert [summary(r) for r in pooled] == [summary(r) for r in serial]
 
 
+@pytest.mark.cluster
 def test_dask_local_cluster_identical_to_serial(variants, serial):
     """Same numbers to rounding: Dask's workers run BLAS single-threaded, which changes the order of
     floating-point sums in matrix products (seen: 1 unit in the last place of one step voltage)."""

@@ -63,6 +63,7 @@ def _numbers(doc) -> list[float]:
 
 
 @given(valid_cases())
+@pytest.mark.slow
 def test_valid_cases_study_with_finite_deterministic_results(text):
     case = parse_case(text)
     try:

@@ -86,6 +86,7 @@ def test_scenario_blocks_merge_key_by_key():
     assert case.base_scenario == "measured"
 
 
+@pytest.mark.slow
 def test_design_with_scenarios_passes_every_scenario(tmp_path):
     sweep = BASE + SCENARIOS + textwrap.dedent("""\
         costs: {conductor_per_m: 40, rod_per_m: 30, rod_each: 100, surface_layer_per_m2: 5, currency: EUR}

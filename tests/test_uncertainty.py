@@ -51,6 +51,7 @@ def test_voltage_error_estimates_shrink_and_cover_the_error(ladder, crit):
         assert abs(c.worst.value - ref) <= 1.5 * c.error + 1e-9 * ref
 
 
+@pytest.mark.slow
 def test_converge_settles_within_one_percent_of_a_finer_reference(ladder):
     result, conv = converge_study(_grid(2, 1))
     assert conv.converged and len(conv.rounds) >= 2
@@ -109,6 +110,7 @@ surface: {resolution: 1.0, margin: 2}
 """
 
 
+@pytest.mark.slow
 def test_linear_propagation_against_monte_carlo():
     """First-order propagation against a Monte Carlo of 200 full studies (numpy's generator, seed 1): the
     probability that the touch limit is exceeded within 0.05, σ(log) of Rg and the worst voltages within 10 %."""
