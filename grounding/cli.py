@@ -105,10 +105,6 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html
         case = load_case(case_file)
         _check_outputs_early((json_file, report_file, csv_file, dxf_file, html_file), _inputs_of(case))
         result = converge_study(case, progress=bar)[0] if converge else run_study(case, progress=bar)
-        from dataclasses import replace as _replace
-
-        from .study.uncertainty import propagate_soil_uncertainty
-        result = _replace(result, uncertainty=propagate_soil_uncertainty(result, bar))
         bar.close()
         written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file,
                                  html_file)

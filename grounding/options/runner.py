@@ -1,6 +1,6 @@
 """Run many studies: serially, on a local process pool, or on a Dask distributed cluster.
 
-Options whose soil, geometry, discretisation and map are equal (``geometry_key``) are sent together as
+Options whose soil, geometry, discretisation and map are equal (``solve_key``) are sent together as
 one task and share one solve and one surface map; only the fault data, criteria and surface layer
 differ between them, which scale the fields or change the limits. Every path runs the same code on the
 same data, so results are identical to a serial run.
@@ -12,7 +12,8 @@ from typing import Callable, Sequence
 
 from ..case.model import Case
 from ..errors import GroundingError
-from ..study.pipeline import geometry_key, run_study, solve_geometry
+from ..study.conditions import solve_geometry, solve_key
+from ..study.pipeline import run_study
 from ..study.result import StudyResult
 
 Progress = Callable[[int, int], None]
@@ -20,16 +21,16 @@ Progress = Callable[[int, int], None]
 
 def group_by_geometry(cases: Sequence[Case]) -> list[list[int]]:
     """Indices of the cases, grouped by equal geometry key, in first-seen order."""
-    groups: dict[str, list[int]] = {}
+    groups: dict = {}
     for i, c in enumerate(cases):
-        groups.setdefault(geometry_key(c), []).append(i)
+        groups.setdefault(solve_key(c), []).append(i)
     return list(groups.values())
 
 
 def run_group(cases: Sequence[Case], estimate_error: bool = True) -> list[StudyResult]:
     """Studies of cases that share one geometry: one solve, then one cheap finish per case."""
     unit = solve_geometry(cases[0], estimate_error=estimate_error)
-    return [run_study(c, unit=unit) for c in cases]
+    return [run_study(c, unit=unit, uncertainty=False) for c in cases]
 
 
 def run_options(cases: Sequence[Case], workers: int = 1, cluster: str | None = None,

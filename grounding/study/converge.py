@@ -51,7 +51,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
     studied with its discretisation-error estimate.
     """
     h, res = case.discretization.max_segment, case.surface.resolution
-    current = run_study(case, estimate_error=False, screen_drop=False)
+    current = run_study(case, estimate_error=False, screen_drop=False, uncertainty=False)
     rounds = [_round(current)]
     note, converged = "", False
     while len(rounds) < max_rounds:
@@ -64,7 +64,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
             note = f"stopped before round {len(rounds) + 1}: {exc}"
             break
         h, res = h / 2, res / 2
-        current = run_study(trial, estimate_error=False, screen_drop=False)
+        current = run_study(trial, estimate_error=False, screen_drop=False, uncertainty=False)
         rounds.append(_round(current))
         if _change(rounds[-2], rounds[-1]) < tolerance:
             converged = True
@@ -78,4 +78,4 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
         note = (f"settled: the worst voltages changed by {_change(rounds[-2], rounds[-1]) * 100:.2f} % from "
                 f"max_segment {2 * h:g} m, map {2 * res:g} m to {h:g} m, {res:g} m")
     conv = Convergence(tuple(rounds), converged, tolerance, note)
-    return replace(final, convergence=conv), conv
+    return replace(final, diagnostics=replace(final.diagnostics, convergence=conv)), conv

@@ -91,38 +91,225 @@ class Convergence:
 
 
 @dataclass(frozen=True)
-class StudyResult:
-    """Everything a study computed. Currents in A, voltages in V, resistances in Ω, lengths in m."""
+class QuantityUncertainty:
+    """σ of one result and the probability that its limit is exceeded.
 
-    case: Case
+    Attributes
+    ----------
+    value : float or None
+        The nominal result (Ω or V).
+    sigma : float or None
+        1-σ in the result's unit, from σ(log y) (≈ relative σ × value for small σ).
+    sigma_log : float or None
+        σ of log y.
+    probability_exceeds_limit : float or None
+        P(worst / limit > 1) under the log-normal model; None for Rg and GPR.
+    sensitivities : tuple of float
+        ∂ log y / ∂ log p_j per soil parameter.
+    """
+
+    value: float | None
+    sigma: float | None
+    sigma_log: float | None
+    probability_exceeds_limit: float | None
+    sensitivities: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class SoilUncertaintyResult:
+    """What the soil uncertainty does to the results.
+
+    Attributes
+    ----------
+    source : str
+        Where the parameter uncertainty came from.
+    parameters : tuple of str
+        Names of the soil parameters (ρ1, h1, …) in the order of the sensitivities.
+    sigma_log : tuple of float
+        σ of each log-parameter.
+    quantities : dict of str to QuantityUncertainty
+        ``grid_resistance``, ``ground_potential_rise``, ``touch``, ``step``, ``mesh``.
+    extra_solves : int
+        Solves the propagation cost (one per soil parameter).
+    seconds : float
+        Time it took, s.
+    model : str
+        The statistical model, in words.
+    """
+
+    source: str
+    parameters: tuple[str, ...]
+    sigma_log: tuple[float, ...]
+    quantities: dict
+    extra_solves: int
+    seconds: float
+    model: str = ("soil parameters log-normal; each result log-normal with σ(log y)² = Sᵀ C S from forward "
+                  "differences in the log-parameters (first order); P = Φ(log(worst/limit) / σ)")
+
+
+
+@dataclass(frozen=True)
+class ElectricalResult:
+    """The solved electrode system at the case's fault current.
+
+    Attributes
+    ----------
+    segments : Segments
+        The discretisation.
+    kernel : SoilKernel
+        The soil's Green's function.
+    solution : Solution
+        The solve (per volt of GPR): currents, Rg, separate-electrode potentials, the metal network.
+    segment_currents : ndarray
+        Leakage current of each segment at the grid current, A (magnitudes for phasors).
+    decrement_factor : float
+        Df.
+    grid_current : float
+        IG = Df · Sf · 3I0, A.
+    ground_potential_rise : float
+        GPR = IG · Rg, V (at the injection point with conductor impedance).
+    current_division : CurrentDivision or None
+        Sf and path currents when ``fault.split`` lists lines and cables.
+    metal_drop : MetalDrop or None
+        How far the metal's potential drops (coupled solution, or the screening estimate).
+    """
+
     segments: Segments
     kernel: SoilKernel
     solution: Solution
+    segment_currents: np.ndarray
     decrement_factor: float
     grid_current: float
     ground_potential_rise: float
-    segment_currents: np.ndarray
-    surface: SurfaceResult
+    current_division: CurrentDivision | None = None
+    metal_drop: MetalDrop | None = None
+
+
+@dataclass(frozen=True)
+class SafetyResult:
+    """The verdicts: per standard, and the governing checks over zones (and scenarios, when combined).
+
+    Attributes
+    ----------
+    criteria : tuple of CriteriaResult
+        One per standard asked for; the first one's verdicts are the summary's.
+    touch_check, step_check, mesh_check : Check
+        The governing (least margin) zone's check of the first standard; over every scenario in a combined
+        result.
+    limits : Limits
+        The first standard's limits in the governing touch zone.
+    simplified : SimplifiedResult
+        IEEE Std 80's simplified method beside the numerical result.
+    """
+
+    criteria: tuple[CriteriaResult, ...]
+    touch_check: Check
+    step_check: Check
+    mesh_check: Check
     limits: Limits
     simplified: SimplifiedResult
-    conductor: ConductorCheck
+
+    @property
+    def zones(self) -> tuple[ZoneVerdict, ...]:
+        """The first standard's verdict per surface zone."""
+        return self.criteria[0].zones
+
+    @property
+    def separate(self) -> tuple[SeparateResult, ...]:
+        """The first standard's verdict per separate electrode."""
+        return self.criteria[0].separate
+
+
+@dataclass(frozen=True)
+class Diagnostics:
+    """How the study was made and how sure it is.
+
+    Attributes
+    ----------
+    discretization_error : DiscretizationError
+        The estimate of Rg's discretisation error.
+    timings : dict
+        Stage timings, s.
+    warnings : tuple of str
+        Notes and warnings for the reader.
+    convergence : Convergence or None
+        The rounds of ``--converge``, when run.
+    """
+
     discretization_error: DiscretizationError
     timings: dict
     warnings: tuple[str, ...]
-    zones: tuple[ZoneVerdict, ...] = ()
-    touch_check: Check | None = None
-    step_check: Check | None = None
-    mesh_check: Check | None = None
-    separate: tuple[SeparateResult, ...] = ()
-    contours: tuple[tuple[float, list], ...] = ()
+    convergence: Convergence | None = None
+
+
+def _alias(group: str, name: str, topic: str):
+    """A read-only property for an attribute that moved into a topic group (kept for one release)."""
+    def get(self):
+        return getattr(getattr(self, group), name)
+    return property(get, doc=f"The same as ``.{group}.{name}`` ({topic}; this name is kept for one release).")
+
+
+@dataclass(frozen=True)
+class StudyResult:
+    """Everything a study computed, grouped by topic. Currents in A, voltages in V, resistances in Ω, lengths in m.
+
+    Attributes
+    ----------
+    case : Case
+        The case as studied (with Sf from the current division where computed).
+    electrical : ElectricalResult
+        Segments, kernel, solution, currents, Df, IG, GPR, current division, metal drop.
+    surface : SurfaceResult
+        Maps and worst points at the case's GPR, with the contour lines asked for.
+    safety : SafetyResult
+        Criteria per standard, governing checks, limits, the simplified method.
+    conductor : ConductorCheck
+        Conductor sizing for the fault heat.
+    diagnostics : Diagnostics
+        Discretisation-error estimate, timings, warnings, ``--converge`` rounds.
+    scenario : str
+        The scenario's name ("" without scenarios).
+    scenarios : tuple of StudyResult
+        Every scenario's result, the case as written first (empty without scenarios).
+    uncertainty : SoilUncertaintyResult or None
+        The soil uncertainty carried to the results, where the soil's uncertainty is known.
+    cautions : tuple of str
+        The cautions every output carries.
+    """
+
+    case: Case
+    electrical: ElectricalResult
+    surface: SurfaceResult
+    safety: SafetyResult
+    conductor: ConductorCheck
+    diagnostics: Diagnostics
     scenario: str = ""
     scenarios: tuple["StudyResult", ...] = ()
-    convergence: "Convergence | None" = None
-    uncertainty: object = None
-    criteria: tuple[CriteriaResult, ...] = ()
+    uncertainty: SoilUncertaintyResult | None = None
     cautions: tuple[str, ...] = CAUTIONS
-    metal_drop: "MetalDrop | None" = None
-    current_division: CurrentDivision | None = None
+
+    segments = _alias("electrical", "segments", "solution")
+    kernel = _alias("electrical", "kernel", "solution")
+    solution = _alias("electrical", "solution", "solution")
+    segment_currents = _alias("electrical", "segment_currents", "solution")
+    decrement_factor = _alias("electrical", "decrement_factor", "solution")
+    grid_current = _alias("electrical", "grid_current", "solution")
+    ground_potential_rise = _alias("electrical", "ground_potential_rise", "solution")
+    current_division = _alias("electrical", "current_division", "solution")
+    metal_drop = _alias("electrical", "metal_drop", "solution")
+    criteria = _alias("safety", "criteria", "criteria")
+    touch_check = _alias("safety", "touch_check", "criteria")
+    step_check = _alias("safety", "step_check", "criteria")
+    mesh_check = _alias("safety", "mesh_check", "criteria")
+    limits = _alias("safety", "limits", "criteria")
+    simplified = _alias("safety", "simplified", "criteria")
+    zones = _alias("safety", "zones", "criteria")
+    separate = _alias("safety", "separate", "criteria")
+    contours = _alias("surface", "contours", "surface")
+    discretization_error = _alias("diagnostics", "discretization_error", "diagnostics")
+    timings = _alias("diagnostics", "timings", "diagnostics")
+    warnings = _alias("diagnostics", "warnings", "diagnostics")
+    convergence = _alias("diagnostics", "convergence", "diagnostics")
 
     @property
     def grid_resistance(self) -> float:

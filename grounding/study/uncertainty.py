@@ -18,76 +18,19 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, replace
+from dataclasses import replace
 
 import numpy as np
 from scipy.stats import norm
 
 from ..case.model import Case, Layer, Soil
-from .pipeline import run_study
-from .result import StudyResult
+from .conditions import study_conditions
+from .result import QuantityUncertainty, SoilUncertaintyResult, StudyResult
 
 #: Step of the forward differences in log-parameter space (≈ 3 %).
 LOG_STEP = 0.03
 #: Quantities the propagation reports, as (name, function of a result).
 QUANTITIES = ("grid_resistance", "ground_potential_rise", "touch", "step", "mesh")
-
-
-@dataclass(frozen=True)
-class QuantityUncertainty:
-    """σ of one result and the probability that its limit is exceeded.
-
-    Attributes
-    ----------
-    value : float or None
-        The nominal result (Ω or V).
-    sigma : float or None
-        1-σ in the result's unit, from σ(log y) (≈ relative σ × value for small σ).
-    sigma_log : float or None
-        σ of log y.
-    probability_exceeds_limit : float or None
-        P(worst / limit > 1) under the log-normal model; None for Rg and GPR.
-    sensitivities : tuple of float
-        ∂ log y / ∂ log p_j per soil parameter.
-    """
-
-    value: float | None
-    sigma: float | None
-    sigma_log: float | None
-    probability_exceeds_limit: float | None
-    sensitivities: tuple[float, ...]
-
-
-@dataclass(frozen=True)
-class SoilUncertaintyResult:
-    """What the soil uncertainty does to the results.
-
-    Attributes
-    ----------
-    source : str
-        Where the parameter uncertainty came from.
-    parameters : tuple of str
-        Names of the soil parameters (ρ1, h1, …) in the order of the sensitivities.
-    sigma_log : tuple of float
-        σ of each log-parameter.
-    quantities : dict of str to QuantityUncertainty
-        ``grid_resistance``, ``ground_potential_rise``, ``touch``, ``step``, ``mesh``.
-    extra_solves : int
-        Solves the propagation cost (one per soil parameter).
-    seconds : float
-        Time it took, s.
-    model : str
-        The statistical model, in words.
-    """
-
-    source: str
-    parameters: tuple[str, ...]
-    sigma_log: tuple[float, ...]
-    quantities: dict
-    extra_solves: int
-    seconds: float
-    model: str = ("soil parameters log-normal; each result log-normal with σ(log y)² = Sᵀ C S from forward "
-                  "differences in the log-parameters (first order); P = Φ(log(worst/limit) / σ)")
 
 
 def soil_parameters(soil: Soil) -> tuple[list[str], np.ndarray]:
@@ -155,7 +98,7 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
     for j in range(len(x0)):
         x = x0.copy()
         x[j] += LOG_STEP
-        r = run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False, screen_drop=False)
+        r = study_conditions(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False, screen_drop=False)
         v = _values(r)
         for k in base:
             if base[k] is None or v[k] is None or base[k] <= 0 or v[k] <= 0:
@@ -185,7 +128,7 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
 
 def _sample_row(case: Case, x: np.ndarray) -> dict:
     """One Monte Carlo sample: the study's values with the soil parameters ``x``."""
-    return _values(run_study(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False,
+    return _values(study_conditions(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False,
                              screen_drop=False))
 
 

@@ -72,6 +72,9 @@ class SurfaceResult:
     probe_touch : ndarray or None
         Touch voltage at the probes, V, where it is not GPR − potential (conductors with impedance:
         |V_metal − V_surface| with the nearest energised metal); None otherwise.
+    contours : tuple of (float, list of ndarray)
+        Equipotential lines asked for by the case: (level in V, polylines of (x, y) in m); empty when none were
+        asked for (a surface at 1 V of GPR carries none: lines are traced after scaling).
     """
 
     x: np.ndarray
@@ -90,6 +93,7 @@ class SurfaceResult:
     metal: tuple["MetalTouch", ...] = ()
     zone_labels: np.ndarray | None = None
     probe_touch: np.ndarray | None = None
+    contours: tuple = ()
 
     def scaled(self, factor: float) -> "SurfaceResult":
         """Every voltage multiplied by ``factor`` (fields are linear in the GPR; locations are unchanged)."""
@@ -99,7 +103,8 @@ class SurfaceResult:
                              _scale(self.max_step, factor), _scale(self.max_mesh, factor),
                              self.probe_potential * factor, Profile(p.distance, p.x, p.y, p.potential * factor),
                              tuple(z.scaled(factor) for z in self.zones), tuple(m.scaled(factor) for m in self.metal),
-                             self.zone_labels, None if self.probe_touch is None else self.probe_touch * factor)
+                             self.zone_labels, None if self.probe_touch is None else self.probe_touch * factor,
+                             tuple((level * factor, lines) for level, lines in self.contours))
 
 
 def _scale(ext: "Extreme | None", factor: float) -> "Extreme | None":

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -65,10 +65,8 @@ def run_case(case: GoldenCase):
     """The study of ``case`` as ``grounding study`` runs it (including soil uncertainty)."""
     from grounding import load_case
     from grounding.study.pipeline import run_study
-    from grounding.study.uncertainty import propagate_soil_uncertainty
 
-    result = run_study(load_case(ROOT / case.path))
-    return replace(result, uncertainty=propagate_soil_uncertainty(result))
+    return run_study(load_case(ROOT / case.path))
 
 
 def map_fingerprint(values: np.ndarray) -> dict:
