@@ -31,7 +31,7 @@ ORDER = {
     "kernels": ("base", "uniform", "two_layer", "layered", "__init__", "integrals", "impedance"),
     "operators": ("__init__", "hmatrix", "assembly", "mutual_resistance", "potential", "inductance"),
     "solve": ("__init__", "equipotential", "network", "policy", "run"),
-    "surface": ("__init__", "zoning", "results", "search", "steps", "contours", "fields"),
+    "surface": ("__init__", "zoning", "results", "search", "steps", "revisit", "contours", "fields"),
     "safety": ("__init__", "ieee80", "en50522", "conductor", "current_division", "simplified", "site"),
     "study": ("__init__", "result", "metal_drop", "accuracy", "conditions", "uncertainty", "pipeline", "converge", "validation"),
     "options": ("__init__", "quantities", "sweep", "runner", "recorded", "compare", "design"),

@@ -236,13 +236,10 @@ def combine_scenarios(results: list[StudyResult]) -> StudyResult:
     return replace(first, safety=safety, scenarios=tuple(results))
 
 
-def _run_condition(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool = True) -> StudyResult:
-    """One condition: solve (or re-use the solve of an equal geometry) and judge."""
-    key = solve_key(case)
-    if key not in units:
-        units[key] = solve_geometry(case, progress, estimate_error, screen_drop)
-    unit = units[key]
-    segments, solution = unit.segments, unit.solution
+def grid_current(case: Case, solution: Solution):
+    """The current the grid sends into the soil, IG = Df·Sf·3I0 (A), with Sf from the case's fault-current paths
+    and the solved grid impedance where they are given. Returns (case with that Sf, Df, IG, the current division
+    or None)."""
     fault = case.fault
     df = decrement_factor(fault.x_over_r, fault.frequency, fault.clearing_time)
     division = None
@@ -251,7 +248,18 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict, scre
         division = current_division(fault.split_network, zg)
         fault = replace(fault, split_factor=division.split_factor, split_basis=division.basis)
         case = replace(case, fault=fault)
-    ig = df * fault.split_factor * fault.current
+    return case, df, df * fault.split_factor * fault.current, division
+
+
+def _run_condition(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool = True) -> StudyResult:
+    """One condition: solve (or re-use the solve of an equal geometry) and judge."""
+    key = solve_key(case)
+    if key not in units:
+        units[key] = solve_geometry(case, progress, estimate_error, screen_drop)
+    unit = units[key]
+    segments, solution = unit.segments, unit.solution
+    case, df, ig, division = grid_current(case, solution)
+    fault = case.fault
     gpr = ig * solution.resistance
     currents = solution.currents(ig)
     if np.iscomplexobj(currents):

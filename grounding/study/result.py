@@ -130,7 +130,7 @@ class SoilUncertaintyResult:
     quantities : dict of str to QuantityUncertainty
         ``grid_resistance``, ``ground_potential_rise``, ``touch``, ``step``, ``mesh``.
     extra_solves : int
-        Solves the propagation cost (one per soil parameter).
+        Solves the propagation cost (one per soil parameter, less the resistivity Euler's theorem gives).
     seconds : float
         Time it took, s.
     model : str
@@ -143,8 +143,10 @@ class SoilUncertaintyResult:
     quantities: dict
     extra_solves: int
     seconds: float
-    model: str = ("soil parameters log-normal; each result log-normal with σ(log y)² = Sᵀ C S from forward "
-                  "differences in the log-parameters (first order); P = Φ(log(worst/limit) / σ)")
+    model: str = ("soil parameters log-normal; each result log-normal with σ(log y)² = Sᵀ C S (first order), S from "
+                  "forward differences in the log-parameters with the worst voltages re-evaluated at their own "
+                  "places and neighbourhoods, and Σ S_ρ = 1 for a soil whose resistivities set the only scale "
+                  "(Euler's theorem); P = Φ(log(worst/limit) / σ)")
 
 
 

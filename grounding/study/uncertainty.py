@@ -6,12 +6,20 @@ thicknesses) are log-normal, log p ~ N(log p̂, C), with C the sounding fit's co
 log-parameters or, from the user's relative 1-σ per parameter, diagonal with σ² = log(1 + s²). Each
 result y (Rg, GPR, the worst touch, step and mesh voltages, and the ratio of each worst voltage to its
 own limit, which also moves with the top-soil resistivity) is taken as log-normal with
-log y ≈ log ŷ + Σ_j S_j (log p_j − log p̂_j); the sensitivities S_j = ∂ log y / ∂ log p_j come from
-forward differences, one extra solve per soil parameter re-using the geometry. Then
-σ(log y)² = Sᵀ C S and P(limit exceeded) = Φ(log(ŷ/L) / σ(log ratio)).
+log y ≈ log ŷ + Σ_j S_j (log p_j − log p̂_j). Then σ(log y)² = Sᵀ C S and P(limit exceeded) =
+Φ(log(ŷ/L) / σ(log ratio)).
 
-Worst voltages are maxima over the map, so they may switch place between solves; the differences take
-that into account (each solve searches its own worst point).
+The sensitivities S_j = ∂ log y / ∂ log p_j are forward differences: one solve per soil parameter at the
+study's own discretisation, the worst voltages evaluated again at the study's worst points and a small
+neighbourhood of each (a maximum is stationary in position, so to first order its value moves with the field
+at its own place; :mod:`grounding.surface.revisit`), not a new search of the map. The limits' own dependence
+on the top-soil resistivity (Cs, EN 50522's standing resistance) is differenced directly. One resistivity needs
+no solve: the soil's Green's function is homogeneous of degree one in the resistivities (scale every ρ by s and
+every potential at fixed current scales by s; Euler's theorem on homogeneous functions), so Σ_i S_ρi = 1 for Rg,
+GPR and every voltage. That identity is used when nothing else sets the scale: not with conductor impedance (the
+metal's own resistance does not scale) nor with a split factor from the fault-current paths (Sf moves with Rg).
+``reference_sensitivities`` keeps the former method (a whole study, with its own search, per parameter) for
+the tests; ``sample_worst`` is the Monte Carlo reference.
 """
 
 from __future__ import annotations
@@ -24,7 +32,11 @@ import numpy as np
 from scipy.stats import norm
 
 from ..case.model import Case, Layer, Soil
-from .conditions import study_conditions
+from ..operators.potential import SurfacePotential
+from ..safety.site import zone_limits
+from ..solve.run import solve_case
+from ..surface.revisit import step_again, touch_again
+from .conditions import grid_current, study_conditions, zoning
 from .result import QuantityUncertainty, SoilUncertaintyResult, StudyResult
 
 #: Step of the forward differences in log-parameter space (≈ 3 %).
@@ -83,30 +95,46 @@ def _plain(case: Case) -> Case:
 def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncertaintyResult | None:
     """σ and exceedance probabilities of a study's results from its soil's parameter uncertainty.
 
-    Costs one extra solve per soil parameter (2n − 1 for n layers). Returns None when the case gives no
-    uncertainty (no ``soil.uncertainty`` and no fitted sounding with a resolved covariance).
+    Costs one solve per soil parameter but one (2n − 2 for n layers; none for uniform soil) where the
+    resistivities set the only scale, else one per parameter, and no new search of the map (see the module
+    docstring). Returns None when the case gives no uncertainty (no ``soil.uncertainty`` and no fitted sounding
+    with a resolved covariance).
     """
     got = parameter_covariance(result.case)
     if got is None:
         return None
     cov, source = got
     t0 = time.perf_counter()
-    case = _plain(result.case)
+    base_result = result.scenarios[0] if result.scenarios else result
+    case = _plain(base_result.case)
     names, x0 = soil_parameters(case.soil)
-    base = _values(result.scenarios[0] if result.scenarios else result)
-    sens: dict[str, list[float]] = {k: [] for k in base}
-    for j in range(len(x0)):
+    n = len(case.soil.layers)
+    watch = _Watch(base_result)
+    base = watch.values(case, base_result.electrical.segments, base_result.electrical.kernel,
+                        base_result.electrical.solution)
+    scale_free = not case.electrodes.conductor_impedance and case.fault.split_network is None
+    solved = [j for j in range(len(x0)) if not (scale_free and j == n - 1)]
+    sens: dict[str, list[float]] = {k: [float("nan")] * len(x0) for k in base}
+    for count, j in enumerate(solved, start=1):
         x = x0.copy()
         x[j] += LOG_STEP
-        r = study_conditions(replace(case, soil=soil_from_parameters(case.soil, x)), estimate_error=False, screen_drop=False)
-        v = _values(r)
+        nudged = replace(case, soil=soil_from_parameters(case.soil, x))
+        segments, kernel, solution, _ = solve_case(nudged)
+        v = watch.values(nudged, segments, kernel, solution)
         for k in base:
-            if base[k] is None or v[k] is None or base[k] <= 0 or v[k] <= 0:
-                sens[k].append(float("nan"))
-            else:
-                sens[k].append((math.log(v[k]) - math.log(base[k])) / LOG_STEP)
+            sens[k][j] = _log_difference(base[k], v[k])
         if progress:
-            progress("uncertainty", (j + 1) / len(x0))
+            progress("uncertainty", count / len(solved))
+    if len(solved) < len(x0):
+        j = n - 1
+        x = x0.copy()
+        x[j] += LOG_STEP
+        limits = watch.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True)
+        for k in ("grid_resistance", "ground_potential_rise", "touch", "step", "mesh"):
+            others = [sens[k][i] for i in range(n - 1)]
+            sens[k][j] = 1.0 - sum(others) if base[k] is not None else float("nan")
+            if k in ("touch", "step", "mesh"):
+                sens[f"{k}_ratio"][j] = sens[k][j] - _log_difference(base[f"{k}_limit"], limits[f"{k}_limit"])
     out = {}
     for k in QUANTITIES:
         s = np.array(sens[k])
@@ -117,13 +145,93 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
         prob = None
         if k in ("touch", "step", "mesh"):
             sr = np.array(sens[f"{k}_ratio"])
-            if base[f"{k}_ratio"] is not None and np.all(np.isfinite(sr)):
+            ratio = watch.ratio(k)
+            if ratio is not None and np.all(np.isfinite(sr)):
                 slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
-                q = math.log(base[f"{k}_ratio"])
+                q = math.log(ratio)
                 prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
-        out[k] = QuantityUncertainty(base[k], base[k] * math.expm1(sl), sl, prob, tuple(s.tolist()))
-    return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out, len(x0),
+        value = watch.searched[k]
+        out[k] = QuantityUncertainty(value, value * math.expm1(sl), sl, prob, tuple(s.tolist()))
+    return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out, len(solved),
                                  time.perf_counter() - t0)
+
+
+def _log_difference(base: float | None, value: float | None) -> float:
+    """(log value − log base) / LOG_STEP; NaN where either is missing or not positive."""
+    if base is None or value is None or base <= 0 or value <= 0:
+        return float("nan")
+    return (math.log(value) - math.log(base)) / LOG_STEP
+
+
+class _Watch:
+    """The as-written condition's governing touch, step and mesh checks (first standard), evaluated again for
+    another solution of the same geometry: Rg, GPR, the worst voltages near the same places, and the limits of
+    the same zones (which move with the top-soil resistivity)."""
+
+    def __init__(self, result: StudyResult):
+        self.result = result
+        self.checks = {"touch": result.touch_check, "step": result.step_check, "mesh": result.mesh_check}
+        self.searched = _values(result)
+
+    def ratio(self, criterion: str) -> float | None:
+        """The searched worst voltage over its limit (the verdict's own ratio)."""
+        return self.searched[f"{criterion}_ratio"]
+
+    def values(self, case: Case, segments=None, kernel=None, solution=None, limits_only: bool = False) -> dict:
+        """Rg (Ω), GPR (V), the worst voltages near the known places (V) and their zones' limits (V)."""
+        first = case.criteria.standards[0]
+        limits = zone_limits(case.soil.top_resistivity, case.zones, case.fault.shock_duration, first,
+                             case.criteria.footwear_resistance)
+        names = [z.name for z in case.zones]
+        weight = case.criteria.body_weight
+        out: dict = {}
+        for criterion, check in self.checks.items():
+            lim = None
+            if check.worst is not None and check.zone in names:
+                table = limits[names.index(check.zone)]
+                lim = (table.step if criterion == "step" else table.touch)[weight]
+            out[f"{criterion}_limit"] = lim
+        if limits_only:
+            return out
+        _, _, ig, _ = grid_current(case, solution)
+        gpr = ig * solution.resistance
+        out["grid_resistance"], out["ground_potential_rise"] = solution.resistance, gpr
+        potential = SurfacePotential(segments, solution.currents_per_volt, kernel)
+        main = solution.metal.main_metal if solution.metal is not None else None
+
+        def touch_at(xy):
+            v = potential(xy)
+            return 1.0 - v if main is None else np.abs(main(xy) - v)
+
+        surface, zones, res = self.result.surface, zoning(case), case.surface.resolution
+        for criterion, check in self.checks.items():
+            value = None
+            if check.worst is not None and check.zone in names:
+                k = names.index(check.zone)
+                if criterion == "step":
+                    value = gpr * step_again(potential, check.worst, case.surface.step_distance, zones, k, res)
+                else:
+                    region = surface.meshes if criterion == "mesh" else surface.touch_area
+                    value = gpr * touch_again(touch_at, check.worst, region, zones, k, res)
+            out[criterion] = value
+            lim = out[f"{criterion}_limit"]
+            out[f"{criterion}_ratio"] = None if value is None or not lim else value / lim
+        return out
+
+
+def reference_sensitivities(case: Case) -> dict[str, np.ndarray]:
+    """The former propagation's sensitivities S_j = ∂ log y / ∂ log p_j (forward differences of whole studies,
+    each with its own search of the map), for the tests to check the faster method against."""
+    case = _plain(case)
+    _, x0 = soil_parameters(case.soil)
+    base = _values(study_conditions(case, estimate_error=False, screen_drop=False))
+    rows = []
+    for j in range(len(x0)):
+        x = x0.copy()
+        x[j] += LOG_STEP
+        rows.append(_values(study_conditions(replace(case, soil=soil_from_parameters(case.soil, x)),
+                                             estimate_error=False, screen_drop=False)))
+    return {k: np.array([_log_difference(base[k], r[k]) for r in rows]) for k in base}
 
 
 def _sample_row(case: Case, x: np.ndarray) -> dict:
