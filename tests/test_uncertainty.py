@@ -120,6 +120,11 @@ surface: {resolution: 1.0, margin: 2}
 """
 
 
+MC_GRID = GRID.format(h=1, r=1, current=3000).replace(
+    "soil: {resistivity: 200}",
+    "soil: {layers: [{resistivity: 300, thickness: 1.5}, {resistivity: 80}], uncertainty: {resistivity: 0.2, thickness: 0.3}}")
+
+
 @pytest.mark.slow
 def test_linear_propagation_against_monte_carlo():
     """First-order propagation against a Monte Carlo of 200 full studies (numpy's generator, seed 1): the
@@ -153,6 +158,23 @@ def test_worst_points_revisited_agree_with_studies_per_parameter():
     for key in ("grid_resistance", "touch", "step", "mesh"):
         s = ref[key]
         assert u.quantities[key].sigma_log == pytest.approx(math.sqrt(s @ cov @ s), rel=0.10), key
+
+
+def test_sensitivities_at_twice_the_segment_length_agree(monkeypatch):
+    """Large models take the sensitivities at twice the segment length (uncertainty.COARSE_FROM); on a two-layer
+    grid forced to do so they agree with those at the study's own level within 0.02 and σ(log) within 5 %."""
+    import grounding.study.uncertainty as U
+    case = parse_case(MC_GRID)
+    r = run_study(case, estimate_error=False, uncertainty=False)
+    fine = U.propagate_soil_uncertainty(r)
+    monkeypatch.setattr(U, "COARSE_FROM", 10)
+    coarse = U.propagate_soil_uncertainty(r)
+    assert "twice" in coarse.level and "own" in fine.level
+    assert coarse.extra_solves == fine.extra_solves + 1                # the coarse base solve
+    for key in ("grid_resistance", "touch", "step", "mesh"):
+        np.testing.assert_allclose(coarse.quantities[key].sensitivities, fine.quantities[key].sensitivities,
+                                   atol=0.02, err_msg=key)
+        assert coarse.quantities[key].sigma_log == pytest.approx(fine.quantities[key].sigma_log, rel=0.05), key
 
 
 @pytest.mark.parametrize("value", ["0", "1", "-0.1", "1.5"])

@@ -269,7 +269,7 @@ def uncertainty_lines(r: StudyResult) -> list[str]:
         fmt = (lambda v: f"{v:.3f} Ω") if key == "grid_resistance" else _volts
         prob = "" if q.probability_exceeds_limit is None else _probability(q.probability_exceeds_limit)
         out.append(f"  {label:<22}{fmt(q.value):>10}{fmt(q.sigma):>10}{prob:>20}")
-    out.extend(textwrap.wrap(f"Model: {u.model}. Cost: {u.extra_solves} extra solves ({u.seconds:.1f} s). "
+    out.extend(textwrap.wrap(f"Model: {u.model}; {u.level}. Cost: {u.extra_solves} extra solves ({u.seconds:.1f} s). "
                              "Soil data only: fault data, discretisation and the choice of soil model add to this.",
                              WIDTH - 4, initial_indent="  ", subsequent_indent="  "))
     return out

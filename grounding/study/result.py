@@ -135,6 +135,8 @@ class SoilUncertaintyResult:
         Time it took, s.
     model : str
         The statistical model, in words.
+    level : str
+        The discretisation the sensitivities were taken at, in words.
     """
 
     source: str
@@ -147,6 +149,7 @@ class SoilUncertaintyResult:
                   "forward differences in the log-parameters with the worst voltages re-evaluated at their own "
                   "places and neighbourhoods, and Σ S_ρ = 1 for a soil whose resistivities set the only scale "
                   "(Euler's theorem); P = Φ(log(worst/limit) / σ)")
+    level: str = "sensitivities at the study's own segment length"
 
 
 

@@ -41,6 +41,11 @@ from .result import QuantityUncertainty, SoilUncertaintyResult, StudyResult
 
 #: Step of the forward differences in log-parameter space (≈ 3 %).
 LOG_STEP = 0.03
+#: Above this many segments the sensitivities are taken at twice the segment length (a base solve and one per
+#: parameter there, each about a third of the cost of the study's own): a sensitivity S = ∂ log y / ∂ log p is a
+#: ratio of changes and moves with the discretisation far less than y itself (tests/test_uncertainty.py compares
+#: the two levels on a grid). Smaller models are cheap enough at their own level.
+COARSE_FROM = 2_000
 #: Quantities the propagation reports, as (name, function of a result).
 QUANTITIES = ("grid_resistance", "ground_potential_rise", "touch", "step", "mesh")
 
@@ -110,8 +115,14 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
     names, x0 = soil_parameters(case.soil)
     n = len(case.soil.layers)
     watch = _Watch(base_result)
-    base = watch.values(case, base_result.electrical.segments, base_result.electrical.kernel,
-                        base_result.electrical.solution)
+    coarse = len(base_result.electrical.segments) > COARSE_FROM
+    if coarse:                       # sensitivities at twice the segment length (see COARSE_FROM)
+        case = replace(case, discretization=replace(case.discretization, max_segment=2 * case.discretization.max_segment))
+        segments, kernel, solution, _ = solve_case(case)
+        base = watch.values(case, segments, kernel, solution)
+    else:
+        base = watch.values(case, base_result.electrical.segments, base_result.electrical.kernel,
+                            base_result.electrical.solution)
     scale_free = not case.electrodes.conductor_impedance and case.fault.split_network is None
     solved = [j for j in range(len(x0)) if not (scale_free and j == n - 1)]
     sens: dict[str, list[float]] = {k: [float("nan")] * len(x0) for k in base}
@@ -152,8 +163,10 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
                 prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
         value = watch.searched[k]
         out[k] = QuantityUncertainty(value, value * math.expm1(sl), sl, prob, tuple(s.tolist()))
-    return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out, len(solved),
-                                 time.perf_counter() - t0)
+    return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out,
+                                 len(solved) + int(coarse), time.perf_counter() - t0,
+                                 level=f"sensitivities at twice the segment length ({case.discretization.max_segment:g} m)"
+                                 if coarse else "sensitivities at the study's own segment length")
 
 
 def _log_difference(base: float | None, value: float | None) -> float:

@@ -259,7 +259,7 @@ def results(ctx: Context) -> list:
         story += [P("Soil uncertainty carried to the verdict", "h2"),
                   P(f"Parameter uncertainty from {u.source}: " + ", ".join(
                       f"{n} ± {math.expm1(sg) * 100:.0f} %" for n, sg in zip(u.parameters, u.sigma_log)) + ". "
-                    f"Model: {u.model}. It cost {u.extra_solves} extra solves. This covers the soil parameters "
+                    f"Model: {u.model}; {u.level}. It cost {u.extra_solves} extra solves. This covers the soil parameters "
                     "only; fault data, the discretisation and the choice of soil model add to it.", "small"),
                   table(rows, [45 * mm, 35 * mm, 35 * mm, 40 * mm], st), image("uncertainty", 150 * mm)]
     cc = r.conductor
