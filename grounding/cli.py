@@ -92,9 +92,15 @@ def main(verbose):
               help="us: also print conductor areas in kcmil.")
 @click.option("--converge", is_flag=True,
               help="Halve the segments and the map spacing until the worst voltages change by less than 1 %.")
+@click.option("--no-cache", "no_cache", is_flag=True,
+              help="Solve everything again: neither use nor keep solves from earlier runs.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
-def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html_file, units, converge, quiet):
-    """Run a study of CASE (YAML) and print the summary."""
+def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html_file, units, converge, no_cache,
+          quiet):
+    """Run a study of CASE (YAML) and print the summary.
+
+    Solves are kept between runs (see `grounding cache`): a run after an edit of limits, fault data, coverings or
+    outputs reuses the earlier solve and says so."""
     from .outputs.summary_text import study_summary
     from .study.converge import converge_study
     from .study.pipeline import run_study
@@ -104,7 +110,9 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html
     try:
         case = load_case(case_file)
         _check_outputs_early((json_file, report_file, csv_file, dxf_file, html_file), _inputs_of(case))
-        result = converge_study(case, progress=bar)[0] if converge else run_study(case, progress=bar)
+        cache = None if no_cache else _open_cache()
+        result = converge_study(case, progress=bar, cache=cache)[0] if converge else \
+            run_study(case, progress=bar, cache=cache)
         bar.close()
         written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file,
                                  html_file)
@@ -114,6 +122,45 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html
     click.echo(study_summary(result, units))
     for path in written:
         click.echo(f"Written: {path}")
+
+
+def _open_cache():
+    """The store of solves kept between runs, or None (with a one-line note) when it cannot be opened."""
+    from .study.cache import SolveCache, cache_directory
+    try:
+        return SolveCache()
+    except Exception as exc:                                    # any failure of the store: solve without it
+        click.echo(f"note: solves are not kept between runs: the cache at {cache_directory()} cannot be used "
+                   f"({type(exc).__name__}: {exc}); set GROUNDING_CACHE_DIR to a writable folder", err=True)
+        return None
+
+
+@main.group()
+def cache():
+    """Solves kept between runs: where they are, how much they take, and clearing them.
+
+    The folder is GROUNDING_CACHE_DIR, else the user's cache directory (XDG_CACHE_HOME on Linux) + grounding/solves;
+    it holds at most 1 GiB, least recently used entries leaving first."""
+
+
+@cache.command("info")
+def cache_info():
+    """Print the cache's folder, entries and size."""
+    store = _open_cache()
+    if store is None:
+        sys.exit(2)
+    entries, size = store.info()
+    click.echo(f"Cache  {store.directory}\nEntries  {entries}\nSize  {size / 1e6:.1f} MB (limit {store.store.size_limit / 1e6:.0f} MB)")
+
+
+@cache.command("clear")
+def cache_clear():
+    """Remove every kept solve."""
+    store = _open_cache()
+    if store is None:
+        sys.exit(2)
+    count = store.clear()
+    click.echo(f"Removed {count} entr{'y' if count == 1 else 'ies'} from {store.directory}")
 
 
 def _write_outputs(result, json_file, report_file, plots_dir, csv_file, inputs=(), dxf_file=None,

@@ -2,11 +2,17 @@
 
 from __future__ import annotations
 
+import os
+import tempfile
 import textwrap
 
 import pytest
 
 from grounding.case.load import parse_case
+
+# solves kept between runs go to a folder of this test process (and the command-line runs it starts), never the
+# user's own cache
+os.environ["GROUNDING_CACHE_DIR"] = tempfile.mkdtemp(prefix="grounding-test-cache-")
 
 
 def case_text(electrodes: str, soil: str = "{resistivity: 100}", extra: str = "", fault: str | None = None) -> str:

@@ -33,7 +33,7 @@ ORDER = {
     "solve": ("__init__", "equipotential", "network", "policy", "run"),
     "surface": ("__init__", "zoning", "results", "search", "steps", "revisit", "contours", "fields"),
     "safety": ("__init__", "ieee80", "en50522", "conductor", "current_division", "simplified", "site"),
-    "study": ("__init__", "result", "metal_drop", "accuracy", "conditions", "uncertainty", "pipeline", "converge", "validation"),
+    "study": ("__init__", "result", "metal_drop", "accuracy", "cache", "conditions", "uncertainty", "pipeline", "converge", "validation"),
     "options": ("__init__", "quantities", "sweep", "runner", "recorded", "compare", "design"),
     "outputs": ("__init__", "style", "atomic", "surface_csv", "soil_outputs", "results_json", "summary_text",
                 "figures", "plan_vector", "drawing_dxf", "html_view", "report", "options_outputs",

@@ -213,6 +213,15 @@ def _fault_split(r: StudyResult) -> dict | None:
             "basis": d.basis}
 
 
+def _solve(r) -> dict | None:
+    """Where a condition's solve came from: solved now, shared with another condition, or kept from an earlier run."""
+    o = r.diagnostics.solve
+    if o is None:
+        return None
+    return {"key": o.key, "origin": o.origin, "shared_with": o.shared_with or None, "note": o.note or None,
+            "text": o.describe()}
+
+
 def results_dict(r: StudyResult, full_precision: bool = False) -> dict:
     """The JSON-ready results of a study (SI units: Ω, V, A, m, s, mm² where named).
 
@@ -261,7 +270,7 @@ def _results_dict(r: StudyResult) -> dict:
         },
         "soil": _soil(c),
         "scenarios": [{"name": x.scenario, "overrides": list(_overrides(c, x.scenario)), "summary": _summary(x),
-                       "scenario_s": _num(x.timings.get("scenario_s"), 4)} for x in r.scenarios],
+                       "scenario_s": _num(x.timings.get("scenario_s"), 4), "solve": _solve(x)} for x in r.scenarios],
         "uncertainty": _uncertainty(r),
         "separate_electrodes": _separate(r),
         "fault_split": _fault_split(r),
@@ -290,6 +299,7 @@ def _results_dict(r: StudyResult) -> dict:
                 "rounds": [{"max_segment_m": rd.max_segment, "resolution_m": rd.resolution, "segments": rd.segments,
                             "touch_v": _num(rd.touch), "step_v": _num(rd.step), "mesh_v": _num(rd.mesh)}
                            for rd in r.convergence.rounds]},
+            "solve": _solve(r),
             "solve_relative_residual": _num(r.solution.relative_residual, 3),
             "solver": _solver(r),
             "peak_memory_mb": _num(peak_memory_mb(), 1),

@@ -246,8 +246,10 @@ def scenario_lines(r: StudyResult) -> list[str]:
         out.append(f"    {s.scenario[:17]:<18}{s.grid_resistance:>7.3f} Ω{_volts(s.ground_potential_rise):>10}  "
                    f"{_short(s.touch_check):<22}{_short(s.step_check):<22}{_short(s.mesh_check):<22}"
                    f"{'PASS' if s.passes else 'FAIL'}")
-    times = ", ".join(f"{s.scenario} {s.timings.get('scenario_s', 0.0):.2f} s" for s in r.scenarios)
-    out.append(f"    time per scenario (solves shared where the soil and geometry are equal): {times}")
+    for s in r.scenarios:
+        o = s.diagnostics.solve
+        text = f"{s.scenario}: {o.describe() if o is not None else 'solved'}, {s.timings.get('scenario_s', 0.0):.2f} s"
+        out.extend(textwrap.wrap(text, WIDTH - 4, initial_indent="    ", subsequent_indent="      "))
     return out
 
 
@@ -411,8 +413,12 @@ def study_summary(r: StudyResult, units: str = "si") -> str:
         for w in r.warnings:
             out.extend(textwrap.wrap(w, WIDTH - 4, initial_indent="  - ", subsequent_indent="    "))
     t = r.timings
-    out.append(f"\nTimings: assemble {t['assemble_s']:.2f} s, solve {t['solve_s']:.2f} s, "
-               f"surface {t['surface_s']:.2f} s; {solver_text(r)}")
+    origin = r.diagnostics.solve
+    reused = origin is not None and origin.origin != "solved"
+    out.append(f"\nTimings{' (of the solve reused)' if reused else ''}: assemble {t['assemble_s']:.2f} s, "
+               f"solve {t['solve_s']:.2f} s, surface {t['surface_s']:.2f} s; {solver_text(r)}")
+    if origin is not None:
+        out.append(f"Solve: {origin.describe()}")
     out.append("")
     out.append(caution_box())
     return "\n".join(out)

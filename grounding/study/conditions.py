@@ -29,8 +29,9 @@ from ..surface.fields import surface_fields
 from ..surface.results import SeparateMetal, SurfaceResult
 from ..surface.zoning import Zoning
 from .accuracy import estimate_discretization_error
+from .cache import cacheable, entry_key
 from .metal_drop import DROP_WARNING, MetalDrop, metal_drop
-from .result import Diagnostics, DiscretizationError, ElectricalResult, SafetyResult, StudyResult
+from .result import Diagnostics, DiscretizationError, ElectricalResult, SafetyResult, SolveOrigin, StudyResult
 
 Progress = Callable[[str, float], None]
 
@@ -179,14 +180,14 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
 
 
 def study_conditions(case: Case, progress: Progress | None = None, estimate_error: bool = True,
-                     unit: UnitStudy | None = None, screen_drop: bool = True) -> StudyResult:
+                     unit: UnitStudy | None = None, screen_drop: bool = True, cache=None) -> StudyResult:
     """The case as written and every scenario of it, without the soil-uncertainty propagation.
 
     With scenarios, the result is the case as written with ``scenarios`` holding every scenario's result
     (itself first) and the touch, step and mesh checks replaced by the governing (least margin) scenario's;
     a criterion passes only if it passes in every scenario. Scenarios share the solve where the soil,
     geometry, surface zones and map are equal (the fault data and coverings only scale the fields or
-    change the limits).
+    change the limits); each result says where its solve came from (``diagnostics.solve``).
 
     Parameters
     ----------
@@ -201,22 +202,47 @@ def study_conditions(case: Case, progress: Progress | None = None, estimate_erro
     screen_drop : bool
         Screen the potential drop along the metal (equipotential studies); off for the repeated solves of
         the soil-uncertainty propagation, which need only the voltages.
+    cache : SolveCache, optional
+        Solves kept between runs (:mod:`grounding.study.cache`): looked up before solving, filled after.
 
     Returns
     -------
     StudyResult
     """
-    units = {} if unit is None else {solve_key(case): unit}
+    units = {} if unit is None else {solve_key(case): (unit, SolveOrigin("", "shared", "the unit given"))}
     t0 = time.perf_counter()
-    base = _run_condition(case, progress, estimate_error, units, screen_drop)
+    name = case.base_scenario if case.scenarios else "the case"
+    base = _run_condition(case, progress, estimate_error, units, screen_drop, name, cache)
     if not case.scenarios:
         return base
     results = [_named(base, case.base_scenario, time.perf_counter() - t0)]
     for sc in case.scenarios:
         t0 = time.perf_counter()
-        r = _run_condition(sc.case, progress, estimate_error, units, screen_drop)
+        r = _run_condition(sc.case, progress, estimate_error, units, screen_drop, sc.name, cache)
         results.append(_named(r, sc.name, time.perf_counter() - t0))
     return combine_scenarios(results)
+
+
+def _unit_for(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool, name: str, cache):
+    """The UnitStudy of a condition and where it came from: shared with an earlier condition, kept from an earlier
+    run, or solved now (and then kept)."""
+    key = solve_key(case)
+    if key in units:
+        unit, first = units[key]
+        return unit, SolveOrigin(first.key, "shared", first.shared_with if first.origin == "shared" else name)
+    content = entry_key(key, estimate_error, screen_drop)
+    why_not = cacheable(case)
+    unit, note = None, why_not and f"solve not kept between runs: {why_not}"
+    if cache is not None and not why_not:
+        parts, note = cache.get(content, case)
+        unit = None if parts is None else UnitStudy(*parts)
+    origin = "cache" if unit is not None else "solved"
+    if unit is None:
+        unit = solve_geometry(case, progress, estimate_error, screen_drop)
+        if cache is not None and not why_not:
+            cache.put(content, unit)
+    units[key] = (unit, SolveOrigin(content, "shared", name))
+    return unit, SolveOrigin(content, origin, "", note)
 
 
 def _named(result: StudyResult, name: str, seconds: float) -> StudyResult:
@@ -251,12 +277,10 @@ def grid_current(case: Case, solution: Solution):
     return case, df, df * fault.split_factor * fault.current, division
 
 
-def _run_condition(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool = True) -> StudyResult:
-    """One condition: solve (or re-use the solve of an equal geometry) and judge."""
-    key = solve_key(case)
-    if key not in units:
-        units[key] = solve_geometry(case, progress, estimate_error, screen_drop)
-    unit = units[key]
+def _run_condition(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool = True,
+                   name: str = "the case", cache=None) -> StudyResult:
+    """One condition: solve (or re-use the solve of an equal geometry, or a kept one) and judge."""
+    unit, origin = _unit_for(case, progress, estimate_error, units, screen_drop, name, cache)
     segments, solution = unit.segments, unit.solution
     case, df, ig, division = grid_current(case, solution)
     fault = case.fault
@@ -308,7 +332,9 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict, scre
         for x in (horizontal or el.rods)])
     electrical = ElectricalResult(segments, unit.kernel, solution, currents, df, ig, gpr, division, drop)
     safety = SafetyResult(judged, touch, step, mesh, governing_limits, simplified_method(case, ig))
-    diagnostics = Diagnostics(unit.error, dict(unit.timings), tuple(warnings))
+    if origin.note:
+        warnings.append(origin.note)
+    diagnostics = Diagnostics(unit.error, dict(unit.timings), tuple(warnings), solve=origin)
     return StudyResult(case=case, electrical=electrical, surface=replace(surface, contours=contours), safety=safety,
                        conductor=conductor, diagnostics=diagnostics)
 

@@ -42,7 +42,7 @@ def _change(a: ConvergenceRound, b: ConvergenceRound) -> float:
 
 
 def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
-                   progress: Progress | None = None) -> tuple[StudyResult, Convergence]:
+                   progress: Progress | None = None, cache=None) -> tuple[StudyResult, Convergence]:
     """Halve the segment length and the map spacing together until the governing worst touch, step and
     mesh voltages change by less than ``tolerance`` (relative) between rounds.
 
@@ -51,7 +51,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
     studied with its discretisation-error estimate.
     """
     h, res = case.discretization.max_segment, case.surface.resolution
-    current = run_study(case, estimate_error=False, screen_drop=False, uncertainty=False)
+    current = run_study(case, estimate_error=False, screen_drop=False, uncertainty=False, cache=cache)
     rounds = [_round(current)]
     note, converged = "", False
     while len(rounds) < max_rounds:
@@ -64,7 +64,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
             note = f"stopped before round {len(rounds) + 1}: {exc}"
             break
         h, res = h / 2, res / 2
-        current = run_study(trial, estimate_error=False, screen_drop=False, uncertainty=False)
+        current = run_study(trial, estimate_error=False, screen_drop=False, uncertainty=False, cache=cache)
         rounds.append(_round(current))
         if _change(rounds[-2], rounds[-1]) < tolerance:
             converged = True
@@ -73,7 +73,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
         note = f"not settled within {max_rounds} rounds"
     if progress:
         progress("converge", 1.0)
-    final = run_study(refined(case, h, res), progress)
+    final = run_study(refined(case, h, res), progress, cache=cache)
     if converged:
         note = (f"settled: the worst voltages changed by {_change(rounds[-2], rounds[-1]) * 100:.2f} % from "
                 f"max_segment {2 * h:g} m, map {2 * res:g} m to {h:g} m, {res:g} m")

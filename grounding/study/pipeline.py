@@ -18,7 +18,8 @@ __all__ = ["run_study", "solve_geometry", "solve_key", "combine_scenarios", "Uni
 
 
 def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True,
-              unit: UnitStudy | None = None, screen_drop: bool = True, uncertainty: bool = True) -> StudyResult:
+              unit: UnitStudy | None = None, screen_drop: bool = True, uncertainty: bool = True,
+              cache=None) -> StudyResult:
     """Run a whole study: the case as written, every scenario of it, and its soil uncertainty.
 
     With scenarios, the result is the case as written with ``scenarios`` holding every scenario's result
@@ -42,12 +43,15 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
         Carry the soil's parameter uncertainty (``soil.uncertainty`` or a fitted sounding's covariance) to the
         results (:func:`~grounding.study.uncertainty.propagate_soil_uncertainty`); ``result.uncertainty`` is
         None without it or when the case gives no uncertainty.
+    cache : SolveCache, optional
+        Solves (and soil-uncertainty sensitivities) kept between runs (:class:`~grounding.study.cache.SolveCache`);
+        None: solve everything.
 
     Returns
     -------
     StudyResult
     """
-    result = study_conditions(case, progress, estimate_error, unit, screen_drop)
+    result = study_conditions(case, progress, estimate_error, unit, screen_drop, cache)
     if not uncertainty:
         return result
-    return replace(result, uncertainty=propagate_soil_uncertainty(result, progress))
+    return replace(result, uncertainty=propagate_soil_uncertainty(result, progress, cache))

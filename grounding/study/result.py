@@ -226,6 +226,38 @@ class SafetyResult:
 
 
 @dataclass(frozen=True)
+class SolveOrigin:
+    """Where a condition's solve came from.
+
+    Attributes
+    ----------
+    key : str
+        The solve's content key (SHA-256, hex) of :mod:`grounding.study.cache`.
+    origin : str
+        ``solved`` (solved in this run), ``shared`` (the solve of an earlier condition of this run with an equal
+        key) or ``cache`` (kept from an earlier run).
+    shared_with : str
+        The condition whose solve was shared (``shared`` only).
+    note : str
+        Why the solve was not kept or a kept one not used, when so.
+    """
+
+    key: str
+    origin: str
+    shared_with: str = ""
+    note: str = ""
+
+    def describe(self) -> str:
+        """In words, e.g. "solve reused (key 3fa2c1d09be4, kept from an earlier run)"."""
+        short = self.key[:12]
+        if self.origin == "cache":
+            return f"solve reused (key {short}, kept from an earlier run)"
+        if self.origin == "shared":
+            return f"solve shared with '{self.shared_with}' (key {short})"
+        return f"solved (key {short})"
+
+
+@dataclass(frozen=True)
 class Diagnostics:
     """How the study was made and how sure it is.
 
@@ -239,12 +271,15 @@ class Diagnostics:
         Notes and warnings for the reader.
     convergence : Convergence or None
         The rounds of ``--converge``, when run.
+    solve : SolveOrigin or None
+        Where the solve came from (solved, shared with another condition, or kept from an earlier run).
     """
 
     discretization_error: DiscretizationError
     timings: dict
     warnings: tuple[str, ...]
     convergence: Convergence | None = None
+    solve: SolveOrigin | None = None
 
 
 def _alias(group: str, name: str, topic: str):

@@ -24,6 +24,8 @@ the tests; ``sample_worst`` is the Monte Carlo reference.
 
 from __future__ import annotations
 
+import hashlib
+import json
 import math
 import time
 from dataclasses import replace
@@ -36,6 +38,7 @@ from ..operators.potential import SurfacePotential
 from ..safety.site import zone_limits
 from ..solve.run import solve_case
 from ..surface.revisit import step_again, touch_again
+from .cache import cacheable
 from .conditions import grid_current, study_conditions, zoning
 from .result import QuantityUncertainty, SoilUncertaintyResult, StudyResult
 
@@ -97,13 +100,14 @@ def _plain(case: Case) -> Case:
     return replace(case, scenarios=())
 
 
-def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncertaintyResult | None:
+def propagate_soil_uncertainty(result: StudyResult, progress=None, cache=None) -> SoilUncertaintyResult | None:
     """σ and exceedance probabilities of a study's results from its soil's parameter uncertainty.
 
     Costs one solve per soil parameter but one (2n − 2 for n layers; none for uniform soil) where the
     resistivities set the only scale, else one per parameter, and no new search of the map (see the module
-    docstring). Returns None when the case gives no uncertainty (no ``soil.uncertainty`` and no fitted sounding
-    with a resolved covariance).
+    docstring); none when ``cache`` (a :class:`~grounding.study.cache.SolveCache`) holds the sensitivities of the
+    same solve and worst points. Returns None when the case gives no uncertainty (no ``soil.uncertainty`` and no
+    fitted sounding with a resolved covariance).
     """
     got = parameter_covariance(result.case)
     if got is None:
@@ -113,60 +117,89 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None) -> SoilUncert
     base_result = result.scenarios[0] if result.scenarios else result
     case = _plain(base_result.case)
     names, x0 = soil_parameters(case.soil)
-    n = len(case.soil.layers)
     watch = _Watch(base_result)
     coarse = len(base_result.electrical.segments) > COARSE_FROM
+    level = (f"sensitivities at twice the segment length ({2 * case.discretization.max_segment:g} m)" if coarse
+             else "sensitivities at the study's own segment length")
+    key = None
+    if cache is not None and base_result.diagnostics.solve is not None and not cacheable(case):
+        key = sensitivity_key(base_result.diagnostics.solve.key, coarse, watch, case)
+    sens, solves = (cache.get_sensitivities(key) if key else None), 0
+    if sens is None:
+        sens, solves = _field_sensitivities(case, base_result, watch, coarse, progress)
+        if key:
+            cache.put_sensitivities(key, sens)
+    else:
+        level += "; kept from an earlier run"
+    # the limits move with the top soil (Cs, EN 50522's standing resistance): differenced directly, no solve
+    base_limits = watch.values(case, limits_only=True)
+    out = {}
+    for k in QUANTITIES:
+        s = np.array(sens[k], float)
+        value = watch.searched[k]
+        if value is None or not np.all(np.isfinite(s)):
+            out[k] = QuantityUncertainty(value, None, None, None, tuple(s.tolist()))
+            continue
+        sl = float(math.sqrt(max(s @ cov @ s, 0.0)))
+        prob = None
+        ratio = watch.ratio(k) if k in ("touch", "step", "mesh") else None
+        if ratio is not None:
+            s_limit = []
+            for j in range(len(x0)):
+                x = x0.copy()
+                x[j] += LOG_STEP
+                nudged = watch.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True)
+                s_limit.append(_log_difference(base_limits[f"{k}_limit"], nudged[f"{k}_limit"]))
+            sr = s - np.array(s_limit)
+            if np.all(np.isfinite(sr)):
+                slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
+                q = math.log(ratio)
+                prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
+        out[k] = QuantityUncertainty(value, value * math.expm1(sl), sl, prob, tuple(s.tolist()))
+    return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out, solves,
+                                 time.perf_counter() - t0, level=level)
+
+
+def _field_sensitivities(case: Case, base_result: StudyResult, watch: "_Watch", coarse: bool,
+                         progress) -> tuple[dict[str, list[float]], int]:
+    """S_j = ∂ log y / ∂ log p_j of Rg, GPR and the worst voltages at their places (forward differences; one
+    resistivity by Euler's theorem where it holds), and the number of solves it took."""
+    names, x0 = soil_parameters(case.soil)
+    n = len(case.soil.layers)
+    solves = 0
     if coarse:                       # sensitivities at twice the segment length (see COARSE_FROM)
         case = replace(case, discretization=replace(case.discretization, max_segment=2 * case.discretization.max_segment))
         segments, kernel, solution, _ = solve_case(case)
-        base = watch.values(case, segments, kernel, solution)
+        base, solves = watch.values(case, segments, kernel, solution), 1
     else:
         base = watch.values(case, base_result.electrical.segments, base_result.electrical.kernel,
                             base_result.electrical.solution)
     scale_free = not case.electrodes.conductor_impedance and case.fault.split_network is None
     solved = [j for j in range(len(x0)) if not (scale_free and j == n - 1)]
-    sens: dict[str, list[float]] = {k: [float("nan")] * len(x0) for k in base}
+    sens = {k: [float("nan")] * len(x0) for k in QUANTITIES}
     for count, j in enumerate(solved, start=1):
         x = x0.copy()
         x[j] += LOG_STEP
         nudged = replace(case, soil=soil_from_parameters(case.soil, x))
         segments, kernel, solution, _ = solve_case(nudged)
         v = watch.values(nudged, segments, kernel, solution)
-        for k in base:
+        for k in QUANTITIES:
             sens[k][j] = _log_difference(base[k], v[k])
         if progress:
             progress("uncertainty", count / len(solved))
     if len(solved) < len(x0):
-        j = n - 1
-        x = x0.copy()
-        x[j] += LOG_STEP
-        limits = watch.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True)
-        for k in ("grid_resistance", "ground_potential_rise", "touch", "step", "mesh"):
-            others = [sens[k][i] for i in range(n - 1)]
-            sens[k][j] = 1.0 - sum(others) if base[k] is not None else float("nan")
-            if k in ("touch", "step", "mesh"):
-                sens[f"{k}_ratio"][j] = sens[k][j] - _log_difference(base[f"{k}_limit"], limits[f"{k}_limit"])
-    out = {}
-    for k in QUANTITIES:
-        s = np.array(sens[k])
-        if base[k] is None or not np.all(np.isfinite(s)):
-            out[k] = QuantityUncertainty(base[k], None, None, None, tuple(s.tolist()))
-            continue
-        sl = float(math.sqrt(max(s @ cov @ s, 0.0)))
-        prob = None
-        if k in ("touch", "step", "mesh"):
-            sr = np.array(sens[f"{k}_ratio"])
-            ratio = watch.ratio(k)
-            if ratio is not None and np.all(np.isfinite(sr)):
-                slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
-                q = math.log(ratio)
-                prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
-        value = watch.searched[k]
-        out[k] = QuantityUncertainty(value, value * math.expm1(sl), sl, prob, tuple(s.tolist()))
-    return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out,
-                                 len(solved) + int(coarse), time.perf_counter() - t0,
-                                 level=f"sensitivities at twice the segment length ({case.discretization.max_segment:g} m)"
-                                 if coarse else "sensitivities at the study's own segment length")
+        for k in QUANTITIES:
+            sens[k][n - 1] = 1.0 - sum(sens[k][i] for i in range(n - 1)) if base[k] is not None else float("nan")
+    return sens, solves + len(solved)
+
+
+def sensitivity_key(solve_key: str, coarse: bool, watch: "_Watch", case: Case) -> str:
+    """The content key of a propagation's field sensitivities: the base solve's key, the level, the watched
+    worst points (criterion, zone, place) and, where they set the scale, the fault-current paths."""
+    points = [[c, ch.zone, ch.worst.x, ch.worst.y] for c, ch in watch.checks.items() if ch.worst is not None]
+    doc = {"solve": solve_key, "coarse": coarse, "step": LOG_STEP, "points": points,
+           "split_network": repr(case.fault.split_network), "impedance": case.electrodes.conductor_impedance}
+    return "sensitivities-" + hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()
 
 
 def _log_difference(base: float | None, value: float | None) -> float:

@@ -107,10 +107,26 @@ def accuracy_text(r: StudyResult) -> str:
         text = f"How sure: no discretisation-error estimate was made ({err.note})."
     if r.uncertainty is not None:
         text += (" The soil's parameter uncertainty was carried to σ and to the probability that each limit is "
-                 "exceeded (first order in the log-parameters, log-normal results).")
+                 f"exceeded (first order in the log-parameters, log-normal results; {r.uncertainty.level}).")
     else:
         text += " No soil-parameter uncertainty was given, so none was carried to the verdicts."
     return text
+
+
+def provenance_text(r: StudyResult) -> str:
+    """Where the solves behind the results came from: solved in this run, shared between conditions, or kept from
+    an earlier run of the same model (content key)."""
+    conditions = r.scenarios or (r,)
+    parts = []
+    for c in conditions:
+        o = c.diagnostics.solve
+        if o is not None:
+            parts.append((f"{c.scenario}: " if r.scenarios else "") + o.describe())
+    if not parts:
+        return ""
+    return ("Solves: " + "; ".join(parts) + ". A solve is shared or reused only when everything it depends on is "
+            "equal (geometry, soil, discretisation, solver and map settings, zones and their order of severity, "
+            "separate metal, tool version), so its results are those a fresh solve gives.")
 
 
 def method_paragraphs(r: StudyResult) -> list[str]:
@@ -126,4 +142,4 @@ def method_paragraphs(r: StudyResult) -> list[str]:
                "mesh voltage = worst touch voltage inside the grid meshes. The soil is a half-space under "
                "insulating air; surface coverings enter the limits only, not the solve.")
     return [p for p in (metal_text(r), solver_method_text(r), kernel_text(r), surface, screening, criteria_text(r),
-                        accuracy_text(r)) if p]
+                        accuracy_text(r), provenance_text(r)) if p]
