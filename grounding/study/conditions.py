@@ -232,7 +232,7 @@ def _unit_for(case: Case, progress, estimate_error: bool, units: dict, screen_dr
         return unit, SolveOrigin(first.key, "shared", first.shared_with if first.origin == "shared" else name)
     content = entry_key(key, estimate_error, screen_drop)
     why_not = cacheable(case)
-    unit, note = None, why_not and f"solve not kept between runs: {why_not}"
+    unit, note = None, (f"solve not kept between runs: {why_not}" if why_not and cache is not None else "")
     if cache is not None and not why_not:
         parts, note = cache.get(content, case)
         unit = None if parts is None else UnitStudy(*parts)
