@@ -13,14 +13,24 @@ from .version import __version__
 
 
 class _Bar:
-    """tqdm progress bars per stage, on standard error."""
+    """Progress on standard error: tqdm bars per stage on a terminal, or (``lines``) one line per finished stage with
+    its time, for logs and CI."""
 
-    def __init__(self, enabled: bool):
+    def __init__(self, enabled: bool, lines: bool = False):
         self.enabled = enabled
+        self.lines = lines
         self.bars = {}
+        self.started = {}
 
     def __call__(self, stage: str, fraction: float) -> None:
         if not self.enabled:
+            return
+        if self.lines:
+            import time
+            now = time.perf_counter()
+            self.started.setdefault(stage, now)
+            if fraction >= 1.0:
+                click.echo(f"{stage}: done in {now - self.started.pop(stage):.1f} s", err=True)
             return
         from tqdm import tqdm
 
@@ -32,10 +42,22 @@ class _Bar:
         bar.refresh()
         if fraction >= 1.0:
             bar.close()
+            self.bars.pop(stage, None)
+
+    def say(self, text: str) -> None:
+        """A line of news (e.g. a refinement round's plan) on standard error, unless progress is off."""
+        if not self.enabled:
+            return
+        if self.lines:
+            click.echo(text, err=True)
+        else:
+            from tqdm import tqdm
+            tqdm.write(text, file=sys.stderr)
 
     def close(self):
         for bar in self.bars.values():
             bar.close()
+        self.bars = {}
 
 
 def _columns() -> int:
@@ -92,11 +114,15 @@ def main(verbose):
               help="us: also print conductor areas in kcmil.")
 @click.option("--converge", is_flag=True,
               help="Halve the segments and the map spacing until the worst voltages change by less than 1 %.")
+@click.option("--max-time", "max_time", type=click.FloatRange(min=1.0), default=900.0, show_default=True,
+              help="With --converge: seconds the refinement may take; a round predicted to end later is not run.")
+@click.option("--progress", "progress_lines", is_flag=True,
+              help="One line per finished stage with its time on standard error (for logs; bars need a terminal).")
 @click.option("--no-cache", "no_cache", is_flag=True,
               help="Solve everything again: neither use nor keep solves from earlier runs.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
-def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html_file, units, converge, no_cache,
-          quiet):
+def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html_file, units, converge, max_time,
+          progress_lines, no_cache, quiet):
     """Run a study of CASE (YAML) and print the summary.
 
     Solves are kept between runs (see `grounding cache`): a run after an edit of limits, fault data, coverings or
@@ -105,14 +131,14 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html
     from .study.converge import converge_study
     from .study.pipeline import run_study
 
-    bar = _Bar(enabled=not quiet and sys.stderr.isatty())
+    bar = _Bar(enabled=not quiet and (sys.stderr.isatty() or progress_lines), lines=progress_lines)
     written = []
     try:
         case = load_case(case_file)
         _check_outputs_early((json_file, report_file, csv_file, dxf_file, html_file), _inputs_of(case))
         cache = None if no_cache else _open_cache()
-        result = converge_study(case, progress=bar, cache=cache)[0] if converge else \
-            run_study(case, progress=bar, cache=cache)
+        result = converge_study(case, progress=bar, cache=cache, max_time=max_time, say=bar.say)[0] if converge \
+            else run_study(case, progress=bar, cache=cache)
         bar.close()
         written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file,
                                  html_file)

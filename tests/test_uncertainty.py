@@ -78,6 +78,36 @@ def test_converge_stops_before_a_model_too_large(monkeypatch):
     assert not conv.converged and "stopped before round" in conv.note
 
 
+def test_converge_plans_each_round_and_stops_at_the_time_allowed(monkeypatch):
+    """A round predicted (from the last round's time) to end after --max-time is not run; the note says which and
+    why, and the result is the last round reached, studied in full."""
+    import grounding.study.converge as C
+    monkeypatch.setattr(C, "FIRST_GROWTH", 1e6)                   # any next round looks far too long
+    lines = []
+    result, conv = converge_study(_grid(2, 1), tolerance=1e-9, max_time=60, say=lines.append)
+    assert len(conv.rounds) == 1 and not conv.converged
+    assert "stopped before round 2 (1 m segments" in conv.note and "time allowed (60 s" in conv.note
+    assert "not refined" in conv.note
+    assert result.case.discretization.max_segment == 2 and result.touch_check.error is not None
+    assert lines and lines[0].startswith("converge round 1: max_segment 2 m")
+
+
+def test_converge_refines_only_the_governing_scenarios():
+    """Rounds after the first study only the scenarios that govern; their governing checks are the whole case's."""
+    from grounding.study.converge import focus
+    text = GRID.format(h=2, r=1, current=3000) + (
+        "scenarios:\n  - name: now\n  - name: wet\n    surface_layer: {resistivity: 800, thickness: 0.1}\n"
+        "  - name: small fault\n    fault: {current: 1000}\n")
+    case = parse_case(text)
+    whole = run_study(case, uncertainty=False, estimate_error=False)
+    narrowed = focus(case, whole)
+    assert [sc.name for sc in narrowed.scenarios] == ["wet"]      # the covering that lowers the limits governs
+    part = run_study(narrowed, uncertainty=False, estimate_error=False)
+    for crit in ("touch_check", "step_check", "mesh_check"):
+        assert getattr(part, crit).worst.value == getattr(whole, crit).worst.value
+        assert getattr(part, crit).scenario == getattr(whole, crit).scenario
+
+
 def test_limit_inside_the_error_band_is_marginal():
     """Touch voltage is linear in the fault current: choose the current that puts it on the limit."""
     probe = run_study(_grid(2, 1))
