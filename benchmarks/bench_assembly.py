@@ -14,10 +14,10 @@ import time
 
 import scipy.linalg
 
-from grounding.operators.assembly import assemble
 from grounding.case.load import parse_case
 from grounding.geometry.segments import segment
 from grounding.kernels import make_kernel
+from grounding.operators.assembly import assemble
 from grounding.solve.equipotential import solve_equipotential
 
 CASE = """\

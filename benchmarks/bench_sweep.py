@@ -10,8 +10,8 @@ import tempfile
 import time
 from pathlib import Path
 
-from grounding.options.sweep import load_variants
 from grounding.options.runner import run_options
+from grounding.options.sweep import load_variants
 
 CASE = """\
 format: 1

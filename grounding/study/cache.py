@@ -242,6 +242,27 @@ class SolveCache:
         self.store.close()
 
 
+class MemoryCache:
+    """The same interface as :class:`SolveCache`, held in this process only (nothing written): lets a sequence of
+    studies (the rounds of ``--converge``) reuse their solves when no store between runs is used."""
+
+    def __init__(self):
+        self.units, self.sensitivities = {}, {}
+
+    def get(self, key: str, case: Case):
+        unit = self.units.get(key)
+        return (None if unit is None else tuple(getattr(unit, f.name) for f in dataclasses.fields(unit))), ""
+
+    def put(self, key: str, unit) -> None:
+        self.units[key] = unit
+
+    def get_sensitivities(self, key: str) -> dict | None:
+        return self.sensitivities.get(key)
+
+    def put_sensitivities(self, key: str, sensitivities: dict) -> None:
+        self.sensitivities[key] = sensitivities
+
+
 def cacheable(case: Case) -> str:
     """Empty when a case's solve can be kept, else why not."""
     if case.electrodes.conductor_impedance:

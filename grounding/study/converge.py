@@ -67,14 +67,19 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
     FIRST_GROWTH); a round that would not fit, or would end after ``max_time`` seconds from the start, is not run
     and the note says which and why. Rounds after the first refine only the conditions that govern (see
     :func:`focus`); the result returned is the last round reached, studied in full (every scenario, the
-    discretisation-error estimate, the soil uncertainty). ``say`` receives one line per round (plan and outcome).
+    discretisation-error estimate, the soil uncertainty). Each round is a study with its error estimate, so that the
+    final study reuses the last round's solves (``cache``, or one held in memory). ``say`` receives one line per
+    round (plan and outcome).
     """
     import time as _time
+
+    from .cache import MemoryCache
     start = _time.perf_counter()
+    cache = cache if cache is not None else MemoryCache()     # the final study reuses the last round's solves
     say = say or (lambda _text: None)
     h, res = case.discretization.max_segment, case.surface.resolution
     t0 = _time.perf_counter()
-    current = run_study(case, estimate_error=False, screen_drop=False, uncertainty=False, cache=cache)
+    current = run_study(case, uncertainty=False, cache=cache)
     times = [_time.perf_counter() - t0]
     narrowed = focus(case, current)
     rounds = [_round(current)]
@@ -102,7 +107,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
         say(f"converge round {k}: max_segment {h / 2:g} m, map {res / 2:g} m, {n:,} segments, predicted {predicted:.0f} s")
         h, res = h / 2, res / 2
         t0 = _time.perf_counter()
-        current = run_study(trial, estimate_error=False, screen_drop=False, uncertainty=False, cache=cache)
+        current = run_study(trial, uncertainty=False, cache=cache)
         times.append(_time.perf_counter() - t0)
         rounds.append(_round(current))
         change = _change(rounds[-2], rounds[-1])

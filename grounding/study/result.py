@@ -235,7 +235,7 @@ class SolveOrigin:
         The solve's content key (SHA-256, hex) of :mod:`grounding.study.cache`.
     origin : str
         ``solved`` (solved in this run), ``shared`` (the solve of an earlier condition of this run with an equal
-        key) or ``cache`` (kept from an earlier run).
+        key) or ``cache`` (kept from an earlier study: an earlier run, or a refinement round of this one).
     shared_with : str
         The condition whose solve was shared (``shared`` only).
     note : str
@@ -248,10 +248,10 @@ class SolveOrigin:
     note: str = ""
 
     def describe(self) -> str:
-        """In words, e.g. "solve reused (key 3fa2c1d09be4, kept from an earlier run)"."""
+        """In words, e.g. "solve reused (key 3fa2c1d09be4, kept from an earlier study)"."""
         short = self.key[:12]
         if self.origin == "cache":
-            return f"solve reused (key {short}, kept from an earlier run)"
+            return f"solve reused (key {short}, kept from an earlier study)"
         if self.origin == "shared":
             return f"solve shared with '{self.shared_with}' (key {short})"
         return f"solved (key {short})"
