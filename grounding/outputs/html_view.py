@@ -303,8 +303,8 @@ def _page(title: str, body: str) -> bytes:
 
 def _section(r: StudyResult, div_id: str, include_js: bool) -> str:
     fig, _, labels, stride = _figure(r)
-    note = "" if stride == 1 else (f"<p style='font-size:12px'>Maps shown at every {stride}. point of the study's "
-                                   f"map (to keep this file small); the worst points and verdicts are the study's "
+    note = "" if stride == 1 else (f"<p style='font-size:12px'>Maps shown at one point in {stride} along each axis of "
+                                   f"the study's map (to keep this file small); the worst points and verdicts are the study's "
                                    "own.</p>")
     plot = fig.to_html(full_html=False, include_plotlyjs=include_js, div_id=div_id,
                        config={"displaylogo": False, "responsive": True, "scrollZoom": True})

@@ -284,7 +284,12 @@ def _results_dict(r: StudyResult) -> dict:
                       "max_temperature_c": r.conductor.max_temperature,
                       "ambient_temperature_c": r.conductor.ambient_temperature,
                       "material": r.conductor.material or c.electrodes.material,
-                      "element": r.conductor.element},
+                      "element": r.conductor.element,
+                      "scenario": r.conductor.scenario or None,
+                      "per_scenario": [{"scenario": x.scenario, "required_area_mm2": _num(x.conductor.required_area_mm2),
+                                        "sizing_current_a": _num(x.conductor.current_a), "ok": bool(x.conductor.ok),
+                                        "element": x.conductor.element} for x in r.scenarios]},
+        "failing": r.failures(),
         "diagnostics": {
             "assemble_s": _num(r.timings["assemble_s"], 4),
             "solve_s": _num(r.timings["solve_s"], 4),

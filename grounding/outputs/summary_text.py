@@ -52,6 +52,10 @@ def _volts(v: float | None) -> str:
 
 
 def _row(label: str, value: str, note: str = "") -> str:
+    """One line of label, value and note in columns; a label or value too long for its column keeps two spaces
+    before the next, so that words never run together."""
+    label = label if len(label) < 25 else label + "  "
+    value = value if len(value) < 21 else value + "  "
     return f"  {label:<26}{value:<22}{note}".rstrip()
 
 
@@ -177,7 +181,10 @@ def safety_lines(r: StudyResult) -> list[str]:
     if r.scenarios:
         out.extend(scenario_lines(r))
     if not r.passes:
-        out.append("  !! At least one criterion FAILS: the layout is not safe as modelled.")
+        failing = r.failures()
+        text = "At least one criterion FAILS: the layout is not safe as modelled" + (
+            ". Failing: " + "; ".join(failing) + "." if failing else ".")
+        out.extend(textwrap.wrap(text, WIDTH - 2, initial_indent="  !! ", subsequent_indent="     "))
     thin = [name for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check))
             if check.margin is not None and abs(check.margin) < MARGINAL]
     if thin:
@@ -396,12 +403,20 @@ def study_summary(r: StudyResult, units: str = "si") -> str:
 
     out.append(_heading("Conductor sizing (IEEE Std 80 eq. for fusing / max temperature)"))
     cc = r.conductor
-    out.append(_row("Sizing current", f"{cc.current_a / 1000:.2f} kA", f"Df · 3I0 for tf = {f.clearing_time:g} s"))
+    sized = next((x for x in r.scenarios if x.scenario == cc.scenario), r) if cc.scenario else r
+    tf = sized.case.fault.clearing_time
+    out.append(_row("Sizing current", f"{cc.current_a / 1000:.2f} kA", f"Df · 3I0 for tf = {tf:g} s"
+                    + (f", scenario '{cc.scenario}' (the one that needs the most area)" if cc.scenario else "")))
     kcmil = (lambda a: f" ({a / 0.506707:.0f} kcmil)") if units == "us" else (lambda a: "")
     out.append(_row("Required area", f"{cc.required_area_mm2:.1f} mm²{kcmil(cc.required_area_mm2)}",
                     f"Tm = {cc.max_temperature:g} °C, Ta = {cc.ambient_temperature:g} °C"))
     out.append(_row("Governing conductor", f"{cc.actual_area_mm2:.1f} mm²{kcmil(cc.actual_area_mm2)}",
                     f"{_verdict(cc.ok)}: {cc.element} ({cc.material}), least area for what its material needs"))
+    if r.scenarios:
+        per = ", ".join(f"{x.scenario} {x.conductor.required_area_mm2:.1f} mm² {_verdict(x.conductor.ok)}"
+                        for x in r.scenarios)
+        out.extend(textwrap.wrap(f"area needed per scenario: {per}", WIDTH - 4, initial_indent="    ",
+                                 subsequent_indent="      "))
 
     if c.probes:
         out.append(_heading("Probes"))

@@ -45,6 +45,10 @@ class ConductorCheck:
         Tm used, °C.
     ok : bool
         True when the smallest conductor is at least the required area.
+    element, material : str
+        The governing element (case-file key) and its material.
+    scenario : str
+        The scenario whose fault governs (empty without scenarios).
     """
 
     current_a: float
@@ -55,6 +59,7 @@ class ConductorCheck:
     ok: bool
     element: str = ""
     material: str = ""
+    scenario: str = ""
 
 
 def check_conductor(current_a: float, duration: float, material: Material, ambient: float,

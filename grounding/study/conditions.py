@@ -259,7 +259,9 @@ def combine_scenarios(results: list[StudyResult]) -> StudyResult:
     first = results[0]
     safety = replace(first.safety, touch_check=worst("touch_check"), step_check=worst("step_check"),
                      mesh_check=worst("mesh_check"))
-    return replace(first, safety=safety, scenarios=tuple(results))
+    # conductor sizing: the scenario whose fault needs the most area for what is installed (ties: the first)
+    conductor = governing_conductor([replace(r.conductor, scenario=r.scenario) for r in results])
+    return replace(first, safety=safety, conductor=conductor, scenarios=tuple(results))
 
 
 def grid_current(case: Case, solution: Solution):

@@ -379,6 +379,37 @@ class StudyResult:
             return all(r.passes for r in self.scenarios)
         return bool(self.conductor.ok and all(c.passes for c in self.criteria))
 
+    def failures(self) -> list[str]:
+        """Every criterion that fails, in words, with the scenario, zone or element that fails it (empty when all
+        pass)."""
+        out = []
+        for name, check in (("touch", self.touch_check), ("step", self.step_check), ("mesh", self.mesh_check)):
+            if check.ok is False:
+                where = [f"zone '{check.zone}'"] if check.zone else []
+                where += [f"scenario '{check.scenario}'"] if check.scenario else []
+                out.append(f"{name} voltage" + (f" ({', '.join(where)})" if where else "")
+                           + ("" if check.worst is not None else ": evaluated nowhere"))
+        for r in (self.scenarios or (self,)):
+            for c in r.criteria:
+                for e in c.separate:
+                    if not e.touch.ok:
+                        text = f"touch near '{e.name}' ({c.standard}" + (f", scenario '{r.scenario}')" if r.scenario else ")")
+                        if text not in out:
+                            out.append(text)
+            if len(r.criteria) > 1:
+                for c in r.criteria[1:]:
+                    for name, check in (("touch", c.touch), ("step", c.step), ("mesh", c.mesh)):
+                        if check.ok is False:
+                            text = f"{name} voltage under {c.standard}" + (f" (scenario '{r.scenario}')" if r.scenario else "")
+                            if text not in out:
+                                out.append(text)
+        for r in (self.scenarios or (self,)):
+            cc = r.conductor
+            if not cc.ok:
+                out.append(f"conductor sizing ({cc.element or 'the conductors'}: {cc.required_area_mm2:.1f} mm² needed, "
+                           f"{cc.actual_area_mm2:.1f} mm² installed" + (f", scenario '{r.scenario}')" if r.scenario else ")"))
+        return out
+
     @property
     def body_weight(self) -> int:
         """Body weight the verdicts use, kg."""

@@ -46,6 +46,12 @@ class Context:
     date: str
 
 
+def _sizing_time(r) -> float:
+    """The clearing time (s) of the condition that governs conductor sizing."""
+    name = r.conductor.scenario
+    return next((x.case.fault.clearing_time for x in r.scenarios if x.scenario == name), r.case.fault.clearing_time)
+
+
 def cover(ctx: Context) -> list:
     """Identity of the study, the overall verdict, the verdict table, Rg, IG, GPR and the cautions."""
     r, st, P = ctx.r, ctx.st, ctx.P
@@ -67,6 +73,9 @@ def cover(ctx: Context) -> list:
                       if c.criteria.standards[0] == "ieee80" else
                       f"(EN 50522, tf = {f.shock_duration:g} s, footwear {c.criteria.footwear_resistance:g} Ω)")
                    + (" — further standards in section 3.2" if len(c.criteria.standards) > 1 else ""), "h2"))
+    if not overall:
+        from xml.sax.saxutils import escape
+        story.append(P("Failing: " + escape("; ".join(r.failures()) or "see the table") + ".", "body"))
     story += [table(verdict_rows(r, st), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
               Spacer(1, 4 * mm)]
     story.append(P(f"Grid resistance Rg = <b>{r.grid_resistance:.4f} Ω</b>; grid current IG = "
@@ -267,12 +276,17 @@ def results(ctx: Context) -> list:
     story += [P("3.3  Conductor sizing", "h2"),
               P(f"IEEE Std 80 equation for each conductor's material with the standard's constants; governing: "
                 f"{cc.element} ({cc.material or el.material}). The current "
-                f"Df · 3I0 = {cc.current_a / 1000:.2f} kA for tf = {f.clearing_time:g} s, from Ta = "
+                f"Df · 3I0 = {cc.current_a / 1000:.2f} kA for tf = {_sizing_time(r):g} s"
+                + (f" (scenario '{cc.scenario}', the one that needs the most area)" if cc.scenario else "") + ", from Ta = "
                 f"{cc.ambient_temperature:g} °C to Tm = {cc.max_temperature:g} °C needs "
                 f"<b>{cc.required_area_mm2:.1f} mm²</b>; the smallest conductor has {cc.actual_area_mm2:.1f} mm² "
                 f"→ <b>{verdict_word(cc.ok)}</b>. "
                 + ("Tm is the fusing temperature: joints usually need a lower limit (give electrodes.max_temperature)."
                    if c.electrodes.max_temperature is None else ""))]
+    if r.scenarios:
+        story.append(P("Area needed per scenario: " + "; ".join(
+            f"{x.scenario}: {x.conductor.required_area_mm2:.1f} mm² ({x.conductor.current_a / 1000:.2f} kA, "
+            f"{x.case.fault.clearing_time:g} s) {verdict_word(x.conductor.ok)}" for x in r.scenarios) + ".", "small"))
     simp = r.simplified
     story.append(P("3.4  IEEE Std 80 simplified method beside the numerical result", "h2"))
     if simp.applicable:

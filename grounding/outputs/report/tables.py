@@ -42,7 +42,8 @@ def verdict_rows(r: StudyResult, st):
                      f"({t.worst.x:.1f}, {t.worst.y:.1f})" + (f" {t.zone}" if several else "") if t.worst else ""])
     c = r.conductor
     rows.append(["Conductor size", f"{c.actual_area_mm2:.1f} mm² fitted", f"{c.required_area_mm2:.1f} mm² needed",
-                 margin(c.required_area_mm2, c.actual_area_mm2) if c.actual_area_mm2 else "", verdict_word(c.ok), ""])
+                 margin(c.required_area_mm2, c.actual_area_mm2) if c.actual_area_mm2 else "", verdict_word(c.ok),
+                 c.scenario[:28] if c.scenario else ""])
     return rows
 
 
