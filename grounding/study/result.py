@@ -382,6 +382,7 @@ class StudyResult:
     def failures(self) -> list[str]:
         """Every criterion that fails, in words, with the scenario, zone or element that fails it (empty when all
         pass)."""
+        names = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
         out = []
         for name, check in (("touch", self.touch_check), ("step", self.step_check), ("mesh", self.mesh_check)):
             if check.ok is False:
@@ -393,14 +394,14 @@ class StudyResult:
             for c in r.criteria:
                 for e in c.separate:
                     if not e.touch.ok:
-                        text = f"touch near '{e.name}' ({c.standard}" + (f", scenario '{r.scenario}')" if r.scenario else ")")
+                        text = f"touch near '{e.name}' ({names.get(c.standard, c.standard)}" + (f", scenario '{r.scenario}')" if r.scenario else ")")
                         if text not in out:
                             out.append(text)
             if len(r.criteria) > 1:
                 for c in r.criteria[1:]:
                     for name, check in (("touch", c.touch), ("step", c.step), ("mesh", c.mesh)):
                         if check.ok is False:
-                            text = f"{name} voltage under {c.standard}" + (f" (scenario '{r.scenario}')" if r.scenario else "")
+                            text = f"{name} voltage under {names.get(c.standard, c.standard)}" + (f" (scenario '{r.scenario}')" if r.scenario else "")
                             if text not in out:
                                 out.append(text)
         for r in (self.scenarios or (self,)):
