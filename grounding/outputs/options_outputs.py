@@ -10,13 +10,12 @@ from ..cautions import CAUTIONS
 from ..options.compare import Option
 from ..version import __version__
 from .results_json import results_dict
-from .style import new_figure
+from .style import new_figure, volts
 
 OPTIONS_FORMAT = 1
 
 
-def _v(x: float) -> str:
-    return f"{x / 1000:,.2f} kV" if abs(x) >= 10_000 else f"{x:,.0f} V"
+_v = volts
 
 
 def _verdicts(o: Option) -> str:

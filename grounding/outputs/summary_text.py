@@ -9,6 +9,7 @@ import textwrap
 from ..cautions import CAUTIONS
 from ..study.result import StudyResult
 from ..version import __version__
+from .style import volts
 
 WIDTH = 78
 #: Margins smaller than this share of the limit are reported as marginal.
@@ -45,10 +46,7 @@ def _heading(title: str) -> str:
     return f"\n{title}\n{'=' * len(title)}"
 
 
-def _volts(v: float | None) -> str:
-    if v is None:
-        return "none"                      # a limit the standard does not set
-    return f"{v / 1000:,.2f} kV" if abs(v) >= 10_000 else f"{v:,.0f} V"
+_volts = volts
 
 
 def _row(label: str, value: str, note: str = "") -> str:

@@ -19,6 +19,7 @@ from reportlab.platypus import (
 )
 
 from ...cautions import CAUTIONS
+from ..style import volts as style_volts
 
 INK = colors.HexColor("#1c2833")
 ACCENT = colors.HexColor("#1f3b73")
@@ -54,10 +55,7 @@ def styles():
     return s
 
 
-def volts(x: float | None) -> str:
-    if x is None:
-        return "none"                      # a limit the standard does not set
-    return f"{x / 1000:,.2f} kV" if abs(x) >= 10_000 else f"{x:,.0f} V"
+volts = style_volts
 
 
 def table(rows, widths, st, header=True, verdict_col=None, row_heights=None, font_small=False):

@@ -215,7 +215,7 @@ def plan(ctx: Context) -> list:
 def results(ctx: Context) -> list:
     """3 Results: grid, verdicts per criterion, zone, scenario and separate electrode, limits, uncertainty, conductor sizing, the simplified method."""
     r, st, P, image = ctx.r, ctx.st, ctx.P, ctx.image
-    c, f, s = r.case, r.case.fault, r.surface
+    c, s = r.case, r.surface
     story = []
     err = r.discretization_error
     err_text = (f"± {err.estimate_ohm:.4f} Ω ({err.relative * 100:.2f} %), from Rg at twice the segment length "
