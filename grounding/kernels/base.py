@@ -134,19 +134,23 @@ class SoilKernel(ABC):
         Pairs are grouped by depth and evaluated with the radial tables; when the depths take so many
         values that tables per pair of depths would cost more than they save, kernels that can sum
         their terms directly do so (see ``direct_potential``)."""
-        if self._go_direct(r, z, zp):
+        z, zp = np.asarray(z, float), np.asarray(zp, float)
+        levels = _levels(z.ravel()), _levels(zp.ravel())
+        if self._go_direct(r, z, zp, levels):
             direct = self.direct_potential(r, z, zp)
             if direct is not None:
                 return direct
-        return self._by_depth(self.radial, r, z, zp)
+        return self._by_depth(self.radial, r, z, zp, levels)
 
     def remainder(self, r: np.ndarray, z: np.ndarray, zp: np.ndarray) -> np.ndarray:
         """G minus the near terms at arbitrary point pairs, Ω (zeros when there is no remainder)."""
-        if self._go_direct(r, z, zp):
+        z, zp = np.asarray(z, float), np.asarray(zp, float)
+        levels = _levels(z.ravel()), _levels(zp.ravel())
+        if self._go_direct(r, z, zp, levels):
             direct = self.direct_remainder(r, z, zp)
             if direct is not None:
                 return direct
-        return self._by_depth(self.remainder_radial, r, z, zp)
+        return self._by_depth(self.remainder_radial, r, z, zp, levels)
 
     def direct_potential(self, r, z, zp) -> np.ndarray | None:
         """Full G summed term by term at arbitrary point pairs, or None when the kernel has no such sum."""
@@ -161,11 +165,12 @@ class SoilKernel(ABC):
         ``depth_pairs`` distinct (z, z') pairs and using a table for each."""
         return depth_pairs > MAX_TABLE_PAIRS
 
-    def _go_direct(self, r, z, zp) -> bool:
+    def _go_direct(self, r, z, zp, levels=None) -> bool:
         z, zp = np.asarray(z), np.asarray(zp)
         if z.size <= 1 and zp.size <= 1:
             return False
-        pairs = len(_levels(np.ravel(z))[0]) * len(_levels(np.ravel(zp))[0])
+        (lz, _), (lp, _) = levels or (_levels(np.ravel(z)), _levels(np.ravel(zp)))
+        pairs = len(lz) * len(lp)
         size = int(np.prod(np.broadcast_shapes(np.shape(r), z.shape, zp.shape)))
         return self.prefer_direct(pairs, size)
 
@@ -186,29 +191,24 @@ class SoilKernel(ABC):
         return out
 
     @staticmethod
-    def _by_depth(factory, r, z, zp) -> np.ndarray:
+    def _by_depth(factory, r, z, zp, levels=None) -> np.ndarray:
         z, zp = np.asarray(z, float), np.asarray(zp, float)
-        lz, _ = _levels(z.ravel())
-        lp, _ = _levels(zp.ravel())
+        # levels of the arrays as given (before broadcasting: few values), unless the caller has them
+        (lz, iz), (lp, ip) = levels or (_levels(z.ravel()), _levels(zp.ravel()))
         if len(lz) == 1 and len(lp) == 1:            # one depth pair: no grouping, no broadcast copies
             shape = np.broadcast_shapes(np.shape(r), z.shape, zp.shape)
             f = factory(lz[0] * DEPTH_QUANTUM, lp[0] * DEPTH_QUANTUM)
             if f is None:
                 return np.zeros(shape)
             return f(np.array(np.broadcast_to(np.asarray(r, float), shape)))      # a copy: tables work in place
-        r, z, zp = np.broadcast_arrays(np.asarray(r, float), z, zp)
-        out = np.zeros(r.shape)
-        if r.size == 0:
+        shape = np.broadcast_shapes(np.shape(r), z.shape, zp.shape)
+        out = np.zeros(shape)
+        if out.size == 0:
             return out
-        lz, iz = _levels(z.ravel())
-        lp, ip = _levels(zp.ravel())
-        flat_r, flat = r.ravel(), out.ravel()
-        if len(lz) == 1 and len(lp) == 1:
-            f = factory(lz[0] * DEPTH_QUANTUM, lp[0] * DEPTH_QUANTUM)
-            if f is not None:
-                flat[:] = f(flat_r)
-            return out
-        code = iz * len(lp) + ip
+        flat_r = np.broadcast_to(np.asarray(r, float), shape).ravel()
+        flat = out.ravel()
+        # the code of each pair's depth pair, from the level indices broadcast (not the depths: no second search)
+        code = (np.broadcast_to(iz.reshape(z.shape), shape) * len(lp) + np.broadcast_to(ip.reshape(zp.shape), shape)).ravel()
         n_codes = len(lz) * len(lp)
         order = np.argsort(code.astype(np.uint16) if n_codes < 2 ** 16 else code, kind="stable")
         bounds = np.searchsorted(code[order], np.arange(n_codes + 1))
@@ -218,7 +218,7 @@ class SoilKernel(ABC):
                 continue
             idx = order[bounds[c]:bounds[c + 1]]
             flat[idx] = f(flat_r[idx])
-        return flat.reshape(r.shape)
+        return flat.reshape(shape)
 
 
 def _levels(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -222,12 +222,13 @@ class LayeredSoil(SoilKernel):
         r_min = 1e-4 if dz < 1e-6 else 0.0
         return RadialTable(lambda r: near.evaluate(r, z, zp) + rem(r), r_c, r_min, weight_scale=dz)
 
-    def _go_direct(self, r, z, zp) -> bool:
+    def _go_direct(self, r, z, zp, levels=None) -> bool:
         """Interpolate between depth nodes only when that needs fewer tables than the exact depths."""
         z, zp = np.asarray(z, float), np.asarray(zp, float)
         if z.size <= 1 and zp.size <= 1:
             return False
-        lz, lp = _levels(np.ravel(z))[0] * DEPTH_QUANTUM, _levels(np.ravel(zp))[0] * DEPTH_QUANTUM
+        (lz, _), (lp, _) = levels or (_levels(np.ravel(z)), _levels(np.ravel(zp)))
+        lz, lp = lz * DEPTH_QUANTUM, lp * DEPTH_QUANTUM
         exact = len(lz) * len(lp)
         if exact <= 16:
             return False
@@ -245,7 +246,8 @@ class LayeredSoil(SoilKernel):
         apart (1–10 cm, kept inside each point's layer), so that many distinct depths share a few tables;
         the remainder is smooth in depth within a layer. Seen: pointwise error 7e-5 of G, Rg within
         1.4e-4 of the image series for sloping conductors in a 1 m top layer."""
-        r, z, zp = np.broadcast_arrays(np.asarray(r, float), np.asarray(z, float), np.asarray(zp, float))
+        # depth nodes of the arrays as given; _by_depth broadcasts them with r (few distinct depths to group)
+        r, z, zp = np.asarray(r, float), np.asarray(z, float), np.asarray(zp, float)
         (z0, z1, fz), (p0, p1, fp) = self._depth_nodes(z), self._depth_nodes(zp)
         rem = self._by_depth
         f = self.remainder_radial
