@@ -25,15 +25,17 @@ class _Bar:
     def __call__(self, stage: str, fraction: float) -> None:
         if not self.enabled:
             return
-        if self.lines:
+        if self.lines:                           # a line each time the work moves on to another stage
             import time
             now = time.perf_counter()
-            self.started.setdefault(stage, now)
-            if fraction >= 1.0:
-                click.echo(f"{stage}: done in {now - self.started.pop(stage):.1f} s", err=True)
+            if self.started.get("stage") != stage:
+                self._line(now)
+                self.started = {"stage": stage, "at": now}
             return
         from tqdm import tqdm
 
+        for other in [name for name in self.bars if name != stage]:     # the work moved on: one bar at a time
+            self.bars.pop(other).close()
         bar = self.bars.get(stage)
         if bar is None:
             bar = self.bars[stage] = tqdm(total=100, desc=f"{stage:<9}", unit="%", leave=False, file=sys.stderr,
@@ -54,7 +56,15 @@ class _Bar:
             from tqdm import tqdm
             tqdm.write(text, file=sys.stderr)
 
+    def _line(self, now: float) -> None:
+        if self.started:
+            click.echo(f"{self.started['stage']}: {now - self.started['at']:.1f} s", err=True)
+
     def close(self):
+        if self.lines and self.enabled:
+            import time
+            self._line(time.perf_counter())
+            self.started = {}
         for bar in self.bars.values():
             bar.close()
         self.bars = {}
@@ -117,7 +127,7 @@ def main(verbose):
 @click.option("--max-time", "max_time", type=click.FloatRange(min=1.0), default=900.0, show_default=True,
               help="With --converge: seconds the refinement may take; a round predicted to end later is not run.")
 @click.option("--progress", "progress_lines", is_flag=True,
-              help="One line per finished stage with its time on standard error (for logs; bars need a terminal).")
+              help="One line per stage with its time on standard error (for logs; bars need a terminal).")
 @click.option("--no-cache", "no_cache", is_flag=True,
               help="Solve everything again: neither use nor keep solves from earlier runs.")
 @click.option("--quiet", is_flag=True, help="No progress bars.")
@@ -134,14 +144,16 @@ def study(case_file, json_file, report_file, plots_dir, csv_file, dxf_file, html
     bar = _Bar(enabled=not quiet and (sys.stderr.isatty() or progress_lines), lines=progress_lines)
     written = []
     try:
+        bar("read case", 0.0)
         case = load_case(case_file)
         _check_outputs_early((json_file, report_file, csv_file, dxf_file, html_file), _inputs_of(case))
         cache = None if no_cache else _open_cache()
         result = converge_study(case, progress=bar, cache=cache, max_time=max_time, say=bar.say)[0] if converge \
             else run_study(case, progress=bar, cache=cache)
-        bar.close()
+        bar("outputs", 0.0)
         written = _write_outputs(result, json_file, report_file, plots_dir, csv_file, _inputs_of(case), dxf_file,
                                  html_file)
+        bar.close()
     except GroundingError as exc:
         bar.close()
         _fail(exc)

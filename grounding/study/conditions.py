@@ -164,15 +164,21 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
     the potential drop along the metal of an equipotential study (:func:`estimate_metal_drop`)."""
     segments, kernel, solution, timings = solve_case(case, progress)
     t0 = time.perf_counter()
+    if progress:
+        progress("surface", 0.0)
     surface = surface_fields(segments, solution.currents_per_volt, 1.0, kernel, case.surface, case.probes,
                              progress=progress, zoning=zoning(case),
                              metal=separate_metal(case, segments, solution), check_map=estimate_error,
                              main_metal=solution.metal.main_metal if solution.metal is not None else None)
     timings["surface_s"] = time.perf_counter() - t0
     t0 = time.perf_counter()
+    if progress:
+        progress("metal drop", 0.0)
     drop = metal_drop(case, segments, solution) if (screen_drop or solution.metal is not None) else None
     timings["metal_drop_s"] = time.perf_counter() - t0
     if estimate_error:
+        if progress:
+            progress("error estimate", 0.0)
         error, surface = estimate_discretization_error(case, solution, len(segments), surface)
     else:
         error = DiscretizationError(None, None, None, "not requested")

@@ -124,6 +124,8 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None, cache=None) -
     key = None
     if cache is not None and base_result.diagnostics.solve is not None and not cacheable(case):
         key = sensitivity_key(base_result.diagnostics.solve.key, coarse, watch, case)
+    if progress:
+        progress("uncertainty", 0.0)
     sens, solves = (cache.get_sensitivities(key) if key else None), 0
     if sens is None:
         sens, solves = _field_sensitivities(case, base_result, watch, coarse, progress)

@@ -74,6 +74,8 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     potential = SurfacePotential(segments, currents, kernel, options)
     V = potential(pts, progress).reshape(X.shape)
     labels = zoning.label(X, Y)
+    if progress:
+        progress("search", 0.0)                      # the map is done: the worst points next
 
     def touch_at(xy, v=None):
         v = potential(xy) if v is None else v

@@ -25,18 +25,35 @@ def zoom_maximum(field, x0: float, y0: float, half_width: float, accept, points:
     """Local maximum of ``field`` (vectorised over (M, 2) points) near (x0, y0) by a zoom search: a patch of
     ZOOM_POINTS² points over ±half_width, then patches a third the size around the best point,
     ZOOM_LEVELS times; only points where ``accept(x, y)`` (vectorised) count. Returns (value, x, y)."""
-    best = (float(field(np.array([[x0, y0]]))[0]), x0, y0)
+    return zoom_maxima(field, [(x0, y0)], half_width, accept, points, levels)[0]
+
+
+def zoom_maxima(field, starts, half_width: float, accept, points: int = ZOOM_POINTS,
+                levels: int = ZOOM_LEVELS) -> list[tuple[float, float, float]]:
+    """:func:`zoom_maximum` from several starting points at once: each level evaluates the patches of every start
+    in one call of ``field`` (the same searches, far fewer calls). Returns (value, x, y) per start."""
+    starts = np.asarray(starts, float).reshape(-1, 2)
+    if len(starts) == 0:
+        return []
+    first = np.asarray(field(starts), float)
+    best = [(float(v), float(x), float(y)) for v, (x, y) in zip(first, starts)]
     half = half_width
     offsets = np.linspace(-1.0, 1.0, points)
+    gx, gy = np.meshgrid(offsets, offsets)
+    gx, gy = gx.ravel(), gy.ravel()
     for _ in range(levels):
-        gx, gy = np.meshgrid(best[1] + half * offsets, best[2] + half * offsets)
-        px, py = gx.ravel(), gy.ravel()
+        px = np.concatenate([b[1] + half * gx for b in best])
+        py = np.concatenate([b[2] + half * gy for b in best])
+        owner = np.repeat(np.arange(len(best)), len(gx))
         ok = accept(px, py)
         if ok.any():
-            values = field(np.column_stack([px[ok], py[ok]]))
-            k = int(np.argmax(values))
-            if values[k] > best[0]:
-                best = (float(values[k]), float(px[ok][k]), float(py[ok][k]))
+            values = np.asarray(field(np.column_stack([px[ok], py[ok]])), float)
+            qx, qy, who = px[ok], py[ok], owner[ok]
+            for i in np.unique(who):
+                mine = np.flatnonzero(who == i)
+                k = mine[int(np.argmax(values[mine]))]
+                if values[k] > best[i][0]:
+                    best[i] = (float(values[k]), float(qx[k]), float(qy[k]))
         half /= (points - 1) / 2
     return best
 
@@ -91,8 +108,8 @@ def worst_place(field, values, mask, grid, region, zoning: Zoning, k: int) -> Ex
     start = field(np.array(candidates_xy, float))
     order = np.lexsort((np.array(candidates_xy)[:, 0], np.array(candidates_xy)[:, 1], -start))
     best = None
-    for cx, cy in distinct_points([candidates_xy[i] for i in order], resolution):
-        v, px, py = zoom_maximum(field, cx, cy, resolution, accept)
+    starts = distinct_points([candidates_xy[i] for i in order], resolution)
+    for v, px, py in zoom_maxima(field, starts, resolution, accept):
         if best is None or beats(v, px, py, best):
             best = Extreme(v, px, py)
     return best
