@@ -201,3 +201,36 @@ def test_check_of_a_bad_sweep_prints_only_the_refusal(tmp_path):
     # a number in exponent form without a dot (text to YAML 1.1) is a number in a sweep list too
     path.write_text(text.replace("grid.depth: [0.5, 20000]", "grid.depth: [5e-1, 0.8]"))
     assert run("check", path).exit_code == 0
+
+
+# fuzz findings: inputs that once ended in an internal error now get one line and exit 2
+@pytest.mark.parametrize("old, new, command, words", [
+    ("  traverse: east", "  traverse: {a: 1}", "check", "soil.traverse must be the name of one traverse"),
+    ("  traverse: east", "  traverse: [a, b]", "check", "got a list"),
+])
+def test_fitted_soil_traverse_not_a_name_is_refused(tmp_path, old, new, command, words):
+    text = (ROOT / "cases" / "kestrel-bend-fitted.yaml").read_text()
+    assert old in text
+    (tmp_path / "kestrel-bend-wenner.csv").write_text((ROOT / "cases" / "kestrel-bend-wenner.csv").read_text())
+    path = tmp_path / "f.yaml"
+    path.write_text(text.replace(old, new))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", command, str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1 and words in run.stderr, run.stderr
+
+
+def test_sweep_setting_without_a_name_is_refused(tmp_path):
+    text = (ROOT / "cases" / "kestrel-bend-sweep.yaml").read_text()
+    path = tmp_path / "s.yaml"
+    path.write_text(text[:text.index("sweep:")] + "sweep:\n  '': [1, 2]\n")
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "sweep", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1 and "sweep has a setting named ''" in run.stderr
+
+
+def test_absurd_map_resolution_is_refused_before_allocating(tmp_path):
+    text = (ROOT / "cases" / "kestrel-bend-uniform.yaml").read_text()
+    path = tmp_path / "r.yaml"
+    path.write_text(text.replace("resolution: 0.5", "resolution: 1e-9", 1))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True,
+                         timeout=60)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1, run.stderr
+    assert "use a resolution of at least" in run.stderr and "MemoryError" not in run.stderr

@@ -273,7 +273,12 @@ class CaseReader(ElectrodeSections, SiteSections, DrawingSections):
                                                f"'auto', got {fmt(count)}")
         if not full.is_file():
             raise self.doc.fail("soil.readings", f"file '{full}' not found (the path is relative to the case file)")
-        key = (str(full.resolve()), array, count, m.get("traverse"))
+        traverse = m.get("traverse")
+        if traverse is not None and (isinstance(traverse, (dict, list, bool)) or not str(traverse).strip()):
+            kind = {dict: "a mapping", list: "a list", bool: "true/false"}.get(type(traverse), "empty")
+            raise self.doc.fail("soil.traverse", f"must be the name of one traverse of the readings file (e.g. "
+                                                 f"traverse: east), got {kind}")
+        key = (str(full.resolve()), array, count, traverse)
         if key not in self.fits:
             self.fits[key] = self._fit(full, array, count, m.get("traverse"))
         fit = self.fits[key]

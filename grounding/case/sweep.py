@@ -33,6 +33,9 @@ def sweep_settings(doc: "Document") -> list[tuple[str, list[tuple[str, Any]]]]:
     out = []
     for name, values in data.items():
         path = f"sweep.{name}"
+        if not isinstance(name, str) or not name.strip():
+            raise doc.fail("sweep", f"has a setting named {fmt(name)}: name the case value to vary, e.g. "
+                                    "grid.spacing, grid.depth, rods.layout, surface_layer.thickness or soil")
         if name == "soil":
             if not isinstance(values, dict) or not values:
                 raise doc.fail(path, "must map scenario names to soil blocks, e.g. {dry: {resistivity: 400}}")

@@ -85,8 +85,7 @@ def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geome
     return unary_union(parts), meshes
 
 
-def map_axes(segments: Segments, surface: SurfaceMap) -> tuple[np.ndarray, np.ndarray]:
-    """Map axes covering the electrode footprint plus the margin, m."""
+def _map_extent(segments: Segments, surface: SurfaceMap) -> tuple[np.ndarray, np.ndarray]:
     pts = np.vstack([segments.start[:, :2], segments.end[:, :2]])
     lo = pts.min(axis=0) - surface.margin
     hi = pts.max(axis=0) + surface.margin
@@ -94,5 +93,19 @@ def map_axes(segments: Segments, surface: SurfaceMap) -> tuple[np.ndarray, np.nd
         if t.area is not None:
             ta = np.array(t.area.shell)
             lo, hi = np.minimum(lo, ta.min(axis=0)), np.maximum(hi, ta.max(axis=0))
+    return lo, hi
+
+
+def map_size(segments: Segments, surface: SurfaceMap) -> tuple[float, float]:
+    """Points of the map along x and y (as floats: counted without building the axes, so that an absurd
+    resolution is refused before anything is allocated)."""
+    lo, hi = _map_extent(segments, surface)
+    n = np.maximum(2.0, np.ceil((hi - lo) / surface.resolution - 1e-9) + 1)
+    return float(n[0]), float(n[1])
+
+
+def map_axes(segments: Segments, surface: SurfaceMap) -> tuple[np.ndarray, np.ndarray]:
+    """Map axes covering the electrode footprint plus the margin, m."""
+    lo, hi = _map_extent(segments, surface)
     n = np.maximum(2, np.ceil((hi - lo) / surface.resolution - 1e-9).astype(int) + 1)
     return (lo[0] + surface.resolution * np.arange(n[0]), lo[1] + surface.resolution * np.arange(n[1]))

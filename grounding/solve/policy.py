@@ -8,7 +8,7 @@ import numpy as np
 
 from ..case.model import Case
 from ..errors import ModelTooLargeError
-from ..geometry.plan import map_axes
+from ..geometry.plan import map_size
 from ..geometry.segments import Segments
 from ..operators.assembly import matrix_memory_bytes
 from ..operators.mutual_resistance import compressed_memory_bytes
@@ -62,9 +62,9 @@ def check_model_size(case: Case, segments: Segments) -> None:
             f"{case.source}: discretization.max_segment = {case.discretization.max_segment:g} m gives {n:,} "
             f"segments; the {kind} solve would need {need / gib:.1f} GiB (dense: {dense / gib:.1f} GiB, iterative: "
             f"{compressed / gib:.1f} GiB), more than the {limit / gib:.1f} GiB this machine can spare; {fix}")
-    x, y = map_axes(segments, case.surface)
-    if len(x) * len(y) > MAX_MAP_POINTS:
+    nx, ny = map_size(segments, case.surface)
+    if nx * ny > MAX_MAP_POINTS:
         raise ModelTooLargeError(
-            f"{case.source}: surface.resolution = {case.surface.resolution:g} m gives a map of {len(x)} × {len(y)} = "
-            f"{len(x) * len(y):,} points (at most {MAX_MAP_POINTS:,}); use a resolution of at least "
-            f"{case.surface.resolution * np.sqrt(len(x) * len(y) / MAX_MAP_POINTS):.2g} m or a smaller margin")
+            f"{case.source}: surface.resolution = {case.surface.resolution:g} m gives a map of {nx:,.0f} × {ny:,.0f} = "
+            f"{nx * ny:,.0f} points (at most {MAX_MAP_POINTS:,}); use a resolution of at least "
+            f"{case.surface.resolution * np.sqrt(nx * ny / MAX_MAP_POINTS):.2g} m or a smaller margin")
