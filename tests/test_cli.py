@@ -234,3 +234,14 @@ def test_absurd_map_resolution_is_refused_before_allocating(tmp_path):
                          timeout=60)
     assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1, run.stderr
     assert "use a resolution of at least" in run.stderr and "MemoryError" not in run.stderr
+
+
+def test_probe_outside_the_map_is_said(tmp_path):
+    """A probe far from the map gets a note on its touch voltage."""
+    text = (ROOT / "cases" / "kestrel-bend-uniform.yaml").read_text()
+    path = tmp_path / "p.yaml"
+    path.write_text(text + "\nprobes:\n  - [5000, 5000]\n" if "probes:" not in text else text.replace("probes:", "probes:\n  - [5000, 5000]", 1))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "study", str(path), "--quiet", "--no-cache"],
+                         capture_output=True, text=True)
+    assert run.returncode == 0, run.stderr
+    assert "lies outside the surface map" in " ".join(run.stdout.split())

@@ -60,6 +60,8 @@ def study_dxf(r: StudyResult) -> bytes:
         if lines:
             x, y = lines[0][0]
             msp.add_text(f"{level:,.0f} V", height=0.8, dxfattribs={"layer": "GRD-CONTOURS"}).set_placement((x, y))
+    # the maps drawn are the case as written: its own limits and worst points go with them (not a scenario's)
+    full, r = r, (r.scenarios[0] if r.scenarios else r)
     # touch-limit contour: where the touch voltage equals the local tolerable limit
     s = r.surface
     local, _ = r.local_limits()
@@ -75,7 +77,8 @@ def study_dxf(r: StudyResult) -> bytes:
         if check.worst is not None:
             w = check.worst
             msp.add_point((w.x, w.y), dxfattribs={"layer": "GRD-WORST"})
-            msp.add_text(f"worst {name} {w.value:,.0f} V", height=0.8,
+            own = f" ({r.scenario})" if full.scenarios else ""
+            msp.add_text(f"worst {name} {w.value:,.0f} V{own}", height=0.8,
                          dxfattribs={"layer": "GRD-WORST"}).set_placement((w.x + 0.5, w.y - 1.0))
     buf = io.StringIO()
     doc.write(buf)

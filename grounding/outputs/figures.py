@@ -204,6 +204,11 @@ def potential_figure(r: StudyResult) -> Rendered:
     return Rendered("potential", "Surface potential", fig, float(np.max(s.potential)))
 
 
+def _as_written(r: StudyResult) -> str:
+    """Title suffix naming the condition a map shows, when the study has scenarios."""
+    return f"\ncase as written ('{r.scenario}'); scenarios judged in the tables" if r.scenario else ""
+
+
 def touch_figure(r: StudyResult) -> Rendered:
     """Touch voltage over the touch area, the tolerable-limit contour and the exceeding areas hatched."""
     s = r.surface
@@ -239,7 +244,7 @@ def touch_figure(r: StudyResult) -> Rendered:
     _mark(ax, worst, f"worst {worst.value:,.0f} V")
     verdict = "PASS" if r.touch_ok else "FAIL (hatched: above the limit)"
     where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
-    ax.set_title(f"Touch voltage; {where} ({r.body_weight} kg, red line); {verdict}", fontsize=9)
+    ax.set_title(f"Touch voltage; {where} ({r.body_weight} kg, red line); {verdict}{_as_written(r)}", fontsize=9)
     fig.tight_layout()
     return Rendered("touch", "Touch voltage", fig, worst.value)
 
@@ -263,7 +268,8 @@ def step_figure(r: StudyResult) -> Rendered:
         ax.set_title("Step voltage (the standard sets no step limit; reported only)", fontsize=9)
     else:
         where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
-        ax.set_title(f"Step voltage; {where} ({r.body_weight} kg); {'PASS' if r.step_ok else 'FAIL'}", fontsize=9)
+        ax.set_title(f"Step voltage; {where} ({r.body_weight} kg); {'PASS' if r.step_ok else 'FAIL'}{_as_written(r)}",
+                     fontsize=9)
     fig.tight_layout()
     return Rendered("step", "Step voltage", fig, worst.value)
 
@@ -284,7 +290,7 @@ def profile_figure(r: StudyResult) -> Rendered:
     ax.set_ylim(0, 1.08 * gpr)
     ax.grid(alpha=0.3)
     ax.legend(fontsize=7, loc="best")
-    ax.set_title("Potential profile", fontsize=10)
+    ax.set_title(f"Potential profile{_as_written(r)}", fontsize=10)
     fig.tight_layout()
     return Rendered("profile", "Potential profile", fig, float(np.max(p.potential)))
 
@@ -403,7 +409,11 @@ def metal_potential_figure(r: StudyResult) -> Rendered | None:
 
 def all_figures(r: StudyResult) -> list[Rendered]:
     """Every figure of a study, in report order."""
-    figs = [plan_figure(r), potential_figure(r), touch_figure(r), step_figure(r), profile_figure(r), leakage_figure(r)]
+    # the maps are those of the case as written: drawn with its own limits, worst points and verdicts (a
+    # scenario's limit or worst point does not belong on them); the titles say so when there are scenarios
+    own = r.scenarios[0] if r.scenarios else r
+    figs = [plan_figure(r), potential_figure(own), touch_figure(own), step_figure(own), profile_figure(own),
+            leakage_figure(own)]
     m = metal_potential_figure(r)
     figs += [m] if m is not None else []
     u = uncertainty_figure(r)

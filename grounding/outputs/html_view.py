@@ -240,6 +240,22 @@ def _verdict_rows(r: StudyResult) -> str:
         out.append(f"<tr class='{verdict.lower().replace('/', '')}'><th>{name}</th><td>{w.value:,.0f} V</td>"
                    f"<td>{limit}</td><td>{verdict}</td><td>({w.x:.1f}, {w.y:.1f}) m, {html.escape(check.zone)}"
                    f"{html.escape(scen)}</td></tr>")
+    for e in r.separate:                         # touch near each separate electrode (the case as written)
+        t = e.touch
+        if t.worst is None:
+            out.append(f"<tr><th>Touch near {html.escape(e.name)}</th><td colspan=4>nowhere within reach on the map"
+                       "</td></tr>")
+            continue
+        verdict = "PASS" if t.ok else "FAIL"
+        out.append(f"<tr class='{verdict.lower()}'><th>Touch near {html.escape(e.name)}</th>"
+                   f"<td>{t.worst.value:,.0f} V</td><td>{t.limit:,.0f} V</td><td>{verdict}</td>"
+                   f"<td>({t.worst.x:.1f}, {t.worst.y:.1f}) m, {html.escape(t.zone)}</td></tr>")
+    c = r.conductor
+    verdict = "PASS" if c.ok else "FAIL"
+    scen = f" [{c.scenario}]" if c.scenario else ""
+    out.append(f"<tr class='{verdict.lower()}'><th>Conductor size</th><td>{c.actual_area_mm2:.1f} mm² fitted</td>"
+               f"<td>{c.required_area_mm2:.1f} mm² needed</td><td>{verdict}</td>"
+               f"<td>{html.escape((c.element or '') + scen)}</td></tr>")
     return "\n".join(out)
 
 
@@ -309,7 +325,8 @@ def _section(r: StudyResult, div_id: str, include_js: bool) -> str:
     plot = fig.to_html(full_html=False, include_plotlyjs=include_js, div_id=div_id,
                        config={"displaylogo": False, "responsive": True, "scrollZoom": True})
     verdict = "pass" if r.passes else "fail"
-    text = "All criteria pass as modelled" if r.passes else "At least one criterion FAILS: not safe as modelled"
+    text = "All criteria pass as modelled" if r.passes else (
+        "At least one criterion FAILS: not safe as modelled. Failing: " + html.escape("; ".join(r.failures())))
     data = json.dumps(_data_block(r, labels)).replace("</", "<\\/")
     warnings = "".join(f"<li>{html.escape(w)}</li>" for w in r.warnings)
     return (f"<main><div class='view'>{plot}{note}</div><aside>"

@@ -321,6 +321,12 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict, scre
                         "set electrodes.conductor_impedance: true and give fault.injection")
     if solution.metal is not None:
         warnings.extend(_impedance_notes(case, segments, solution))
+    for k, (px, py) in enumerate(case.probes):
+        if not (surface.x[0] <= px <= surface.x[-1] and surface.y[0] <= py <= surface.y[-1]):
+            warnings.append(f"probes[{k}] at ({px:g}, {py:g}) m lies outside the surface map ({surface.x[0]:.0f} to "
+                            f"{surface.x[-1]:.0f} m, {surface.y[0]:.0f} to {surface.y[-1]:.0f} m): its surface "
+                            "potential is exact, but its touch voltage assumes a hand on the grid's metal, which is "
+                            "out of reach there unless metal (a fence, pipe or cable) carries the potential out")
     for z in zones:
         if z.zone.area is not None and z.extremes.step is None:
             warnings.append(f"surface zone '{z.name}' holds no point of the surface map; its step voltage was not "
