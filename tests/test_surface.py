@@ -140,3 +140,24 @@ def test_touch_peak_on_the_edge_of_the_touch_area_is_found_on_a_coarse_map():
     corner = np.array([[20 + 0.5 ** 0.5, -0.5 ** 0.5], [-0.5 ** 0.5, -0.5 ** 0.5]])
     edge_touch = r.ground_potential_rise - surface_potential(corner, r.segments, r.segment_currents, r.kernel)
     assert r.touch_check.worst.value >= edge_touch.max() * (1 - 1e-9)
+
+
+def test_touch_area_shortcut_equals_buffering_every_conductor(make_case):
+    """touch_region buffers only the conductors near the meshes' edge (or outside them); the area equals the
+    meshes ∪ the band around every conductor (shapely as the independent reference), to buffer-rounding size."""
+    from shapely.ops import unary_union
+
+    from grounding.geometry.plan import metal_footprint, touch_region
+    from grounding.geometry.segments import segment
+    case = make_case("""
+        grids: [{origin: [0, 0], size: [30, 20], meshes: [6, 4], depth: 0.5, diameter: 0.01},
+                {origin: [30, 5], size: [2, 2], meshes: [4, 4], depth: 0.5, diameter: 0.01}]
+        conductors: [{start: [30, 10, 0.5], end: [40, 10, 0.5], diameter: 0.01}]
+        rods: [{top: [40, 10, 0.5], length: 3, diameter: 0.016}]
+        """)
+    segments = segment(case)
+    area, meshes = touch_region(segments, case.surface)
+    main = segments.conductors.group == 0
+    full_meshes, band = metal_footprint(segments, main, case.surface.touch_reach)   # every conductor buffered
+    reference = unary_union([meshes, band])
+    assert area.symmetric_difference(reference).area < 1e-6 * reference.area

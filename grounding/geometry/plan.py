@@ -12,17 +12,34 @@ from ..case.site import shapely_polygon
 from .segments import Segments
 
 
-def metal_footprint(segments: Segments, mask: np.ndarray, reach: float) -> tuple[shapely.Geometry, shapely.Geometry]:
+def metal_footprint(segments: Segments, mask: np.ndarray, reach: float,
+                    inside: shapely.Geometry | None = None) -> tuple[shapely.Geometry, shapely.Geometry]:
     """Plan view of the conductors selected by ``mask``: (meshes they form, everything within ``reach``
-    of them), shapely geometries in the x–y plane (m)."""
+    of them), shapely geometries in the x–y plane (m).
+
+    ``inside``: an area the caller adds to the result anyway (e.g. the grid's meshes of the touch area). The
+    second geometry is then (everything within ``reach``) ∪ ``inside``, computed without buffering the
+    conductors whose band lies in ``inside`` (covered by it and at least ``reach`` from its edge: a point of the
+    band outside would put the edge closer), the same set at a fraction of the cost on large grids."""
     c = segments.conductors
     horizontal = ~c.is_rod & mask
     lines = [LineString([tuple(c.start[k, :2]), tuple(c.end[k, :2])]) for k in np.flatnonzero(horizontal)
              if np.linalg.norm(c.start[k, :2] - c.end[k, :2]) > 1e-6]
     noded = unary_union(MultiLineString(lines)) if lines else None
     meshes = unary_union(list(polygonize(noded))) if noded is not None else Polygon()
+    if reach <= 0 and inside is None:                # the meshes alone were asked for
+        return meshes, Polygon()
     parts = []
-    if noded is not None:
+    if noded is not None and inside is not None and not inside.is_empty:
+        pieces = np.array(list(getattr(noded, "geoms", [noded])), dtype=object)
+        shapely.prepare(inside)
+        edge = inside.boundary
+        shapely.prepare(edge)
+        pieces = pieces[~shapely.covers(inside, pieces) | shapely.dwithin(pieces, edge, reach)]
+        if len(pieces):
+            parts.append(MultiLineString(list(pieces)).buffer(reach))
+        parts.append(inside)
+    elif noded is not None:
         parts.append(noded.buffer(reach))
     rods = c.is_rod & mask
     if rods.any():
@@ -73,7 +90,7 @@ def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geome
     block = main & c.matching(("electrodes",))
     meshes, _ = metal_footprint(segments, block, 0.0)
     if not surface.touch_areas:
-        _, reach = metal_footprint(segments, main, surface.touch_reach)
+        _, reach = metal_footprint(segments, main, surface.touch_reach, inside=meshes)
         return unary_union([meshes, reach]), meshes
     parts = []
     for t in surface.touch_areas:

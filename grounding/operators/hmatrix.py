@@ -480,7 +480,7 @@ def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | Non
 def apply_once(kernel: Kernel, targets: np.ndarray, sources: np.ndarray, x: np.ndarray,
                source_layer: np.ndarray | None = None, eta: float = ETA, leaf_size: int = LEAF_SIZE,
                nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z, progress: Progress | None = None,
-               label: str = "surface") -> np.ndarray:
+               label: str = "surface", source_tree: "ClusterTree | None" = None) -> np.ndarray:
     """K x for K_ij = kernel(x_i, y_j) by the same hierarchical approximation as :func:`build_hmatrix`,
     streamed block by block instead of stored: for a product needed once (a surface map), memory stays
     at the size of the node values and one chunk.
@@ -497,10 +497,12 @@ def apply_once(kernel: Kernel, targets: np.ndarray, sources: np.ndarray, x: np.n
         Source strengths.
     source_layer : ndarray of int, optional
         Soil layer of each source; clusters never mix layers.
+    source_tree : ClusterTree, optional
+        ``cluster_tree(sources, source_layer, leaf_size)`` kept from an earlier call with the same sources.
     """
     targets, sources, x = np.asarray(targets, float), np.asarray(sources, float), np.asarray(x, float)
     t_tree = cluster_tree(targets, None, leaf_size)
-    s_tree = cluster_tree(sources, source_layer, leaf_size)
+    s_tree = source_tree if source_tree is not None else cluster_tree(sources, source_layer, leaf_size)
     far, near = block_partition(t_tree, s_tree, eta)
     t_depth, s_depth = _flat_depth(t_tree), _flat_depth(s_tree)
     out = np.zeros(len(targets))

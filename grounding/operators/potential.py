@@ -12,7 +12,7 @@ from ..geometry.segments import Segments
 from ..kernels.base import DEPTH_QUANTUM, SoilKernel
 from ..kernels.integrals import GAUSS2, line_integral
 from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, gauss_points, near_term_sum
-from .hmatrix import apply_once, threaded_map
+from .hmatrix import LEAF_SIZE, apply_once, cluster_tree, threaded_map
 
 Progress = Callable[[str, float], None]
 
@@ -55,6 +55,7 @@ class SurfacePotential:
             [(kernel.radial(0.0, classes[k] * DEPTH_QUANTUM), np.flatnonzero(cls.ravel() == k))
              for k in range(len(classes))]
         self.tree = cKDTree(self.mid)
+        self.source_tree = None                          # cluster tree of the Gauss points, made at first use
 
     def __call__(self, xy: np.ndarray, progress: Progress | None = None) -> np.ndarray:
         """Potential relative to remote earth (V) at surface points ``xy`` (m), shape (M, 2) → (M,)."""
@@ -69,10 +70,14 @@ class SurfacePotential:
             # large maps: the hierarchical far field of the segments' 2-point Gauss–Legendre sources (the
             # middle tier's rule, so that only near pairs need correcting), interpolated to about 1e-5
             sources = gauss_points(a, b).reshape(-1, 3)
+            layers = kernel.layer_of(sources[:, 2])
+            if self.source_tree is None:                 # the same sources at every call: their tree once
+                self.source_tree = cluster_tree(sources, layers, LEAF_SIZE)
             for c in range(k):
                 out[:, c] += apply_once(kernel.potential, np.column_stack([xy, np.zeros(m)]), sources,
-                                        np.repeat(0.5 * currents[:, c], 2), source_layer=kernel.layer_of(sources[:, 2]),
-                                        progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None)
+                                        np.repeat(0.5 * currents[:, c], 2), source_layer=layers,
+                                        progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None,
+                                        source_tree=self.source_tree)
         for start in range(0, 0 if compressed else m, POINT_CHUNK):
             rows = slice(start, min(m, start + POINT_CHUNK))
             if self.members is None:
