@@ -380,3 +380,22 @@ def test_injection_in_plan_takes_the_metal_depth_there(tmp_path):
     plan = _case(tmp_path, COUNTERPOISE.format(f=0, length=300, h=5).replace("injection: [0, 0, 0.8]",
                                                                              "injection: [100, 0]"), "b.yaml")
     assert solve_case(plan)[2].resistance == pytest.approx(solve_case(full)[2].resistance, rel=1e-12)
+
+
+def test_drop_screening_reaches_yards_with_many_pieces(make_case):
+    """A layout with more conductor pieces between junctions than the screening's target (480 > 400) is still
+    screened, on its coarsest discretisation that fits DROP_MAX_SEGMENTS; one beyond that says it was not, and
+    the study's notes say the equipotential model is unchecked."""
+    from grounding.study.metal_drop import DROP_ESTIMATE_SEGMENTS, DROP_MAX_SEGMENTS, estimate_metal_drop
+    from grounding.study.pipeline import run_study
+    mid = make_case("grids: [{origin: [0, 0], size: [150, 150], meshes: [15, 15], depth: 0.5, diameter: 0.01}]")
+    d = estimate_metal_drop(mid)
+    assert d.fraction is not None and 0 < d.fraction < 0.5
+    n = int(d.note.split("screening estimate: ")[1].split(" segments")[0])
+    assert DROP_ESTIMATE_SEGMENTS < n <= DROP_MAX_SEGMENTS
+    big = make_case("grids: [{origin: [0, 0], size: [200, 200], meshes: [40, 40], depth: 0.5, diameter: 0.01}]",
+                    extra="\ndiscretization: {max_segment: 5}\nsurface: {resolution: 5}\n")
+    d = estimate_metal_drop(big)
+    assert d.fraction is None and "more than 1000 segments" in d.note
+    r = run_study(big, estimate_error=False, uncertainty=False)
+    assert any("potential drop along the metal was not screened" in w for w in r.warnings)

@@ -193,7 +193,8 @@ def _impedance_summary(r: StudyResult) -> dict:
     if drop is not None:
         out["metal_potential_drop"] = {"fraction_of_gpr": _num(drop.fraction), "least_fraction": _num(drop.low),
                                        "feed_point": None if drop.feed is None else [_num(v) for v in drop.feed],
-                                       "estimated": drop.estimated, "note": drop.note}
+                                       "estimated": drop.estimated, "screened": drop.fraction is not None,
+                                       "note": drop.note}
     return out
 
 

@@ -319,6 +319,10 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict, scre
                         f"{100 * drop.fraction:.1f} % of the GPR from the feed point ({x:.1f}, {y:.1f}) m across the "
                         f"metal ({drop.note}); touch voltages near the feed point can be larger than this study's; "
                         "set electrodes.conductor_impedance: true and give fault.injection")
+    if drop is not None and drop.fraction is None and solution.metal is None:
+        warnings.append(f"the potential drop along the metal was not screened ({drop.note}): the equipotential "
+                        "model is unchecked for this layout; on a large or long layout set "
+                        "electrodes.conductor_impedance: true and give fault.injection")
     if solution.metal is not None:
         warnings.extend(_impedance_notes(case, segments, solution))
     for k, (px, py) in enumerate(case.probes):
