@@ -513,6 +513,88 @@ def _write_all(files, inputs=()) -> None:
         write_atomic(path, data)
 
 
+def _point(text: str, option: str) -> tuple[float, float]:
+    """``X,Y`` in metres, or a one-line refusal."""
+    import math
+    try:
+        x, y = (float(v) for v in text.split(","))
+    except ValueError:
+        raise GroundingError(f"{option} {text!r}: give two numbers in metres as X,Y, e.g. {option} 60,22.5") from None
+    if not (math.isfinite(x) and math.isfinite(y)) or max(abs(x), abs(y)) > 1e6:
+        raise GroundingError(f"{option} {text!r}: give finite coordinates in metres within ±1 000 km")
+    return x, y
+
+
+@main.command("fall-of-potential")
+@click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
+@click.option("--from", "start", required=True, help="X,Y (m): where the test leads connect; the traverse starts here.")
+@click.option("--current-at", "rod", required=True, help="X,Y (m): the current rod.")
+@click.option("--rod-length", type=click.FloatRange(min=0.1, max=30), default=1.0, show_default=True,
+              help="Current rod length, m.")
+@click.option("--rod-diameter", type=click.FloatRange(min=0.005, max=0.1), default=0.016, show_default=True,
+              help="Current rod diameter, m.")
+@click.option("--probe-direction", "direction", type=float, default=None,
+              help="Traverse direction, degrees anticlockwise from +x (default: toward the current rod).")
+@click.option("--probes", default=None, help="Probe distances from --from, m: d1,d2,… (default 40 points to the rod).")
+@click.option("--measured", "measured_file", type=click.Path(dir_okay=False),
+              help="CSV of readings (distance_m,resistance_ohm): fitted against the predicted curve.")
+@click.option("--json", "json_file", type=click.Path(dir_okay=False), help="Also write the results as JSON.")
+@click.option("--plot", "plot_file", type=click.Path(dir_okay=False), help="Also write the curve (.png or .svg).")
+@click.option("--no-plan", "no_plan", is_flag=True, help="Skip the search of the current-rod distance per accuracy.")
+@click.option("--quiet", is_flag=True, help="Only the written files' names.")
+def fall_of_potential(case_file, start, rod, rod_length, rod_diameter, direction, probes, measured_file, json_file,
+                      plot_file, no_plan, quiet):
+    """Predict the fall-of-potential test of CASE's grid (IEEE Std 81) and read measured readings against it."""
+    from .outputs.fall_of_potential_outputs import (
+        fall_of_potential_figure,
+        fall_of_potential_json,
+        fall_of_potential_text,
+    )
+    from .study.fall_of_potential import fit_measured, parse_measured, predict_test
+    from .textfile import read_user_text
+    try:
+        start_xy, rod_xy = _point(start, "--from"), _point(rod, "--current-at")
+        distances = None
+        if probes is not None:
+            try:
+                distances = [float(v) for v in probes.split(",") if v.strip()]
+            except ValueError:
+                raise GroundingError(f"--probes {probes!r}: give distances in m separated by commas") from None
+        if plot_file and not plot_file.lower().endswith((".png", ".svg")):
+            raise GroundingError(f"--plot {plot_file}: give a .png or .svg file")
+        case = load_case(case_file)
+        inputs = _inputs_of(case) + ([measured_file] if measured_file else [])
+        _check_outputs_early((json_file, plot_file), inputs)
+        measured = None
+        if measured_file:
+            text, _ = read_user_text(measured_file, "a CSV of fall-of-potential readings", encoding="utf-8-sig")
+            measured = parse_measured(text, measured_file)
+        prediction = predict_test(case, start_xy, rod_xy, distances, direction, rod_length, rod_diameter,
+                                  plan=not no_plan)
+        fit = None
+        if measured is not None:
+            if direction is None and measured[0].max() >= prediction.curve.rod_distance:
+                raise GroundingError(f"{measured_file}: a reading at {measured[0].max():g} m is at or beyond the "
+                                     f"current rod ({prediction.curve.rod_distance:.1f} m from --from)")
+            fit = fit_measured(case, prediction, *measured, rod_length=rod_length, rod_diameter=rod_diameter)
+        files = []
+        if json_file:
+            files.append((json_file, fall_of_potential_json(prediction, fit, measured)))
+        if plot_file:
+            from .outputs.figures import png_bytes, svg_bytes
+            fig = fall_of_potential_figure(prediction, fit, measured)
+            files.append((plot_file, svg_bytes(fig) if plot_file.lower().endswith(".svg") else png_bytes(fig)))
+        from .outputs.atomic import write_atomic
+        for path, data in files:
+            write_atomic(path, data)
+    except GroundingError as exc:
+        _fail(exc)
+    if not quiet:
+        click.echo(fall_of_potential_text(prediction, fit))
+    for path, _ in files:
+        click.echo(f"Written: {path}")
+
+
 @main.command()
 @click.argument("case_file", metavar="CASE", type=click.Path(dir_okay=False))
 def check(case_file):
