@@ -50,6 +50,14 @@ def fall_of_potential_json(f: FallOfPotential, fit=None, measured=None) -> bytes
     return (json.dumps(fall_of_potential_dict(f, fit, measured), indent=1, ensure_ascii=False) + "\n").encode()
 
 
+def _off_line(f: FallOfPotential) -> str:
+    """Words for a traverse that does not run toward the current rod (the 61.8 % reading is taken on that line)."""
+    toward = np.degrees(np.arctan2(f.rod[1] - f.start[1], f.rod[0] - f.start[0]))
+    if abs((f.direction_deg - toward + 180) % 360 - 180) < 1e-9:
+        return ""
+    return f" (on the line to the current rod; the traverse runs at {f.direction_deg:g}°)"
+
+
 def fall_of_potential_text(f: FallOfPotential, fit: MeasuredFit | None = None) -> str:
     """The terminal summary."""
     d, r618, err = f.rule_618
@@ -57,7 +65,8 @@ def fall_of_potential_text(f: FallOfPotential, fit: MeasuredFit | None = None) -
              f"  True resistance Rg        {f.true_resistance:.4f} Ω       the grid to remote earth (the study's value)",
              f"  Current rod               ({f.rod[0]:g}, {f.rod[1]:g}) m, {f.curve.rod_distance:.1f} m from "
              f"({f.start[0]:g}, {f.start[1]:g}) m",
-             f"  61.8 % rule               {r618:.4f} Ω at {d:.1f} m: {err * 100:+.2f} % from the true value",
+             f"  61.8 % rule               {r618:.4f} Ω at {d:.1f} m: {err * 100:+.2f} % from the true value"
+             + _off_line(f),
              "  Curve meets Rg at         " + ("nowhere on the traverse" if f.probe_distance_for_true is None else
                                               f"{f.probe_distance_for_true:.1f} m "
                                               f"({f.probe_distance_for_true / f.curve.rod_distance * 100:.1f} % of the "
@@ -85,7 +94,9 @@ def fall_of_potential_figure(f: FallOfPotential, fit: MeasuredFit | None = None,
     ax.plot(f.curve.distances, f.curve.apparent, color="#1f3b73", lw=1.6, label="predicted apparent resistance")
     ax.axhline(f.true_resistance, color="#4d4d4d", lw=1.0, ls="--", label=f"true Rg {f.true_resistance:.3f} Ω")
     d, r618, err = f.rule_618
-    ax.plot([d], [r618], "o", color="#b35806", label=f"61.8 % point: {r618:.3f} Ω ({err * 100:+.2f} %)")
+    toward = np.degrees(np.arctan2(f.rod[1] - f.start[1], f.rod[0] - f.start[0]))
+    where = "" if abs((f.direction_deg - toward + 180) % 360 - 180) < 1e-9 else " (on the line to the current rod)"
+    ax.plot([d], [r618], "o", color="#b35806", label=f"61.8 % point{where}: {r618:.3f} Ω ({err * 100:+.2f} %)")
     if f.probe_distance_for_true is not None:
         ax.axvline(f.probe_distance_for_true, color="#7f7f7f", lw=0.8, ls=":",
                    label=f"curve meets Rg at {f.probe_distance_for_true:.1f} m")
