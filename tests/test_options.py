@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -316,3 +317,17 @@ def test_runaway_sweep_ranges_refused_quickly(tmp_path, rng, message):
     path.write_text(SWEEP.replace("grid.spacing: [10, 5]", f"grid.spacing: {rng}"))
     with pytest.raises(CaseError, match=message):
         load_variants(path)
+
+
+def test_third_party_metal_is_not_counted_as_earthing_material():
+    """The fence demos add a fence (wire and posts) and a 100 mm water main as separate electrodes to the same grid
+    as the uniform demo: the layout's material and rod count are the grid's alone."""
+    from grounding.case.load import load_case
+    from grounding.options.quantities import geometry_quantities
+    root = Path(__file__).resolve().parents[1] / "cases"
+    plain = geometry_quantities(load_case(root / "kestrel-bend-uniform.yaml"))
+    for name in ("fence-isolated", "fence-bonded"):
+        q = geometry_quantities(load_case(root / f"kestrel-bend-{name}.yaml"))
+        assert (q.conductor_length_m, q.rod_count, q.rod_length_m) == (plain.conductor_length_m, plain.rod_count,
+                                                                       plain.rod_length_m)
+        assert q.mass_kg == pytest.approx(plain.mass_kg, rel=1e-12)

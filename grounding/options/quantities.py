@@ -61,7 +61,7 @@ def layout_quantities(c: Case, seg: Segments, touch_area) -> Quantities:
     touch area; surface zones over their own areas."""
     from ..case.site import shapely_polygon
 
-    own = ~seg.conductors.matching(("separate_electrodes",))
+    own = seg.conductors.matching(("electrodes",))          # the layout's own metal (a piece shared with a fence counts)
     keep = own[seg.conductor]
     rod = seg.is_rod
     conductor_len = float(seg.length[~rod & keep].sum())
