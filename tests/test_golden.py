@@ -11,7 +11,6 @@ import pytest
 
 from tests.golden.harness import CASES, differences, golden_document, read, run_case
 
-
 #: Golden cases that take more than about 10 s (left out of the quick loop, ``-m "not slow"``).
 SLOW = {"seasons"}
 

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-import pytest
-
 import os
+
+import pytest
 
 from grounding.case.load import parse_case
 from grounding.geometry.segments import segment

@@ -244,3 +244,23 @@ def test_refined_case_refines_every_scenario():
     assert finer.scenarios[0].case.discretization.max_segment == 0.5
     assert finer.scenarios[0].case.surface.resolution == 0.25
     assert math.isclose(finer.surface.resolution, 0.25)
+
+
+def test_rod_error_bar_covers_its_slow_convergence():
+    """A lone 3 m rod (16 mm, 100 Ω·m) converges slowly in the segment length (order about 0.4, not 1) and its
+    1 m discretisation does not halve at 2 m (3 → 2 segments): the estimate uses the ratio made and the rods'
+    order, and covers the difference to the same rod at 0.125 m (itself still above the limit; the refinement
+    continues to fall, so that difference is a lower bound of the true error)."""
+    text = """format: 1
+soil: {resistivity: 100}
+fault: {current: 1000, clearing_time: 0.5}
+electrodes:
+  rods: [{top: [0, 0, 0.0], length: 3, diameter: 0.016}]
+discretization: {max_segment: %g}
+"""
+    coarse = run_study(parse_case(text % 1.0), uncertainty=False)
+    fine = run_study(parse_case(text % 0.125), estimate_error=False, uncertainty=False)
+    err = coarse.discretization_error
+    assert err.order == pytest.approx(0.4) and err.refinement_ratio == pytest.approx(1.5)
+    assert err.estimate_ohm >= coarse.grid_resistance - fine.grid_resistance > 0
+    assert err.estimate_ohm < 3 * (coarse.grid_resistance - fine.grid_resistance)     # not a blanket bound

@@ -113,7 +113,11 @@ def _voltage_error(r: StudyResult) -> dict:
         out[f"{name}_segment_check_v"] = None if w is None else _num(w.segment_check)
         out[f"{name}_map_check_v"] = None if w is None else _num(w.map_check)
         out[f"{name}_limit_within_error"] = bool(check.limit_within_error)
-    out["method"] = ("|V − V(2h)|/(2^p − 1), p = 1, from the solve at twice the segment length at the same point, "
+    err = r.discretization_error
+    how = ("" if err.order is None else
+           f", r = {err.refinement_ratio:.3g} (the segments' refinement ratio), p = {err.order:.2g} (1 for grids, "
+           "0.4 for rods, by the rods' share of the current)")
+    out["method"] = (f"|V − V(2h)|/(r^p − 1){how}, from the solve at twice the segment length at the same point, "
                      "plus |V − V(2Δ)| from the searches on a map of twice the spacing")
     return out
 
@@ -297,6 +301,7 @@ def _results_dict(r: StudyResult) -> dict:
             "surface_s": _num(r.timings["surface_s"], 4),
             "discretization_error": {"estimate_ohm": _num(err.estimate_ohm), "relative": _num(err.relative),
                                      "coarse_resistance_ohm": _num(err.coarse_resistance),
+                                     "refinement_ratio": _num(err.refinement_ratio), "order": _num(err.order),
                                      "note": err.note or None},
             "voltage_error": _voltage_error(r),
             "convergence": None if r.convergence is None else {

@@ -14,10 +14,6 @@ from ..surface.results import Extreme, ZoneExtremes
 from .en50522 import DEFAULT_FOOTWEAR, prospective_touch_voltage
 from .ieee80 import Limits, tolerable_limits
 
-#: Convergence order of the worst voltages in the segment length (first order, as measured for Rg and
-#: for the voltages in tests/test_uncertainty.py).
-VOLTAGE_CONVERGENCE_ORDER = 1.0
-
 
 @dataclass(frozen=True)
 class ZoneVerdict:
@@ -98,9 +94,9 @@ class Check:
 
     @property
     def error(self) -> float | None:
-        """Estimated discretisation error of the worst voltage, V (segments by Richardson's estimate with
-        first-order convergence, plus the change seen with a map of twice the spacing); None if not made."""
-        return None if self.worst is None else self.worst.error(VOLTAGE_CONVERGENCE_ORDER)
+        """Estimated discretisation error of the worst voltage, V (segments by Richardson's estimate, plus the
+        change seen with a map of twice the spacing; see :meth:`Extreme.error`); None if not made."""
+        return None if self.worst is None else self.worst.error()
 
     @property
     def limit_within_error(self) -> bool:

@@ -34,7 +34,7 @@ from .metal_drop import MetalDrop
 from .result import DiscretizationError
 
 #: Format of a stored entry (raise when the layout of the arrays or the header changes).
-FORMAT = 1
+FORMAT = 2
 #: Bound of the store's size on disk, bytes (least recently used entries leave first).
 SIZE_LIMIT = 2 ** 30
 #: First bytes of every value.
@@ -76,7 +76,7 @@ def entry_key(solve_key, estimate_error: bool, screen_drop: bool) -> str:
 
 
 def _extreme(e: Extreme | None):
-    return None if e is None else [e.value, e.x, e.y, e.map_check, e.segment_check]
+    return None if e is None else [e.value, e.x, e.y, e.map_check, e.segment_check, e.richardson]
 
 
 def _unextreme(v) -> Extreme | None:

@@ -158,6 +158,14 @@ def _strip_keys(part: tuple) -> tuple:
     return tuple(replace(x, key="") if hasattr(x, "key") else x for x in part)
 
 
+def rod_share(segments: Segments, solution: Solution) -> float:
+    """The rods' share (0–1) of the energised metal's leakage current."""
+    i = np.abs(solution.currents_per_volt)
+    main = segments.group == 0
+    total = float(i[main].sum())
+    return float(i[main & segments.is_rod].sum()) / total if total > 0 else 0.0
+
+
 def solve_geometry(case: Case, progress: Progress | None = None, estimate_error: bool = True,
                    screen_drop: bool = True) -> UnitStudy:
     """Solve the electrodes at 1 V and map the surface; see :class:`UnitStudy`. ``screen_drop``: also screen
@@ -179,7 +187,8 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
     if estimate_error:
         if progress:
             progress("error estimate", 0.0)
-        error, surface = estimate_discretization_error(case, solution, len(segments), surface)
+        error, surface = estimate_discretization_error(case, solution, len(segments), surface,
+                                                       rod_share(segments, solution))
     else:
         error = DiscretizationError(None, None, None, "not requested")
     return UnitStudy(segments, kernel, solution, surface, error, timings, drop)

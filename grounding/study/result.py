@@ -28,17 +28,23 @@ class DiscretizationError:
     coarse_resistance : float or None
         Rg at twice the segment length, Ω.
     estimate_ohm : float or None
-        |Rg − Rg(2h)| / (2^p − 1), Ω, with p the convergence order.
+        |Rg − Rg(2h)| / (r^p − 1), Ω, with r the refinement ratio and p the convergence order.
     relative : float or None
         estimate / Rg.
     note : str
         Why no estimate was made, when it was not.
+    refinement_ratio : float or None
+        Segments of the study over segments at twice the segment length (2 for a clean halving).
+    order : float or None
+        The convergence order assumed (1 for grids, lower with rods: see ``study.accuracy``).
     """
 
     coarse_resistance: float | None
     estimate_ohm: float | None
     relative: float | None
     note: str = ""
+    refinement_ratio: float | None = None
+    order: float | None = None
 
 
 @dataclass(frozen=True)

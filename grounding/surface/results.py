@@ -14,7 +14,8 @@ class Extreme:
 
     ``map_check`` is the same maximum found from a map of twice the spacing, and ``segment_check`` the
     value at the same point from the solve at twice the segment length (both V; None when not made):
-    the two sources of discretisation error of the value.
+    the two sources of discretisation error of the value; ``richardson`` the factor that turns the
+    difference to ``segment_check`` into an error estimate (see :meth:`error`).
     """
 
     value: float
@@ -22,20 +23,22 @@ class Extreme:
     y: float
     map_check: float | None = None
     segment_check: float | None = None
+    richardson: float = 1.0
 
     def scaled(self, factor: float) -> "Extreme":
         """The same point with the value multiplied by ``factor``."""
         def sc(v):
             return None if v is None else v * factor
-        return Extreme(self.value * factor, self.x, self.y, sc(self.map_check), sc(self.segment_check))
+        return Extreme(self.value * factor, self.x, self.y, sc(self.map_check), sc(self.segment_check),
+                       self.richardson)
 
-    def error(self, order: float = 1.0) -> float | None:
-        """Estimated discretisation error of the value, V: |value − segment_check| / (2^order − 1) (Richardson,
-        convergence order ``order`` in the segment length) plus |value − map_check| (map spacing);
-        None when neither check was made."""
+    def error(self) -> float | None:
+        """Estimated discretisation error of the value, V: |value − segment_check| · richardson (Richardson's
+        estimate; ``richardson`` = 1/(r^p − 1) for the refinement ratio r and convergence order p of the two solves,
+        1 for a halving at first order) plus |value − map_check| (map spacing); None when neither check was made."""
         if self.map_check is None and self.segment_check is None:
             return None
-        seg = 0.0 if self.segment_check is None else abs(self.value - self.segment_check) / (2 ** order - 1)
+        seg = 0.0 if self.segment_check is None else abs(self.value - self.segment_check) * self.richardson
         return seg + (0.0 if self.map_check is None else abs(self.value - self.map_check))
 
 

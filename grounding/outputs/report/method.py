@@ -101,7 +101,8 @@ def accuracy_text(r: StudyResult) -> str:
     err = r.discretization_error
     if err.relative is not None:
         text = ("How sure: Rg and the worst voltages carry a discretisation-error estimate (the solve at twice the "
-                "segment length, first-order Richardson, and the search on a map of twice the spacing); a limit "
+                "segment length, Richardson's estimate with the refinement ratio made and order p = "
+                f"{err.order:.2g}, and the search on a map of twice the spacing); a limit "
                 "inside that band makes the verdict marginal.")
     else:
         text = f"How sure: no discretisation-error estimate was made ({err.note})."
