@@ -245,3 +245,14 @@ def test_probe_outside_the_map_is_said(tmp_path):
                          capture_output=True, text=True)
     assert run.returncode == 0, run.stderr
     assert "lies outside the surface map" in " ".join(run.stdout.split())
+
+
+def test_burial_depth_in_millimetres_is_refused(tmp_path):
+    """depth: 600 (millimetres given as metres) is refused in one line naming the key and the fix."""
+    text = (ROOT / "cases" / "kestrel-bend-uniform.yaml").read_text()
+    assert "depth: 0.6, diameter: 0.0124}" in text
+    path = tmp_path / "d.yaml"
+    path.write_text(text.replace("depth: 0.6, diameter: 0.0124}", "depth: 600, diameter: 0.0124}", 1))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1
+    assert "grids[0].depth = 600 m is deeper than 50 m" in run.stderr and "0.6 for 600 mm" in run.stderr

@@ -30,6 +30,10 @@ _EXPONENT_NUMBER = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)[eE][-+]?\d+$")
 #: Most grids, conductors or rods one list may hold.
 MAX_LIST_ITEMS = 2000
 
+#: Deepest burial of horizontal metal accepted, m (grids and conductors lie within a few metres of the surface; deep
+#: electrodes are rods, whose length is checked on its own).
+MAX_BURIAL_DEPTH = 50.0
+
 
 class _DuplicateKey(Exception):
     def __init__(self, path: str, first: int, second: int):
@@ -238,9 +242,14 @@ class Checks:
         return length
 
     def depth(self, path: str, value: float) -> float:
+        """A burial depth of horizontal metal (grids, conductor ends), m: below the surface and not deeper than
+        MAX_BURIAL_DEPTH (a larger value is nearly always millimetres given as metres)."""
         if value <= 0:
             raise self.doc.fail(path, f"depth must be > 0 m (below the ground surface; z is positive downward), "
                                       f"got {value:g}; conductors above ground are not electrodes")
+        if value > MAX_BURIAL_DEPTH:
+            raise self.doc.fail(path, f"= {value:g} m is deeper than {MAX_BURIAL_DEPTH:g} m: give metres (e.g. "
+                                      f"{value / 1000:g} for {value:g} mm); deep electrodes are rods (electrodes.rods)")
         return value
 
     def name(self, path: str, value: Any) -> str:
