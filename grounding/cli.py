@@ -590,7 +590,7 @@ def fall_of_potential(case_file, start, rod, rod_length, rod_diameter, direction
     except GroundingError as exc:
         _fail(exc)
     if not quiet:
-        click.echo(fall_of_potential_text(prediction, fit))
+        click.echo(fall_of_potential_text(prediction, fit, measured))
     for path, _ in files:
         click.echo(f"Written: {path}")
 

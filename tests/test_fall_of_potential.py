@@ -132,3 +132,24 @@ def test_bad_readings_are_one_line_exit_2(tmp_path, text, words):
     readings.write_text(text)
     run = _cli(tmp_path, "--from", "60,30", "--current-at", "360,30", "--no-plan", "--measured", str(readings))
     assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1 and words in run.stderr, run.stderr
+
+
+def test_slope_method_recovers_an_offset_hemisphere_exactly():
+    """Tagg's slope method (IEEE Std 81) is exact for its own model: a hemisphere whose electrical centre lies X
+    behind the start, R(P) = R_T − ρ/2π·[1/(C + X) + 1/(P + X) − 1/(C − P)]."""
+    from grounding.study.fall_of_potential import slope_method
+    c, x, rt, k = 300.0, 25.0, 1.5, 100 / (2 * math.pi)
+    p = np.linspace(10, 290, 57)
+    sm = slope_method(p, rt - k * (1 / (c + x) + 1 / (p + x) - 1 / (c - p)), c)
+    assert sm.true_resistance == pytest.approx(rt, rel=1e-9)
+    assert 1 / (c + x) + 1 / (sm.probe_distance_for_true + x) == pytest.approx(1 / (c - sm.probe_distance_for_true))
+
+
+def test_slope_method_on_a_grid_beats_the_618_rule():
+    """On the 60 m grid with the current rod 300 m from its edge the slope method's estimate is nearer the true
+    value than the 61.8 % reading (the reason IEEE Std 81 gives it for large electrodes)."""
+    from grounding.study.fall_of_potential import slope_method
+    f = predict_test(parse_case(GRID), (60, 30), (360, 30), plan=False)
+    sm = slope_method(f.curve.distances, f.curve.apparent, f.curve.rod_distance)
+    assert abs(sm.true_resistance / f.true_resistance - 1) < abs(f.rule_618[2])
+    assert abs(sm.true_resistance / f.true_resistance - 1) < 0.01

@@ -7,13 +7,25 @@ import json
 import numpy as np
 
 from ..cautions import CAUTIONS
-from ..study.fall_of_potential import RULE_618, FallOfPotential, MeasuredFit
+from ..study.fall_of_potential import RULE_618, FallOfPotential, MeasuredFit, SlopeMethod, slope_method
 from ..version import __version__
 from .style import new_figure
 
 
 def _num(x, digits: int = 6):
     return None if x is None or not np.isfinite(x) else float(f"{x:.{digits}g}")
+
+
+def _slope(sm: SlopeMethod, true: float) -> dict:
+    return {"mu": _num(sm.mu), "true_resistance_ohm": _num(sm.true_resistance),
+            "probe_distance_for_true_m": _num(sm.probe_distance_for_true),
+            "error_fraction": None if sm.true_resistance is None else _num(sm.true_resistance / true - 1.0),
+            "note": sm.note or None}
+
+
+def _on_line(f: FallOfPotential) -> bool:
+    toward = np.degrees(np.arctan2(f.rod[1] - f.start[1], f.rod[0] - f.start[0]))
+    return abs((f.direction_deg - toward + 180) % 360 - 180) < 1e-9
 
 
 def fall_of_potential_dict(f: FallOfPotential, fit: MeasuredFit | None = None, measured=None) -> dict:
@@ -30,6 +42,8 @@ def fall_of_potential_dict(f: FallOfPotential, fit: MeasuredFit | None = None, m
         "rule_618": {"probe_distance_m": _num(d), "apparent_resistance_ohm": _num(f.rule_618[1]),
                      "error_fraction": _num(err)},
         "current_rod_distance_for": {f"{int(round(t * 100))}_percent_m": _num(v) for t, v in f.planning.items()},
+        "slope_method_on_prediction": _slope(slope_method(f.curve.distances, f.curve.apparent, f.curve.rod_distance),
+                                             f.true_resistance) if _on_line(f) else None,
         "notes": list(f.notes),
         "measured": None,
         "cautions": list(CAUTIONS),
@@ -42,7 +56,9 @@ def fall_of_potential_dict(f: FallOfPotential, fit: MeasuredFit | None = None, m
             "fitted_true_resistance_error_ohm": _num(fit.true_resistance_error),
             "residuals_ohm": [_num(x) for x in fit.residuals],
             "design_resistance_ohm": _num(f.true_resistance),
-            "measured_over_design": _num(fit.scale)}
+            "measured_over_design": _num(fit.scale),
+            "slope_method": _slope(slope_method(measured[0], measured[1], f.curve.rod_distance), fit.true_resistance)
+            if _on_line(f) else None}
     return out
 
 
@@ -58,7 +74,7 @@ def _off_line(f: FallOfPotential) -> str:
     return f" (on the line to the current rod; the traverse runs at {f.direction_deg:g}°)"
 
 
-def fall_of_potential_text(f: FallOfPotential, fit: MeasuredFit | None = None) -> str:
+def fall_of_potential_text(f: FallOfPotential, fit: MeasuredFit | None = None, measured=None) -> str:
     """The terminal summary."""
     d, r618, err = f.rule_618
     lines = [f"grounding {__version__} · fall-of-potential test (IEEE Std 81), predicted",
@@ -83,6 +99,16 @@ def fall_of_potential_text(f: FallOfPotential, fit: MeasuredFit | None = None) -
         lines.append(f"  Measured: resistivity scale {fit.scale:.3f} ± {fit.scale_error:.3f}; fitted true resistance "
                      f"{fit.true_resistance:.4f} ± {fit.true_resistance_error:.4f} Ω against the design "
                      f"{f.true_resistance:.4f} Ω ({(fit.scale - 1) * 100:+.1f} %)")
+        if measured is not None and _on_line(f):
+            sm = slope_method(measured[0], measured[1], f.curve.rod_distance)
+            lines.append("  Slope method on the readings: " + (sm.note if sm.true_resistance is None else
+                         f"μ = {sm.mu:.3f}, {sm.true_resistance:.4f} Ω read at {sm.probe_distance_for_true:.1f} m"))
+    if _on_line(f):
+        sm = slope_method(f.curve.distances, f.curve.apparent, f.curve.rod_distance)
+        if sm.true_resistance is not None:
+            lines.append(f"  Slope method (IEEE Std 81) on the predicted curve: μ = {sm.mu:.3f}, {sm.true_resistance:.4f} Ω "
+                         f"({(sm.true_resistance / f.true_resistance - 1) * 100:+.2f} %), read at "
+                         f"{sm.probe_distance_for_true:.1f} m")
     lines += [f"  Note: {n}" for n in f.notes]
     lines += [f"CAUTION: {c}" for c in CAUTIONS]
     return "\n".join(lines)

@@ -316,3 +316,63 @@ def parse_measured(text: str, file: str = "<readings>") -> tuple[np.ndarray, np.
     if len(d) < 3:
         raise CaseError(file, None, "", f"has {len(d)} readings; give at least 3 to fit a curve")
     return np.array(d), np.array(r)
+
+
+@dataclass(frozen=True)
+class SlopeMethod:
+    """The slope method of IEEE Std 81 (Tagg's): readings at 20, 40 and 60 % of the current-rod distance C give
+    μ = (R₃ − R₂)/(R₂ − R₁), and the hemispherical model behind the method gives where the true value is read.
+
+    Solved here from that model directly (not read from the printed table): an electrode whose electrical centre
+    lies X behind the start, current rod at C, gives R(P) = R_T − k·[1/(C + X) + 1/(P + X) − 1/(C − P)], three
+    unknowns R_T, k = ρ/2π and X fixed by the three readings.
+
+    Attributes
+    ----------
+    mu : float
+        The slope ratio.
+    true_resistance : float or None
+        R_T, Ω (None when μ lies outside what the model can give).
+    probe_distance_for_true : float or None
+        P_T, the probe distance (m) that reads R_T.
+    note : str
+        Why no estimate, when none.
+    """
+
+    mu: float
+    true_resistance: float | None
+    probe_distance_for_true: float | None
+    note: str = ""
+
+
+def slope_method(distances, resistances, rod_distance: float) -> SlopeMethod:
+    """The slope-method estimate from a measured curve (Ω at probe distances in m; see :class:`SlopeMethod`)."""
+    from scipy.optimize import brentq
+
+    d, r, c = np.asarray(distances, float), np.asarray(resistances, float), float(rod_distance)
+    at = np.array([0.2, 0.4, 0.6]) * c
+    if d[0] > at[0] + 1e-9 or d[-1] < at[-1] - 1e-9:
+        return SlopeMethod(float("nan"), None, None, "the readings do not span 20–60 % of the current-rod distance")
+    r1, r2, r3 = np.interp(at, d, r)
+    if r2 == r1:
+        return SlopeMethod(float("nan"), None, None, "the readings at 20 % and 40 % are equal")
+    mu = float((r3 - r2) / (r2 - r1))
+
+    def f(p, x):
+        return 1.0 / (c + x) + 1.0 / (p + x) - 1.0 / (c - p)
+
+    def mu_of(x):
+        f1, f2, f3 = (f(p, x) for p in at)
+        return (f3 - f2) / (f2 - f1)
+
+    lo, hi = 0.0, 100.0 * c
+    g_lo, g_hi = mu_of(lo) - mu, mu_of(hi) - mu
+    if g_lo * g_hi > 0:
+        return SlopeMethod(mu, None, None, f"μ = {mu:.3f} lies outside what the hemispherical model gives "
+                                           f"({mu_of(lo):.3f} to {mu_of(hi):.3f}); the curve has no usable slope")
+    x = brentq(lambda v: mu_of(v) - mu, lo, hi, xtol=1e-10 * c)
+    f1, f2 = f(at[0], x), f(at[1], x)
+    k = -(r2 - r1) / (f2 - f1)
+    true = float(r1 + k * f1)
+    pt = brentq(lambda p: f(p, x), 1e-9 * c, c * (1 - 1e-9))
+    return SlopeMethod(mu, true, float(pt))
