@@ -256,3 +256,18 @@ def test_burial_depth_in_millimetres_is_refused(tmp_path):
     run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
     assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1
     assert "grids[0].depth = 600 m is deeper than 50 m" in run.stderr and "0.6 for 600 mm" in run.stderr
+
+
+@pytest.mark.parametrize("soil, words, absent", [
+    ("soil: ", "soil must be a mapping of keys, got nothing (an empty value)", "NoneType"),
+    ("soil: {resistivity: " + str(list(range(1000))) + "}", "got [0, 1, 2,", "999"),
+])
+def test_refusals_speak_case_file_words_and_stay_short(tmp_path, soil, words, absent):
+    """Refusals name what a value is in the words of a case file (not Python's type names), and quote at most 80
+    characters of it (a list of 1 000 numbers is cut)."""
+    path = tmp_path / "c.yaml"
+    path.write_text(f"format: 1\n{soil}\nfault: {{current: 1000}}\n"
+                    "electrodes: {rods: [{top: [0, 0, 0.5], length: 3, diameter: 0.016}]}\n")
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1
+    assert words in run.stderr and absent not in run.stderr and len(run.stderr) < 400

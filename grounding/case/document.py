@@ -132,10 +132,29 @@ def as_number(value: Any) -> Any:
     return value
 
 
+def kind_of(value: Any) -> str:
+    """What a YAML value is, in the words of a case file (not Python's type names)."""
+    if value is None:
+        return "nothing (an empty value)"
+    if isinstance(value, bool):
+        return f"true/false ({str(value).lower()})"
+    if isinstance(value, (int, float)):
+        return f"a number ({fmt(value)})"
+    if isinstance(value, str):
+        return f"text ({value[:40]!r})"
+    if isinstance(value, list):
+        return f"a list of {len(value)}"
+    if isinstance(value, dict):
+        return "a mapping of keys"
+    return "a value of another kind"
+
+
 def fmt(value: Any) -> str:
+    """A value as quoted in a message; long ones (a list of 1 000 numbers) cut to 80 characters."""
     if isinstance(value, float):
         return f"{value:g}"
-    return repr(value) if isinstance(value, str) else str(value)
+    text = repr(value) if isinstance(value, str) else str(value)
+    return text if len(text) <= 80 else text[:77] + "…"
 
 
 class Checks:
@@ -148,7 +167,7 @@ class Checks:
     def mapping(self, path: str, value: Any, allowed: tuple[str, ...], required: tuple[str, ...] = ()) -> dict:
         if not isinstance(value, dict):
             what = "a mapping of keys" if path else "a YAML mapping (key: value lines)"
-            raise self.doc.fail(path, f"must be {what}, got {type(value).__name__}")
+            raise self.doc.fail(path, f"must be {what}, got {kind_of(value)}")
         for key in value:
             if key not in allowed:
                 key_path = f"{path}.{key}" if path else str(key)
@@ -217,7 +236,7 @@ class Checks:
         if value is None:
             return []
         if not isinstance(value, list):
-            raise self.doc.fail(path, f"must be a list, got {type(value).__name__}")
+            raise self.doc.fail(path, f"must be a list, got {kind_of(value)}")
         if len(value) > MAX_LIST_ITEMS:
             raise self.doc.fail(path, f"lists {len(value):,} items; at most {MAX_LIST_ITEMS:,} are accepted")
         return value
