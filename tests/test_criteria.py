@@ -186,3 +186,34 @@ def test_trade_size_in_a_case_and_kcmil_printed(tmp_path):
                               "diameter: 0.0134, cross_section: 4/0 gauge}]\n"))
     run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
     assert run.returncode == 2 and "is not a size this tool reads" in run.stderr
+
+
+def test_far_potentials_of_the_fault_current_paths():
+    """A cable's far-end earthing rises by its current through the remote earth resistance; a line's first tower
+    footing by the conducted current through the ladder beyond the first span, checked against a nodal solve of
+    the same ladder (numpy.linalg.solve as the independent reference)."""
+    import numpy as np
+
+    from grounding.case.model import CableScreenPath, ShieldWireLine, SplitNetwork
+    from grounding.safety.current_division import current_division
+    zs, rt, n, span = complex(1.2, 0.75) / 1000, 12.0, 30, 300.0
+    line = ShieldWireLine("line", n, span, zs, 0j, rt, 1.0)
+    cable = CableScreenPath("cable", 2500.0, complex(0.8, 0.2) / 1000, 1.5)
+    d = current_division(SplitNetwork((line,), (cable,)), complex(0.5, 0.0))
+    lp, cp = d.paths
+    conducted_c = cp.current                                     # no coupling on a cable: all of it conducted
+    assert cp.far_potential == pytest.approx(conducted_c * 1.5, rel=1e-12)
+    # nodal solve of the ladder driven by the line's conducted current (coupling 0 here: all of it)
+    z = zs * span
+    m = n + 1                                                    # node 0: the substation end; 1..n: towers
+    y = np.zeros((m, m), complex)
+    for k in range(n):
+        y[k, k] += 1 / z
+        y[k + 1, k + 1] += 1 / z
+        y[k, k + 1] -= 1 / z
+        y[k + 1, k] -= 1 / z
+        y[k + 1, k + 1] += 1 / rt
+    inject = np.zeros(m, complex)
+    inject[0] = lp.current
+    v = np.linalg.solve(y, inject)
+    assert lp.far_potential == pytest.approx(v[1], rel=1e-9)

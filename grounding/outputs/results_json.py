@@ -212,6 +212,7 @@ def _fault_split(r: StudyResult) -> dict | None:
             "method": "current division for shield wires of long lines (Endrenyi 1963; IEEE Std 80 annex on current "
                       "division)",
             "paths": [{"name": p.name, "kind": p.kind, "current_a": _num(abs(p.current) * fault_current),
+                       "far_potential_v": _num(abs(p.far_potential) * fault_current * r.decrement_factor),
                        "impedance_ohm": {"magnitude": _num(abs(p.impedance)),
                                          "angle_deg": _num(math.degrees(cmath.phase(p.impedance)))}}
                       for p in d.paths],

@@ -365,8 +365,10 @@ def study_summary(r: StudyResult, units: str = "si") -> str:
                             f"{flag}; equipotential model"))
     if r.current_division is not None:
         for p in r.current_division.paths:
+            far = abs(p.far_potential) * r.case.fault.current * r.decrement_factor
+            where = "far-end earthing" if p.kind == "cable" else "first tower"
             out.append(_row(f"  path {p.name}"[:26], f"{abs(p.current) * r.case.fault.current / 1000:.3f} kA",
-                            f"{p.kind}, |Z| {abs(p.impedance):.3g} Ω"))
+                            f"{p.kind}, |Z| {abs(p.impedance):.3g} Ω; {where} at about {_volts(far)}"))
 
     if r.convergence is not None:
         cv = r.convergence

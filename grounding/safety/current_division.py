@@ -40,12 +40,17 @@ def infinite_ladder_impedance(span: complex, footing: float) -> complex:
 
 @dataclass(frozen=True)
 class PathCurrent:
-    """One path's current per ampere of fault current (complex) and its impedance, Ω."""
+    """One path's current per ampere of fault current (complex) and its impedance, Ω; ``far_potential`` the
+    potential (V per ampere of fault current, complex) of where the path meets the earth away from this site:
+    a cable's far-end earthing (its current through the remote earth resistance), a line's first tower footing
+    (the current that leaves the shield wire into the footings, through the ladder beyond the first span) —
+    transferred potentials outside the grid that this study does not map."""
 
     name: str
     kind: str
     impedance: complex
     current: complex
+    far_potential: complex = 0j
 
 
 @dataclass(frozen=True)
@@ -76,23 +81,26 @@ class CurrentDivision:
 def current_division(network, grid_impedance: complex) -> CurrentDivision:
     """Divide the fault current between the grid and the lines and cables of a
     :class:`grounding.case.SplitNetwork` (see the module text)."""
-    paths, induced = [], []
+    paths, induced, beyond = [], [], []
     for line in network.lines:
         span = line.shield_impedance * line.span_length
         z = ladder_impedance(span, line.footing_resistance, line.spans)
         kappa = line.coupling / line.shield_impedance
         paths.append(PathCurrent(line.name, "line", z, 0j))
         induced.append(kappa * line.share)
+        beyond.append(z - span)                          # the ladder seen from the first tower
     for cable in network.cables:
         paths.append(PathCurrent(cable.name, "cable", cable.screen_impedance * cable.length +
                                  cable.remote_earth_resistance, 0j))
+        beyond.append(complex(cable.remote_earth_resistance))
     rest = 1.0 - sum(induced)
     admittance = 1.0 / grid_impedance + sum(1.0 / p.impedance for p in paths)
     grid = rest / grid_impedance / admittance
     out = []
     for k, p in enumerate(paths):
         own = induced[k] if k < len(induced) else 0.0
-        out.append(PathCurrent(p.name, p.kind, p.impedance, own + rest / p.impedance / admittance))
+        conducted = rest / p.impedance / admittance          # the part that reaches the earth along the path
+        out.append(PathCurrent(p.name, p.kind, p.impedance, own + conducted, conducted * beyond[k]))
     names = "; ".join(f"{p.name} ({p.kind}) |Z| {abs(p.impedance):.3g} Ω" for p in out)
     basis = (f"Sf = |I_g / I_f| = {abs(grid):.3f} from the current-division method for shield wires (Endrenyi 1963, "
              f"as in the IEEE Std 80 annex on current division): Zg {abs(grid_impedance):.3g} Ω in parallel with "

@@ -321,6 +321,16 @@ def _run_condition(case: Case, progress, estimate_error: bool, units: dict, scre
             warnings.append(f"the sounding's largest spacing ({largest:g} m) is shorter than the site's diagonal "
                             f"({diagonal:.0f} m): the deep soil that governs Rg of a site this size is not measured "
                             "(common practice: spacings up to about the diagonal of the grid)")
+    if division is not None:
+        lowest = min(z.tolerable_touch for z in zones)
+        for p in division.paths:
+            far = abs(p.far_potential) * fault.current * df
+            if far > lowest:
+                where = "its far-end earthing" if p.kind == "cable" else "its first tower footing"
+                warnings.append(f"TRANSFERRED POTENTIAL: {p.kind} '{p.name}' carries {abs(p.current) * fault.current / 1000:.2f} "
+                                f"kA; {where} rises to about {far:,.0f} V (Df·3I0 through the path's own earthing), "
+                                f"above this study's lowest tolerable touch voltage ({lowest:,.0f} V): that place is "
+                                "outside this study; check its touch and step voltages there")
     drop = unit.drop
     if drop is not None and drop.fraction is not None and drop.estimated and drop.fraction > DROP_WARNING:
         x, y, _ = drop.feed
