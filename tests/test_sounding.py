@@ -203,3 +203,20 @@ def test_repeated_column_refused():
 
     with pytest.raises(CaseError, match="appears twice in the header"):
         parse_readings("traverse,spacing,resistance,traverse\neast,1,20,north\neast,2,9,north\n", "r.csv")
+
+
+def test_absurd_reading_is_refused_in_one_line_without_warnings(tmp_path):
+    """A reading of 1.7e308 Ω (fuzz finding) overflowed the fit with warnings on stderr; now one line, exit 2."""
+    import subprocess
+    import sys
+    from pathlib import Path
+    src = (Path(__file__).resolve().parents[1] / "cases" / "kestrel-bend-wenner.csv").read_text().splitlines()
+    head = [i for i, line in enumerate(src) if line.startswith("east,")][1]
+    parts = src[head].split(",")
+    parts[2] = "1.7e308"
+    src[head] = ",".join(parts)
+    path = tmp_path / "w.csv"
+    path.write_text("\n".join(src) + "\n")
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "soil", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1, run.stderr
+    assert "beyond the 1e+07 Ω·m" in run.stderr and "Warning" not in run.stderr

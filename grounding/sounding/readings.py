@@ -20,6 +20,9 @@ from ..textfile import read_user_text
 from .forward import schlumberger_geometric_factor, wenner_geometric_factor
 
 WENNER, SCHLUMBERGER = "wenner", "schlumberger"
+#: Largest apparent resistivity accepted, Ω·m (dry rock and ice reach about 10⁵–10⁶ Ω·m; a larger value is a
+#: misread or a wrong unit, and would overflow the fit).
+MAX_APPARENT_RESISTIVITY = 1e7
 KNOWN_COLUMNS = ("spacing", "current_half_spacing", "potential_half_spacing", "resistance", "apparent_resistivity",
                  "probe_depth", "traverse")
 #: Probe depth below which the simple 2πaR form is used (fraction of the spacing).
@@ -165,13 +168,20 @@ def parse_readings(text: str, file: str = "<readings>", array: str | None = None
         rho_a, conversion = get("apparent_resistivity"), "apparent resistivity given in the file"
     else:
         R = get("resistance")
-        if array == SCHLUMBERGER:
-            rho_a, conversion = R * schlumberger_geometric_factor(spacing, half), "π (L² − l²)/(2l) · R"
-        elif "probe_depth" in columns and np.any(get("probe_depth") > SHALLOW_PROBE * spacing):
-            rho_a = R * wenner_geometric_factor(spacing, get("probe_depth"))
-            conversion = "full four-pin factor with probe depth (IEEE Std 81)"
-        else:
-            rho_a, conversion = 2 * np.pi * spacing * R, "2π a R (probe depth small against spacing)"
+        with np.errstate(over="ignore", invalid="ignore"):   # an absurd reading is refused below, not warned about
+            if array == SCHLUMBERGER:
+                rho_a, conversion = R * schlumberger_geometric_factor(spacing, half), "π (L² − l²)/(2l) · R"
+            elif "probe_depth" in columns and np.any(get("probe_depth") > SHALLOW_PROBE * spacing):
+                rho_a = R * wenner_geometric_factor(spacing, get("probe_depth"))
+                conversion = "full four-pin factor with probe depth (IEEE Std 81)"
+            else:
+                rho_a, conversion = 2 * np.pi * spacing * R, "2π a R (probe depth small against spacing)"
+    implausible = np.flatnonzero(~np.isfinite(rho_a) | (rho_a > MAX_APPARENT_RESISTIVITY))
+    if len(implausible):
+        k = implausible[0]
+        raise CaseError(file, rows[k], "row", f"gives an apparent resistivity of {rho_a[k]:.3g} Ω·m, beyond the "
+                                              f"{MAX_APPARENT_RESISTIVITY:.0e} Ω·m of dry rock and ice: check the "
+                                              "reading and its unit (Ω, not mΩ or kΩ)")
     notes = _repeated_spacings(spacing, half, rho_a, traverse, rows)
     return Readings(array, spacing, half, rho_a, traverse, tuple(rows), conversion, tuple(notes), file, sha256)
 
