@@ -271,3 +271,14 @@ def test_refusals_speak_case_file_words_and_stay_short(tmp_path, soil, words, ab
     run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
     assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1
     assert words in run.stderr and absent not in run.stderr and len(run.stderr) < 400
+
+
+def test_case_file_of_50000_rods_is_refused_at_once(tmp_path):
+    """Fuzz finding: 50 000 rods kept `check` busy for a minute; a file that long is refused before parsing (the
+    message names the line count, which only the early check gives)."""
+    path = tmp_path / "rods.yaml"
+    rows = "".join(f"    - {{top: [{i % 250 * 2}, {i // 250 * 2}, 0.5], length: 3, diameter: 0.016}}\n" for i in range(50_000))
+    path.write_text("format: 1\nsoil: {resistivity: 100}\nfault: {current: 1000}\nelectrodes:\n  rods:\n" + rows)
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1
+    assert "has 50,006 lines; a case file is at most 20,000 lines" in run.stderr

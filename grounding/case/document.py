@@ -29,6 +29,8 @@ UNIT_RANGES = {"m": (-1e4, 1e4), "Ω·m": (1e-2, 1e6), "A": (0.0, 1e6), "Hz": (0
 _EXPONENT_NUMBER = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)[eE][-+]?\d+$")
 #: Most grids, conductors or rods one list may hold.
 MAX_LIST_ITEMS = 2000
+#: Longest case file read, lines (several lists of MAX_LIST_ITEMS one-line items and their comments fit).
+MAX_CASE_LINES = 20_000
 
 #: Deepest burial of horizontal metal accepted, m (grids and conductors lie within a few metres of the surface; deep
 #: electrodes are rods, whose length is checked on its own).
@@ -59,6 +61,11 @@ class Document:
 
     @classmethod
     def parse(cls, text: str, file: str) -> "Document":
+        lines_in_file = text.count("\n") + 1
+        if lines_in_file > MAX_CASE_LINES:               # refused before the (slow) parse of a file this long
+            raise CaseError(file, None, "", f"has {lines_in_file:,} lines; a case file is at most {MAX_CASE_LINES:,} "
+                                            f"lines (lists hold at most {MAX_LIST_ITEMS:,} items): give large layouts "
+                                            "as grids or as a DXF drawing (electrodes.drawing)")
         try:
             node = yaml.compose(text, Loader=yaml.SafeLoader)
             data = yaml.safe_load(text)
