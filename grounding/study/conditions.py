@@ -224,7 +224,7 @@ def study_conditions(case: Case, progress: Progress | None = None, estimate_erro
     -------
     StudyResult
     """
-    units = {} if unit is None else {solve_key(case): (unit, SolveOrigin("", "shared", "the unit given"))}
+    units = {} if unit is None else {solve_key(case): (unit, SolveOrigin("", "shared", "an earlier study with the same solve key"))}
     t0 = time.perf_counter()
     name = case.base_scenario if case.scenarios else "the case"
     base = _run_condition(case, progress, estimate_error, units, screen_drop, name, cache)

@@ -259,7 +259,7 @@ class SolveOrigin:
         if self.origin == "cache":
             return f"solve reused (key {short}, kept from an earlier study)"
         if self.origin == "shared":
-            return f"solve shared with '{self.shared_with}' (key {short})"
+            return f"solve shared with '{self.shared_with}'" + (f" (key {short})" if short else "")
         return f"solved (key {short})"
 
 
