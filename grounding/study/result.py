@@ -386,35 +386,42 @@ class StudyResult:
         return bool(self.conductor.ok and all(c.passes for c in self.criteria))
 
     def failures(self) -> list[str]:
-        """Every criterion that fails, in words, with the scenario, zone or element that fails it (empty when all
-        pass)."""
+        """Every criterion that fails, in words, with the zone, element and scenarios that fail it (empty when all
+        pass); a criterion failing in several scenarios is named once with all of them."""
         names = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
         out = []
         for name, check in (("touch", self.touch_check), ("step", self.step_check), ("mesh", self.mesh_check)):
             if check.ok is False:
                 where = [f"zone '{check.zone}'"] if check.zone else []
-                where += [f"scenario '{check.scenario}'"] if check.scenario else []
+                where += [f"governing scenario '{check.scenario}'"] if check.scenario else []
                 out.append(f"{name} voltage" + (f" ({', '.join(where)})" if where else "")
                            + ("" if check.worst is not None else ": evaluated nowhere"))
+        grouped: dict[str, list[str]] = {}                  # failure in words → the scenarios it fails in
         for r in (self.scenarios or (self,)):
             for c in r.criteria:
+                standard = names.get(c.standard, c.standard)
                 for e in c.separate:
                     if not e.touch.ok:
-                        text = f"touch near '{e.name}' ({names.get(c.standard, c.standard)}" + (f", scenario '{r.scenario}')" if r.scenario else ")")
-                        if text not in out:
-                            out.append(text)
-            if len(r.criteria) > 1:
-                for c in r.criteria[1:]:
+                        grouped.setdefault(f"touch near '{e.name}' under {standard}", []).append(r.scenario)
+                if c is not r.criteria[0]:
                     for name, check in (("touch", c.touch), ("step", c.step), ("mesh", c.mesh)):
                         if check.ok is False:
-                            text = f"{name} voltage under {names.get(c.standard, c.standard)}" + (f" (scenario '{r.scenario}')" if r.scenario else "")
-                            if text not in out:
-                                out.append(text)
-        for r in (self.scenarios or (self,)):
+                            grouped.setdefault(f"{name} voltage under {standard}", []).append(r.scenario)
             cc = r.conductor
             if not cc.ok:
-                out.append(f"conductor sizing ({cc.element or 'the conductors'}: {cc.required_area_mm2:.1f} mm² needed, "
-                           f"{cc.actual_area_mm2:.1f} mm² installed" + (f", scenario '{r.scenario}')" if r.scenario else ")"))
+                grouped.setdefault(f"conductor sizing ({cc.element or 'the conductors'}: "
+                                   f"{cc.actual_area_mm2:.1f} mm² installed", []).append(
+                    f"{r.scenario}: {cc.required_area_mm2:.1f} mm² needed" if r.scenario else
+                    f"{cc.required_area_mm2:.1f} mm² needed")
+        for text, where in grouped.items():
+            scen = [w for w in where if w]
+            if text.startswith("conductor sizing"):
+                out.append(f"{text}; {'; '.join(scen)})")
+            elif scen and self.scenarios and len(scen) == len(self.scenarios):
+                out.append(f"{text} (every scenario)")
+            else:
+                out.append(text + (f" (scenario{'s' if len(scen) > 1 else ''} {', '.join(repr(w) for w in scen)})"
+                                   if scen else ""))
         return out
 
     @property
