@@ -94,3 +94,30 @@ def test_a_2200_segment_study_runs_within_2_gb_of_address_space(tmp_path):
     else:
         assert "2200 segments" in run.stdout
     assert "Traceback" not in run.stderr and "internal error" not in run.stderr
+
+
+def test_memory_refusal_suggests_a_segment_length_that_fits(monkeypatch):
+    """The refusal's suggested max_segment is checked by segmenting: a case with it passes the same check (the
+    402 000-segment grid once got 'at least 1 m', the value it already had)."""
+    import re
+    from dataclasses import replace
+
+    import grounding.solve.policy as policy
+    from grounding.case.load import parse_case
+    from grounding.errors import ModelTooLargeError
+    from grounding.geometry.segments import segment
+    case = parse_case("""format: 1
+soil: {resistivity: 100}
+fault: {current: 1000, clearing_time: 0.5}
+electrodes:
+  grids: [{origin: [0, 0], size: [200, 200], meshes: [40, 40], depth: 0.5, diameter: 0.012}]
+discretization: {max_segment: 0.5, solver: iterative}
+""")
+    need = policy.solver_memory_bytes("iterative", len(segment(case)))
+    monkeypatch.setattr(policy, "available_memory", lambda: 0.6 * need / policy.MEMORY_SHARE)
+    with pytest.raises(ModelTooLargeError) as refusal:
+        policy.check_model_size(case, segment(case))
+    h = float(re.search(r"max_segment of at least ([0-9.]+) m", str(refusal.value)).group(1))
+    assert h > 0.5
+    fixed = replace(case, discretization=replace(case.discretization, max_segment=h))
+    policy.check_model_size(fixed, segment(fixed))                       # accepted

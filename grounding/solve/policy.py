@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import os
 
 import numpy as np
@@ -9,7 +10,7 @@ import numpy as np
 from ..case.model import Case
 from ..errors import ModelTooLargeError
 from ..geometry.plan import map_size
-from ..geometry.segments import Segments
+from ..geometry.segments import Segments, segment
 from ..operators.assembly import matrix_memory_bytes
 from ..operators.mutual_resistance import compressed_memory_bytes
 
@@ -45,6 +46,28 @@ def solver_memory_bytes(kind: str, n_segments: int) -> int:
     return matrix_memory_bytes(n_segments) if kind == "dense" else compressed_memory_bytes(n_segments)
 
 
+def _round_up(x: float) -> float:
+    """``x`` rounded up to two significant figures."""
+    e = math.floor(math.log10(x)) - 1
+    return math.ceil(x / 10 ** e - 1e-9) * 10 ** e
+
+
+def _fitting_segment_length(case: Case, ratio: float, limit: float) -> float:
+    """The shortest max_segment (m, two significant figures, rounded up) whose segments the solver fits in
+    ``limit`` bytes, checked by segmenting (pieces shorter than the length do not split, so the count is not simply
+    inverse to it); starts from the current length times ``ratio``."""
+    from dataclasses import replace
+
+    h = _round_up(case.discretization.max_segment * ratio)
+    for _ in range(24):
+        trial = replace(case, discretization=replace(case.discretization, max_segment=h))
+        n = len(segment(trial))
+        if solver_memory_bytes(solver_kind(trial, n), n) <= limit:
+            return h
+        h = _round_up(h * 1.1)
+    return h
+
+
 def check_model_size(case: Case, segments: Segments) -> None:
     """Refuse a discretisation whose solver would not fit in memory, saying what each solver would need."""
     n = len(segments)
@@ -57,7 +80,7 @@ def check_model_size(case: Case, segments: Segments) -> None:
         if kind == "dense" and compressed <= limit:
             fix = "use discretization.solver: iterative (or auto)"
         else:
-            fix = f"use max_segment of at least {case.discretization.max_segment * need / limit:.2g} m"
+            fix = f"use max_segment of at least {_fitting_segment_length(case, need / limit, limit):g} m"
         raise ModelTooLargeError(
             f"{case.source}: discretization.max_segment = {case.discretization.max_segment:g} m gives {n:,} "
             f"segments; the {kind} solve would need {need / gib:.1f} GiB (dense: {dense / gib:.1f} GiB, iterative: "
