@@ -23,11 +23,6 @@ def _slope(sm: SlopeMethod, true: float) -> dict:
             "note": sm.note or None}
 
 
-def _on_line(f: FallOfPotential) -> bool:
-    toward = np.degrees(np.arctan2(f.rod[1] - f.start[1], f.rod[0] - f.start[0]))
-    return abs((f.direction_deg - toward + 180) % 360 - 180) < 1e-9
-
-
 def fall_of_potential_dict(f: FallOfPotential, fit: MeasuredFit | None = None, measured=None) -> dict:
     """The JSON document (see docs/fall-of-potential.md)."""
     d, err = f.rule_618[0], f.rule_618[2]
@@ -43,7 +38,7 @@ def fall_of_potential_dict(f: FallOfPotential, fit: MeasuredFit | None = None, m
                      "error_fraction": _num(err)},
         "current_rod_distance_for": {f"{int(round(t * 100))}_percent_m": _num(v) for t, v in f.planning.items()},
         "slope_method_on_prediction": _slope(slope_method(f.curve.distances, f.curve.apparent, f.curve.rod_distance),
-                                             f.true_resistance) if _on_line(f) else None,
+                                             f.true_resistance) if f.along_rod else None,
         "notes": list(f.notes),
         "measured": None,
         "cautions": list(CAUTIONS),
@@ -58,7 +53,7 @@ def fall_of_potential_dict(f: FallOfPotential, fit: MeasuredFit | None = None, m
             "design_resistance_ohm": _num(f.true_resistance),
             "measured_over_design": _num(fit.scale),
             "slope_method": _slope(slope_method(measured[0], measured[1], f.curve.rod_distance), fit.true_resistance)
-            if _on_line(f) else None}
+            if f.along_rod else None}
     return out
 
 
@@ -68,10 +63,7 @@ def fall_of_potential_json(f: FallOfPotential, fit=None, measured=None) -> bytes
 
 def _off_line(f: FallOfPotential) -> str:
     """Words for a traverse that does not run toward the current rod (the 61.8 % reading is taken on that line)."""
-    toward = np.degrees(np.arctan2(f.rod[1] - f.start[1], f.rod[0] - f.start[0]))
-    if abs((f.direction_deg - toward + 180) % 360 - 180) < 1e-9:
-        return ""
-    return f" (on the line to the current rod; the traverse runs at {f.direction_deg:g}°)"
+    return "" if f.along_rod else f" (on the line to the current rod; the traverse runs at {f.direction_deg:g}°)"
 
 
 def fall_of_potential_text(f: FallOfPotential, fit: MeasuredFit | None = None, measured=None) -> str:
@@ -99,11 +91,11 @@ def fall_of_potential_text(f: FallOfPotential, fit: MeasuredFit | None = None, m
         lines.append(f"  Measured: resistivity scale {fit.scale:.3f} ± {fit.scale_error:.3f}; fitted true resistance "
                      f"{fit.true_resistance:.4f} ± {fit.true_resistance_error:.4f} Ω against the design "
                      f"{f.true_resistance:.4f} Ω ({(fit.scale - 1) * 100:+.1f} %)")
-        if measured is not None and _on_line(f):
+        if measured is not None and f.along_rod:
             sm = slope_method(measured[0], measured[1], f.curve.rod_distance)
             lines.append("  Slope method on the readings: " + (sm.note if sm.true_resistance is None else
                          f"μ = {sm.mu:.3f}, {sm.true_resistance:.4f} Ω read at {sm.probe_distance_for_true:.1f} m"))
-    if _on_line(f):
+    if f.along_rod:
         sm = slope_method(f.curve.distances, f.curve.apparent, f.curve.rod_distance)
         if sm.true_resistance is not None:
             lines.append(f"  Slope method (IEEE Std 81) on the predicted curve: μ = {sm.mu:.3f}, {sm.true_resistance:.4f} Ω "
@@ -120,8 +112,7 @@ def fall_of_potential_figure(f: FallOfPotential, fit: MeasuredFit | None = None,
     ax.plot(f.curve.distances, f.curve.apparent, color="#1f3b73", lw=1.6, label="predicted apparent resistance")
     ax.axhline(f.true_resistance, color="#4d4d4d", lw=1.0, ls="--", label=f"true Rg {f.true_resistance:.3f} Ω")
     d, r618, err = f.rule_618
-    toward = np.degrees(np.arctan2(f.rod[1] - f.start[1], f.rod[0] - f.start[0]))
-    where = "" if abs((f.direction_deg - toward + 180) % 360 - 180) < 1e-9 else " (on the line to the current rod)"
+    where = "" if f.along_rod else " (on the line to the current rod)"
     ax.plot([d], [r618], "o", color="#b35806", label=f"61.8 % point{where}: {r618:.3f} Ω ({err * 100:+.2f} %)")
     if f.probe_distance_for_true is not None:
         ax.axvline(f.probe_distance_for_true, color="#7f7f7f", lw=0.8, ls=":",

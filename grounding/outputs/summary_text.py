@@ -7,6 +7,7 @@ import math
 import textwrap
 
 from ..cautions import CAUTIONS
+from ..safety.site import STANDARD_NAMES
 from ..study.result import StudyResult
 from ..version import __version__
 from .style import volts
@@ -125,7 +126,7 @@ def safety_lines(r: StudyResult) -> list[str]:
         err = "" if check.error is None else _volts(check.error)
         verdict = _verdict(check.ok) + ("?" if check.limit_within_error else "")
         if check.limit is None:
-            where.append(f"no {name.split()[0].lower()} limit in {_STANDARD_NAMES.get(check.standard, check.standard)}")
+            where.append(f"no {name.split()[0].lower()} limit in {STANDARD_NAMES.get(check.standard, check.standard)}")
         return (f"  {name:<15}{_volts(check.worst.value):>10}{err:>9}{_volts(check.limit):>11}{margin:>8}  "
                 f"{verdict:<9}{_at(check.worst)}" + (f"  {', '.join(where)}" if where else ""))
 
@@ -207,9 +208,6 @@ def safety_lines(r: StudyResult) -> list[str]:
     return out
 
 
-_STANDARD_NAMES = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
-
-
 def standard_heading(r: StudyResult) -> str:
     """How the summary's verdicts are judged, in words."""
     f = r.case.fault
@@ -222,7 +220,7 @@ def other_criteria_lines(r: StudyResult) -> list[str]:
     """The verdicts of every further standard asked for, beside the first."""
     out = []
     for c in r.criteria[1:]:
-        out.append(f"  Also judged by {_STANDARD_NAMES[c.standard]} (its own verdicts):")
+        out.append(f"  Also judged by {STANDARD_NAMES[c.standard]} (its own verdicts):")
         for name, check in (("touch", c.touch), ("step", c.step), ("mesh", c.mesh)):
             if check.worst is None:
                 continue
@@ -233,7 +231,7 @@ def other_criteria_lines(r: StudyResult) -> list[str]:
             if e.touch.worst is not None:
                 out.append(f"    touch near {e.name}: {_volts(e.touch.worst.value)} / {_volts(e.touch.limit)}  "
                            f"{_verdict(e.touch.ok)}")
-        out.append(f"    all {_STANDARD_NAMES[c.standard]} criteria: {'PASS' if c.passes else 'FAIL'}")
+        out.append(f"    all {STANDARD_NAMES[c.standard]} criteria: {'PASS' if c.passes else 'FAIL'}")
     return out
 
 
@@ -326,7 +324,7 @@ def study_summary(r: StudyResult, units: str = "si") -> str:
     if f.split_basis:
         out.extend(textwrap.wrap(f.split_basis, WIDTH - 4, initial_indent="    ", subsequent_indent="    "))
     out.append(_row("Durations", f"tf = {f.clearing_time:g} s", f"ts = {f.shock_duration:g} s (body current)"))
-    out.append(_row("Criteria", " + ".join(_STANDARD_NAMES[x] for x in c.criteria.standards),
+    out.append(_row("Criteria", " + ".join(STANDARD_NAMES[x] for x in c.criteria.standards),
                     f"{c.criteria.body_weight} kg (IEEE Std 80)" if "ieee80" in c.criteria.standards else
                     f"footwear {c.criteria.footwear_resistance:g} Ω"))
     rods = r.segments.is_rod

@@ -14,6 +14,9 @@ from ..surface.results import Extreme, ZoneExtremes
 from .en50522 import DEFAULT_FOOTWEAR, prospective_touch_voltage
 from .ieee80 import Limits, tolerable_limits
 
+#: The standards' names as printed.
+STANDARD_NAMES = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
+
 
 @dataclass(frozen=True)
 class ZoneVerdict:

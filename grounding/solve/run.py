@@ -24,6 +24,12 @@ from .policy import check_model_size, solver_kind, solver_memory_bytes
 Progress = Callable[[str, float], None]
 
 
+def build_operator(case: Case, segments: Segments, kernel: SoilKernel, progress: Progress | None = None):
+    """The mutual-resistance operator the case's solver policy chooses: dense, or compressed."""
+    build = dense_operator if solver_kind(case, len(segments)) == "dense" else compressed_operator
+    return build(segments, kernel, AssemblyOptions(), progress)
+
+
 def solve_case(case: Case, progress: Progress | None = None):
     """Segment, assemble and solve one discretisation; returns (segments, kernel, solution, timings)."""
     segments = segment(case)
@@ -33,9 +39,8 @@ def solve_case(case: Case, progress: Progress | None = None):
         return _solve_with_impedance(case, segments, kernel, progress)
     t0 = time.perf_counter()
     kind = solver_kind(case, len(segments))
-    build = dense_operator if kind == "dense" else compressed_operator
     try:
-        operator = build(segments, kernel, AssemblyOptions(), progress)
+        operator = build_operator(case, segments, kernel, progress)
         t1 = time.perf_counter()
         solution = solve_operator(operator, segments.group, connections(case), progress)
     except MemoryError:

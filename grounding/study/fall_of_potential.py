@@ -23,12 +23,10 @@ from ..case.model import Case, Rod, SeparateElectrode
 from ..errors import GroundingError
 from ..geometry.segments import segment
 from ..kernels import make_kernel
-from ..operators.assembly import AssemblyOptions
-from ..operators.mutual_resistance import compressed_operator, dense_operator
 from ..operators.potential import SurfacePotential
 from ..solve.equipotential import solve_operator
-from ..solve.policy import check_model_size, solver_kind
-from ..solve.run import connections, solve_case
+from ..solve.policy import check_model_size
+from ..solve.run import build_operator, connections, solve_case
 
 #: Name of the current rod added to the case.
 ROD_NAME = "test current rod"
@@ -87,6 +85,12 @@ class FallOfPotential:
     planning: dict
     notes: tuple[str, ...]
 
+    @property
+    def along_rod(self) -> bool:
+        """Whether the traverse runs toward the current rod (else the 61.8 % reading is taken on that line)."""
+        toward = math.degrees(math.atan2(self.rod[1] - self.start[1], self.rod[0] - self.start[0]))
+        return abs((self.direction_deg - toward + 180) % 360 - 180) < 1e-9
+
 
 def with_current_rod(case: Case, rod_xy: tuple[float, float], length: float, diameter: float) -> Case:
     """The case with the test current rod added as a separate electrode (its own potential group), without
@@ -96,22 +100,21 @@ def with_current_rod(case: Case, rod_xy: tuple[float, float], length: float, dia
     return replace(case, separate_electrodes=tuple(case.separate_electrodes) + (extra,), scenarios=())
 
 
-def _operator(case: Case, segments):
-    check_model_size(case, segments)
-    kernel = make_kernel(case.soil, case.discretization.max_segment)
-    build = dense_operator if solver_kind(case, len(segments)) == "dense" else compressed_operator
-    return kernel, build(segments, kernel, AssemblyOptions())
+def _refuse_impedance(case: Case) -> None:
+    if case.electrodes.conductor_impedance:
+        raise GroundingError(f"{case.source}: the fall-of-potential prediction treats the grid as one equipotential; "
+                             "set electrodes.conductor_impedance: false for it")
 
 
 def traverse_currents(case: Case, rod_xy, length: float, diameter: float):
     """Segments, kernel, segment currents (A) and the grid's and rod's potentials (V) when +1 A enters the grid
     and leaves by the current rod."""
-    if case.electrodes.conductor_impedance:
-        raise GroundingError(f"{case.source}: the fall-of-potential prediction treats the grid as one equipotential; "
-                             "set electrodes.conductor_impedance: false for it")
+    _refuse_impedance(case)
     test = with_current_rod(case, rod_xy, length, diameter)
     segments = segment(test)
-    kernel, operator = _operator(test, segments)
+    check_model_size(test, segments)
+    kernel = make_kernel(test.soil, test.discretization.max_segment)
+    operator = build_operator(test, segments, kernel)
     conn = connections(test)
     k = len(conn) - 1                                     # the rod's group
     grid_on = solve_operator(operator, segments.group, conn)
@@ -157,9 +160,7 @@ def check_test_layout(case: Case, start, rod_xy, probes, direction_deg) -> None:
     """Refuse a test layout the prediction cannot stand behind: a current rod inside (or within 2 m of) the
     grid's footprint, a probe at or beyond the current rod, a probe distance that is not positive."""
     import shapely
-    if case.electrodes.conductor_impedance:
-        raise GroundingError(f"{case.source}: the fall-of-potential prediction treats the grid as one equipotential; "
-                             "set electrodes.conductor_impedance: false for it")
+    _refuse_impedance(case)
     seg = segment(replace(case, separate_electrodes=(), scenarios=()))
     hull = shapely.MultiPoint(np.vstack([seg.start[:, :2], seg.end[:, :2]])).convex_hull
     if hull.buffer(2.0).contains(shapely.Point(rod_xy)):

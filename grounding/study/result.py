@@ -14,7 +14,7 @@ from ..safety.conductor import ConductorCheck
 from ..safety.current_division import CurrentDivision
 from ..safety.ieee80 import Limits
 from ..safety.simplified import SimplifiedResult
-from ..safety.site import Check, CriteriaResult, SeparateResult, ZoneVerdict
+from ..safety.site import STANDARD_NAMES, Check, CriteriaResult, SeparateResult, ZoneVerdict
 from ..solve.equipotential import Solution
 from ..surface.results import SurfaceResult
 
@@ -388,7 +388,7 @@ class StudyResult:
     def failures(self) -> list[str]:
         """Every criterion that fails, in words, with the zone, element and scenarios that fail it (empty when all
         pass); a criterion failing in several scenarios is named once with all of them."""
-        names = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
+        names = STANDARD_NAMES
         out = []
         for name, check in (("touch", self.touch_check), ("step", self.step_check), ("mesh", self.mesh_check)):
             if check.ok is False:

@@ -50,9 +50,10 @@ def verdict_rows(r: StudyResult, st):
 def criteria_story(r: StudyResult, st, P) -> list:
     """The standards the study was judged by: EN 50522's basis and every further standard's verdicts."""
     from ...safety.en50522 import UTP_TABLE
+    from ...safety.site import STANDARD_NAMES
 
     out = []
-    names = {"ieee80": "IEEE Std 80", "en50522": "EN 50522"}
+    names = STANDARD_NAMES
     for c in r.criteria:
         if c.standard == "en50522":
             b = c.zones[[z.name for z in c.zones].index(c.touch.zone)].limits.basis
