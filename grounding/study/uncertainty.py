@@ -135,6 +135,11 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None, cache=None) -
         level += "; kept from an earlier run"
     # the limits move with the top soil (Cs, EN 50522's standing resistance): differenced directly, no solve
     base_limits = watch.values(case, limits_only=True)
+    nudged_limits = []                                    # the limits with each parameter nudged (no solve)
+    for j in range(len(x0)):
+        x = x0.copy()
+        x[j] += LOG_STEP
+        nudged_limits.append(watch.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True))
     out = {}
     for k in QUANTITIES:
         s = np.array(sens[k], float)
@@ -146,12 +151,7 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None, cache=None) -
         prob = None
         ratio = watch.ratio(k) if k in ("touch", "step", "mesh") else None
         if ratio is not None:
-            s_limit = []
-            for j in range(len(x0)):
-                x = x0.copy()
-                x[j] += LOG_STEP
-                nudged = watch.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True)
-                s_limit.append(_log_difference(base_limits[f"{k}_limit"], nudged[f"{k}_limit"]))
+            s_limit = [_log_difference(base_limits[f"{k}_limit"], n[f"{k}_limit"]) for n in nudged_limits]
             sr = s - np.array(s_limit)
             if np.all(np.isfinite(sr)):
                 slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
