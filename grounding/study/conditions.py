@@ -224,7 +224,8 @@ def study_conditions(case: Case, progress: Progress | None = None, estimate_erro
     -------
     StudyResult
     """
-    units = {} if unit is None else {solve_key(case): (unit, SolveOrigin("", "shared", "an earlier study with the same solve key"))}
+    given = SolveOrigin("", "shared", "an earlier study with the same solve key")
+    units = {} if unit is None else {solve_key(case): (unit, given)}
     t0 = time.perf_counter()
     name = case.base_scenario if case.scenarios else "the case"
     base = _run_condition(case, progress, estimate_error, units, screen_drop, name, cache)

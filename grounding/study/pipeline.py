@@ -20,32 +20,18 @@ __all__ = ["run_study", "solve_geometry", "solve_key", "combine_scenarios", "Uni
 def run_study(case: Case, progress: Progress | None = None, estimate_error: bool = True,
               unit: UnitStudy | None = None, screen_drop: bool = True, uncertainty: bool = True,
               cache=None) -> StudyResult:
-    """Run a whole study: the case as written, every scenario of it, and its soil uncertainty.
-
-    With scenarios, the result is the case as written with ``scenarios`` holding every scenario's result
-    (itself first) and the touch, step and mesh checks replaced by the governing (least margin) scenario's;
-    a criterion passes only if it passes in every scenario. Scenarios share the solve where the soil,
-    geometry, surface zones and map are equal (see :class:`~grounding.study.conditions.SolveKey`).
+    """Run a whole study: the case as written, every scenario of it (:func:`~grounding.study.conditions.study_conditions`,
+    whose parameters these are), and its soil uncertainty.
 
     Parameters
     ----------
-    case : Case
-        A validated case (see :func:`grounding.load_case`).
-    progress : callable, optional
-        Called as progress(stage, fraction) during long stages.
-    estimate_error : bool
-        Also solve at twice the segment length to estimate the discretisation error of Rg.
-    unit : UnitStudy, optional
-        A solution of the same geometry (``solve_key`` equal) to re-use instead of solving again.
-    screen_drop : bool
-        Screen the potential drop along the metal (equipotential studies).
+    case, progress, estimate_error, unit, screen_drop, cache
+        As for :func:`~grounding.study.conditions.study_conditions` (``cache``: solves and soil-uncertainty
+        sensitivities kept between runs, a :class:`~grounding.study.cache.SolveCache`; None solves everything).
     uncertainty : bool
         Carry the soil's parameter uncertainty (``soil.uncertainty`` or a fitted sounding's covariance) to the
         results (:func:`~grounding.study.uncertainty.propagate_soil_uncertainty`); ``result.uncertainty`` is
         None without it or when the case gives no uncertainty.
-    cache : SolveCache, optional
-        Solves (and soil-uncertainty sensitivities) kept between runs (:class:`~grounding.study.cache.SolveCache`);
-        None: solve everything.
 
     Returns
     -------
