@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import time
 from dataclasses import replace
 from typing import Callable
 
@@ -9,6 +10,7 @@ from ..case.model import Case
 from ..errors import ModelTooLargeError
 from ..geometry.segments import segment
 from ..solve.policy import check_model_size
+from .cache import MemoryCache
 from .pipeline import run_study
 from .result import Convergence, ConvergenceRound, StudyResult
 
@@ -71,16 +73,13 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
     final study reuses the last round's solves (``cache``, or one held in memory). ``say`` receives one line per
     round (plan and outcome).
     """
-    import time as _time
-
-    from .cache import MemoryCache
-    start = _time.perf_counter()
+    start = time.perf_counter()
     cache = cache if cache is not None else MemoryCache()     # the final study reuses the last round's solves
     say = say or (lambda _text: None)
     h, res = case.discretization.max_segment, case.surface.resolution
-    t0 = _time.perf_counter()
+    t0 = time.perf_counter()
     current = run_study(case, uncertainty=False, cache=cache)
-    times = [_time.perf_counter() - t0]
+    times = [time.perf_counter() - t0]
     narrowed = focus(case, current)
     rounds = [_round(current)]
     say(f"converge round 1: max_segment {h:g} m, map {res:g} m, {rounds[0].segments:,} segments: {times[0]:.1f} s")
@@ -98,7 +97,7 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
             break
         growth = times[-1] / times[-2] if len(times) >= 2 and times[-2] > 0 else FIRST_GROWTH
         predicted = times[-1] * max(growth, 1.0)
-        elapsed = _time.perf_counter() - start
+        elapsed = time.perf_counter() - start
         if max_time is not None and elapsed + 1.5 * predicted > max_time:   # the final full study needs time too
             note = (f"stopped before round {k} ({h / 2:g} m segments, {n:,} of them; map {res / 2:g} m): predicted "
                     f"{predicted:.0f} s from the last round's {times[-1]:.1f} s, which with the final study would end "
@@ -106,9 +105,9 @@ def converge_study(case: Case, tolerance: float = 0.01, max_rounds: int = 5,
             break
         say(f"converge round {k}: max_segment {h / 2:g} m, map {res / 2:g} m, {n:,} segments, predicted {predicted:.0f} s")
         h, res = h / 2, res / 2
-        t0 = _time.perf_counter()
+        t0 = time.perf_counter()
         current = run_study(trial, uncertainty=False, cache=cache)
-        times.append(_time.perf_counter() - t0)
+        times.append(time.perf_counter() - t0)
         rounds.append(_round(current))
         change = _change(rounds[-2], rounds[-1])
         say(f"converge round {k}: {times[-1]:.1f} s, worst voltages changed by {change * 100:.2f} %")
