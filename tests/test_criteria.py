@@ -38,10 +38,12 @@ def test_utp_interpolation_is_log_log_and_monotone():
 
 def test_prospective_limit_with_additional_resistances():
     """U_vTp = U_Tp + (R_a1 + 1.5 ρs) U_Tp / Z_B(U_Tp) (EN 50522 Annex B, recalled from memory); hand calculation
-    at 0.5 s: Z_B(220 V) = 1200 − (20/25)·75 = 1140 Ω (IEC/TS 60479-1 Table 1, recalled), R_a = 1000 + 4500 Ω."""
+    at 0.5 s: Z_B(220 V) = 1275 − (20/25)·50 = 1235 Ω (IEC/TS 60479-1 Table 1, a reviewer's recollection: 1 275 Ω
+    at 200 V, 1 225 Ω at 225 V, larger than the tool's former 1 200 / 1 125 Ω and so the conservative one),
+    R_a = 1000 + 4500 Ω."""
     b = prospective_touch_voltage(0.5, 1000.0, 3000.0)
-    assert b.body_impedance_ohm == pytest.approx(1140.0)
-    assert b.prospective_touch_voltage_v == pytest.approx(220 + 5500 * 220 / 1140, rel=1e-12)
+    assert b.body_impedance_ohm == pytest.approx(1235.0)
+    assert b.prospective_touch_voltage_v == pytest.approx(220 + 5500 * 220 / 1235, rel=1e-12)
     assert prospective_touch_voltage(0.5, 0.0, 0.0).prospective_touch_voltage_v == pytest.approx(220.0)
     assert prospective_touch_voltage(0.5, 2000.0, 3000.0).prospective_touch_voltage_v > b.prospective_touch_voltage_v
     assert prospective_touch_voltage(0.5, 1000.0, 5000.0).prospective_touch_voltage_v > b.prospective_touch_voltage_v

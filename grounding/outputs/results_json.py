@@ -67,7 +67,7 @@ def _zones(r: StudyResult) -> list[dict]:
 
 def _criteria(r: StudyResult) -> list[dict]:
     """One entry per standard asked for; the first one's verdicts are the summary's."""
-    from ..safety.en50522 import UTP_TABLE
+    from ..safety.en50522 import BODY_IMPEDANCE_BASIS, BODY_IMPEDANCE_TABLE, UTP_TABLE
 
     out = []
     for c in r.criteria:
@@ -81,8 +81,10 @@ def _criteria(r: StudyResult) -> list[dict]:
                      "surface_resistance_ohm": _num(b.surface_resistance_ohm),
                      "body_impedance_ohm": _num(b.body_impedance_ohm), "body_current_a": _num(b.body_current_a),
                      "curve": [{"fault_duration_s": t, "permissible_touch_voltage_v": u} for t, u in UTP_TABLE],
-                     "sources": "U_Tp: EN 50522 Annex B; Z_B: IEC/TS 60479-1 Table 1 (hand to hand, 50 %, dry); "
-                                "values recalled from memory, check against the standards"}
+                     "body_impedance_table": [{"touch_voltage_v": v, "body_impedance_ohm": z}
+                                              for v, z in BODY_IMPEDANCE_TABLE],
+                     "sources": f"U_Tp: EN 50522 Annex B, recalled from memory; Z_B: {BODY_IMPEDANCE_BASIS}; "
+                                "check both against the standards"}
         elif c.zones:
             lim = c.zones[[z.name for z in c.zones].index(c.touch.zone)].limits
             basis = {"surface_layer_factor_cs": _num(lim.cs), "surface_resistivity_ohm_m": _num(lim.surface_resistivity),

@@ -29,10 +29,25 @@ import numpy as np
 UTP_TABLE = ((0.05, 716.0), (0.1, 654.0), (0.2, 537.0), (0.5, 220.0), (1.0, 117.0), (2.0, 96.0), (5.0, 86.0),
              (10.0, 85.0))
 #: Total body impedance (Ω) against touch voltage (V), hand to hand, large contact areas, dry, 50 %
-#: percentile, IEC/TS 60479-1 Table 1 (recalled from memory); above 1000 V the asymptotic 650 Ω.
-BODY_IMPEDANCE_TABLE = ((25.0, 3250.0), (50.0, 2625.0), (75.0, 2200.0), (100.0, 1875.0), (125.0, 1625.0),
-                        (150.0, 1425.0), (175.0, 1300.0), (200.0, 1200.0), (225.0, 1125.0), (400.0, 950.0),
-                        (500.0, 850.0), (700.0, 775.0), (1000.0, 775.0))
+#: percentile, IEC/TS 60479-1 Table 1: two recollections (from memory, neither checked against the standard)
+#: that disagree between 50 and 225 V. The first was this tool's table until 2026-12; the second a reviewer's
+#: (1 275 Ω at 200 V, 1 225 Ω at 225 V).
+BODY_IMPEDANCE_RECOLLECTIONS = (
+    ((25.0, 3250.0), (50.0, 2625.0), (75.0, 2200.0), (100.0, 1875.0), (125.0, 1625.0), (150.0, 1425.0),
+     (175.0, 1300.0), (200.0, 1200.0), (225.0, 1125.0), (400.0, 950.0), (500.0, 850.0), (700.0, 775.0),
+     (1000.0, 775.0)),
+    ((25.0, 3250.0), (50.0, 2500.0), (75.0, 2000.0), (100.0, 1725.0), (125.0, 1550.0), (150.0, 1400.0),
+     (175.0, 1325.0), (200.0, 1275.0), (225.0, 1225.0), (400.0, 950.0), (500.0, 850.0), (700.0, 775.0),
+     (1000.0, 775.0)),
+)
+#: The table used: at every voltage the larger of the two recollections. A larger Z_B gives a smaller body
+#: current U_Tp/Z_B and so a smaller allowance for the footwear and the surface: the conservative side until
+#: someone checks the standard. Above 1000 V the asymptotic 650 Ω.
+BODY_IMPEDANCE_TABLE = tuple((a[0], max(a[1], b[1])) for a, b in zip(*BODY_IMPEDANCE_RECOLLECTIONS, strict=True))
+#: How the table was chosen, printed beside the limits.
+BODY_IMPEDANCE_BASIS = ("IEC/TS 60479-1 Table 1 (hand to hand, large contact areas, dry, 50 % of the population), "
+                        "recalled from memory: where two recollections disagree (50–225 V) the larger Z_B, the "
+                        "conservative one, is used until the table is checked against the standard")
 BODY_IMPEDANCE_ASYMPTOTE = 650.0
 #: Default footwear resistance R_a1, Ω (EN 50522 Annex B, worn wet shoes).
 DEFAULT_FOOTWEAR = 1000.0

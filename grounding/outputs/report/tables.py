@@ -49,7 +49,7 @@ def verdict_rows(r: StudyResult, st):
 
 def criteria_story(r: StudyResult, st, P) -> list:
     """The standards the study was judged by: EN 50522's basis and every further standard's verdicts."""
-    from ...safety.en50522 import UTP_TABLE
+    from ...safety.en50522 import BODY_IMPEDANCE_BASIS, UTP_TABLE
     from ...safety.site import STANDARD_NAMES
 
     out = []
@@ -60,7 +60,7 @@ def criteria_story(r: StudyResult, st, P) -> list:
             curve = ", ".join(f"{t:g} s: {u:g} V" for t, u in UTP_TABLE)
             out.append(P(f"EN 50522: permissible touch voltage U_Tp = {volts(b.permissible_touch_voltage_v)} for tf = "
                          f"{b.fault_duration_s:g} s (log–log interpolation of the curve {curve}); body impedance Z_B = "
-                         f"{b.body_impedance_ohm:,.0f} Ω (IEC/TS 60479-1 Table 1, hand to hand, 50 %, dry), body "
+                         f"{b.body_impedance_ohm:,.0f} Ω ({BODY_IMPEDANCE_BASIS}), body "
                          f"current {b.body_current_a * 1000:.0f} mA; additional resistance R_a = footwear "
                          f"{b.footwear_resistance_ohm:,.0f} Ω + 1.5 m⁻¹ · ρs = {b.surface_resistance_ohm:,.0f} Ω; "
                          f"prospective permissible touch voltage U_vTp = {volts(b.prospective_touch_voltage_v)} in the "
