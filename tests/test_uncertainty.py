@@ -207,6 +207,21 @@ def test_sensitivities_at_twice_the_segment_length_agree(monkeypatch):
         assert coarse.quantities[key].sigma_log == pytest.approx(fine.quantities[key].sigma_log, rel=0.05), key
 
 
+def test_sensitivities_at_four_times_the_segment_length_agree(monkeypatch):
+    """Where the model at four times the segment length keeps uncertainty.COARSE_FLOOR segments the sensitivities
+    are taken there; on the two-layer grid forced to do so σ(log) agrees with the study's own level within 5 %."""
+    import grounding.study.uncertainty as U
+    case = parse_case(MC_GRID)
+    r = run_study(case, estimate_error=False, uncertainty=False)
+    fine = U.propagate_soil_uncertainty(r)
+    monkeypatch.setattr(U, "COARSE_FROM", 10)
+    monkeypatch.setattr(U, "COARSE_FLOOR", 10)
+    coarse = U.propagate_soil_uncertainty(r)
+    assert "four times" in coarse.level
+    for key in ("grid_resistance", "touch", "step", "mesh"):
+        assert coarse.quantities[key].sigma_log == pytest.approx(fine.quantities[key].sigma_log, rel=0.05), key
+
+
 @pytest.mark.parametrize("value", ["0", "1", "-0.1", "1.5"])
 def test_bad_uncertainty_one_line_exit_2(tmp_path, value):
     path = tmp_path / "u.yaml"

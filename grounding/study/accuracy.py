@@ -33,14 +33,16 @@ def richardson_factor(fine_segments: int, coarse_segments: int, rod_share: float
 
 def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int,
                                   surface: SurfaceResult | None = None,
-                                  rod_share: float = 0.0) -> tuple[DiscretizationError, SurfaceResult | None]:
+                                  rod_share: float = 0.0,
+                                  solve=solve_case) -> tuple[DiscretizationError, SurfaceResult | None]:
     """Second solve at twice the segment length (about an eighth of the cost) and Richardson's estimate
     of the error of Rg (:func:`richardson_factor`); with the unit ``surface`` of the fine solve, also the worst
     voltages of every zone re-evaluated at the same points from the coarse solve (``Extreme.segment_check``).
-    ``rod_share``: the rods' share of the leakage current, which sets the order."""
+    ``rod_share``: the rods' share of the leakage current, which sets the order; ``solve``: called as
+    ``solve(case)`` like :func:`~grounding.solve.run.solve_case` (a run's shared coarse solves)."""
     coarse_case = replace(case, discretization=replace(case.discretization,
                                                             max_segment=2 * case.discretization.max_segment))
-    segments, kernel, coarse, _ = solve_case(coarse_case)
+    segments, kernel, coarse, _ = solve(coarse_case)
     if len(segments) >= fine_segments:
         return DiscretizationError(coarse.resistance, None, None,
                                    "not estimated: doubling max_segment does not change the segments "

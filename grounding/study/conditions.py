@@ -166,10 +166,31 @@ def rod_share(segments: Segments, solution: Solution) -> float:
     return float(i[main & segments.is_rod].sum()) / total if total > 0 else 0.0
 
 
+class CoarseSolves:
+    """The solves of one run at a discretisation other than the study's own, by solve key, each made once: the
+    error estimate's solve at twice the segment length is also the soil-uncertainty propagation's base on large
+    models. Called like :func:`~grounding.solve.run.solve_case`; kept only for the run (small: coarse
+    segments, kernel and solution)."""
+
+    def __init__(self):
+        self._kept: dict = {}
+
+    def kept(self, case: Case) -> bool:
+        """Whether this run already solved ``case``'s discretisation."""
+        return solve_key(case) in self._kept
+
+    def __call__(self, case: Case, progress: Progress | None = None):
+        key = solve_key(case)
+        if key not in self._kept:
+            self._kept[key] = solve_case(case, progress)
+        return self._kept[key]
+
+
 def solve_geometry(case: Case, progress: Progress | None = None, estimate_error: bool = True,
-                   screen_drop: bool = True) -> UnitStudy:
+                   screen_drop: bool = True, coarse: CoarseSolves | None = None) -> UnitStudy:
     """Solve the electrodes at 1 V and map the surface; see :class:`UnitStudy`. ``screen_drop``: also screen
-    the potential drop along the metal of an equipotential study (:func:`estimate_metal_drop`)."""
+    the potential drop along the metal of an equipotential study (:func:`estimate_metal_drop`); ``coarse``:
+    the run's coarser solves, shared with other stages (a new set when None)."""
     segments, kernel, solution, timings = solve_case(case, progress)
     t0 = time.perf_counter()
     if progress:
@@ -188,14 +209,15 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
         if progress:
             progress("error estimate", 0.0)
         error, surface = estimate_discretization_error(case, solution, len(segments), surface,
-                                                       rod_share(segments, solution))
+                                                       rod_share(segments, solution), coarse or solve_case)
     else:
         error = DiscretizationError(None, None, None, "not requested")
     return UnitStudy(segments, kernel, solution, surface, error, timings, drop)
 
 
 def study_conditions(case: Case, progress: Progress | None = None, estimate_error: bool = True,
-                     unit: UnitStudy | None = None, screen_drop: bool = True, cache=None) -> StudyResult:
+                     unit: UnitStudy | None = None, screen_drop: bool = True, cache=None,
+                     coarse: CoarseSolves | None = None) -> StudyResult:
     """The case as written and every scenario of it, without the soil-uncertainty propagation.
 
     With scenarios, the result is the case as written with ``scenarios`` holding every scenario's result
@@ -219,6 +241,8 @@ def study_conditions(case: Case, progress: Progress | None = None, estimate_erro
         the soil-uncertainty propagation, which need only the voltages.
     cache : SolveCache, optional
         Solves kept between runs (:mod:`grounding.study.cache`): looked up before solving, filled after.
+    coarse : CoarseSolves, optional
+        The run's solves at other discretisations (the error estimates'), to share with later stages.
 
     Returns
     -------
@@ -228,18 +252,20 @@ def study_conditions(case: Case, progress: Progress | None = None, estimate_erro
     units = {} if unit is None else {solve_key(case): (unit, given)}
     t0 = time.perf_counter()
     name = case.base_scenario if case.scenarios else "the case"
-    base = _run_condition(case, progress, estimate_error, units, screen_drop, name, cache)
+    coarse = CoarseSolves() if coarse is None else coarse
+    base = _run_condition(case, progress, estimate_error, units, screen_drop, name, cache, coarse)
     if not case.scenarios:
         return base
     results = [_named(base, case.base_scenario, time.perf_counter() - t0)]
     for sc in case.scenarios:
         t0 = time.perf_counter()
-        r = _run_condition(sc.case, progress, estimate_error, units, screen_drop, sc.name, cache)
+        r = _run_condition(sc.case, progress, estimate_error, units, screen_drop, sc.name, cache, coarse)
         results.append(_named(r, sc.name, time.perf_counter() - t0))
     return combine_scenarios(results)
 
 
-def _unit_for(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool, name: str, cache):
+def _unit_for(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool, name: str, cache,
+              coarse: CoarseSolves | None = None):
     """The UnitStudy of a condition and where it came from: shared with an earlier condition, kept from an earlier
     run, or solved now (and then kept)."""
     key = solve_key(case)
@@ -254,7 +280,7 @@ def _unit_for(case: Case, progress, estimate_error: bool, units: dict, screen_dr
         unit = None if parts is None else UnitStudy(*parts)
     origin = "cache" if unit is not None else "solved"
     if unit is None:
-        unit = solve_geometry(case, progress, estimate_error, screen_drop)
+        unit = solve_geometry(case, progress, estimate_error, screen_drop, coarse)
         if cache is not None and not why_not:
             cache.put(content, unit)
     units[key] = (unit, SolveOrigin(content, "shared", name))
@@ -296,9 +322,9 @@ def grid_current(case: Case, solution: Solution):
 
 
 def _run_condition(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool = True,
-                   name: str = "the case", cache=None) -> StudyResult:
+                   name: str = "the case", cache=None, coarse: CoarseSolves | None = None) -> StudyResult:
     """One condition: solve (or re-use the solve of an equal geometry, or a kept one) and judge."""
-    unit, origin = _unit_for(case, progress, estimate_error, units, screen_drop, name, cache)
+    unit, origin = _unit_for(case, progress, estimate_error, units, screen_drop, name, cache, coarse)
     segments, solution = unit.segments, unit.solution
     case, df, ig, division = grid_current(case, solution)
     fault = case.fault

@@ -10,7 +10,15 @@ from __future__ import annotations
 from dataclasses import replace
 
 from ..case.model import Case
-from .conditions import Progress, UnitStudy, combine_scenarios, solve_geometry, solve_key, study_conditions
+from .conditions import (
+    CoarseSolves,
+    Progress,
+    UnitStudy,
+    combine_scenarios,
+    solve_geometry,
+    solve_key,
+    study_conditions,
+)
 from .result import StudyResult
 from .uncertainty import propagate_soil_uncertainty
 
@@ -37,7 +45,8 @@ def run_study(case: Case, progress: Progress | None = None, estimate_error: bool
     -------
     StudyResult
     """
-    result = study_conditions(case, progress, estimate_error, unit, screen_drop, cache)
+    coarse = CoarseSolves()             # the error estimate's coarse solve is the uncertainty's base on large models
+    result = study_conditions(case, progress, estimate_error, unit, screen_drop, cache, coarse)
     if not uncertainty:
         return result
-    return replace(result, uncertainty=propagate_soil_uncertainty(result, progress, cache))
+    return replace(result, uncertainty=propagate_soil_uncertainty(result, progress, cache, coarse))
