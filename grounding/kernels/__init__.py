@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 
 from ..case.model import Soil
 from .base import ImageTerms, RadialTable, SoilKernel
@@ -17,6 +18,11 @@ SERIES_TOLERANCE = 1e-6
 MAX_IMAGE_ORDERS = 1000
 #: Images closer than this many segment lengths are integrated exactly over segments.
 EXACT_IMAGE_REACH = 3.0
+
+
+#: Kernels kept for re-use: the last two soils (a kernel holds its radial tables: 181 MB for the benchmark yard's
+#: three-layer soil with its fence posts and pipe, a few MB for flat grids).
+KEPT_KERNELS = 2
 
 
 def make_kernel(soil: Soil, max_segment: float = 1.0, tolerance: float = SERIES_TOLERANCE) -> SoilKernel:
@@ -39,8 +45,17 @@ def make_kernel(soil: Soil, max_segment: float = 1.0, tolerance: float = SERIES_
     if len(layers) == 2 and series_order(_reflection(layers), tolerance) <= MAX_IMAGE_ORDERS:
         h = layers[0].thickness
         near = max(1, math.ceil(EXACT_IMAGE_REACH * max_segment / (2 * h)))
-        return TwoLayerSoil(layers[0].resistivity, layers[1].resistivity, h, tolerance, near)
-    return LayeredSoil([l.resistivity for l in layers], [l.thickness for l in layers[:-1]])
+        return _kept(TwoLayerSoil, layers[0].resistivity, layers[1].resistivity, h, tolerance, near)
+    return _kept(LayeredSoil, tuple(l.resistivity for l in layers), tuple(l.thickness for l in layers[:-1]))
+
+
+@lru_cache(maxsize=KEPT_KERNELS)
+def _kept(kind, *parameters) -> SoilKernel:
+    """One kernel object per soil (and image reach) for the last few soils: a kernel fills its radial tables as
+    they are needed (the Hankel transforms of a layered soil cost about a second on a large yard), so the study's
+    own solve, the error estimate's coarser one, the metal-drop screen and scenarios with the same soil share
+    them. A kernel's results depend only on its parameters, so sharing it changes no number."""
+    return kind(*parameters)
 
 
 def _reflection(layers) -> float:
