@@ -157,6 +157,42 @@ def test_native_zone_limits_are_dalziel_with_cs_one():
     assert r.touch_ok == all(z.ok("touch") is not False for z in r.zones)
 
 
+def test_zone_body_weight_sets_that_zones_limits(tmp_path):
+    """surface_zones[].body_weight: a zone for the public outside the fence judged with Dalziel's 50 kg constant
+    (k = 0.116, IEEE Std 80, recalled from memory) while the rest keeps criteria.body_weight (70 kg, k = 0.157)."""
+    zones = """\
+        surface_zones:
+          - {name: rock, polygon: [[-0.5, -0.5], [20.5, -0.5], [20.5, 20.5], [-0.5, 20.5]], resistivity: 3000,
+             thickness: 0.1}
+          - {name: public, polygon: [[-8, -8], [28, -8], [28, -3], [-8, -3]], resistivity: null%s}
+        surface: {resolution: 0.5}
+        """
+    plain = run_study(_grid_case(zones % ""), estimate_error=False)
+    light = run_study(_grid_case(zones % ", body_weight: 50"), estimate_error=False)
+    public = light.zones[1]
+    assert public.body_weight == 50 and light.zones[0].body_weight == 70 and light.zones[-1].body_weight == 70
+    t = math.sqrt(0.5)
+    assert public.tolerable_touch == pytest.approx((1000 + 1.5 * 200) * DALZIEL_K[50] / t, rel=1e-12)
+    assert public.tolerable_step == pytest.approx((1000 + 6 * 200) * DALZIEL_K[50] / t, rel=1e-12)
+    assert plain.zones[1].tolerable_touch == pytest.approx((1000 + 1.5 * 200) * DALZIEL_K[70] / t, rel=1e-12)
+    # the same voltages, judged against the lighter body's lower limit
+    assert public.extremes.step.value == pytest.approx(plain.zones[1].extremes.step.value, rel=1e-12)
+    assert public.ok("step") == (public.extremes.step.value <= public.tolerable_step)
+    assert light.body_weights == "70 kg; 50 kg in public"
+    from grounding.outputs.results_json import results_dict
+    from grounding.outputs.summary_text import study_summary
+    doc = results_dict(light)
+    listed = doc["summary"]["zones"] if "summary" in doc else doc["zones"]
+    assert [z["body_weight_kg"] for z in listed] == [70, 50, 70]
+    assert "public (50 kg)" in study_summary(light)
+    bad = tmp_path / "bad.yaml"
+    bad.write_text(case_text(GRID, soil="{resistivity: 200}", fault=FAULT,
+                             extra=textwrap.dedent(zones % ", body_weight: 60")))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(bad)], capture_output=True, text=True)
+    assert run.returncode == 2 and "surface_zones[1].body_weight" in run.stderr and "50 or 70" in run.stderr
+    assert len(run.stderr.strip().splitlines()) == 1
+
+
 def test_step_with_feet_in_two_zones_takes_the_more_severe_limit():
     """The zone boundary runs through the rod: steps across it belong to the native soil (lower limit),
     so the native zone sees the largest step and the rock zone only steps wholly on rock."""

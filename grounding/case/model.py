@@ -105,12 +105,20 @@ class SurfaceZone:
         The covering; None means people stand on the native soil (Cs = 1).
     key : str
         Key path in the case file, for messages.
+    body_weight : int or None
+        kg (50 or 70) of the people the zone's limits are for (e.g. 50 kg for the public outside the fence);
+        None: the criteria's body weight.
     """
 
     name: str
     area: Area | None
     layer: SurfaceLayer | None
     key: str = ""
+    body_weight: int | None = None
+
+    def weight(self, default: int) -> int:
+        """The body weight the zone's verdicts use, kg."""
+        return default if self.body_weight is None else self.body_weight
 
 
 @dataclass(frozen=True)

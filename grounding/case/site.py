@@ -79,8 +79,12 @@ class SiteSections(Checks):
         zones, names = [], {}
         for i, item in enumerate(items):
             p = f"surface_zones[{i}]"
-            m = self.mapping(p, item, ("name", "polygon", "holes", "resistivity", "thickness"),
+            m = self.mapping(p, item, ("name", "polygon", "holes", "resistivity", "thickness", "body_weight"),
                              ("name", "polygon", "resistivity"))
+            weight = m.get("body_weight")
+            if weight is not None and (isinstance(weight, bool) or weight not in (50, 70)):
+                raise self.doc.fail(f"{p}.body_weight", f"must be 50 or 70 (kg, IEEE Std 80), got {fmt(weight)}; "
+                                                        "leave it out to use criteria.body_weight")
             name = self.name(f"{p}.name", m["name"])
             if name == NATIVE_ZONE:
                 raise self.doc.fail(f"{p}.name", f"'{NATIVE_ZONE}' names the soil outside every zone; choose "
@@ -89,7 +93,8 @@ class SiteSections(Checks):
                 raise self.doc.fail(f"{p}.name", f"'{name}' is already the name of surface_zones[{names[name]}]; "
                                                  "give each zone its own name")
             names[name] = i
-            zones.append(SurfaceZone(name, self.area(p, m), self.layer(p, m), p))
+            zones.append(SurfaceZone(name, self.area(p, m), self.layer(p, m), p,
+                                     None if weight is None else int(weight)))
         polys = [shapely_polygon(z.area) for z in zones]
         for i in range(len(zones)):
             for j in range(i):

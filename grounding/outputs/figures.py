@@ -244,7 +244,7 @@ def touch_figure(r: StudyResult) -> Rendered:
     _mark(ax, worst, f"worst {worst.value:,.0f} V")
     verdict = "PASS" if r.touch_ok else "FAIL (hatched: above the limit)"
     where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
-    ax.set_title(f"Touch voltage; {where} ({r.body_weight} kg, red line); {verdict}{_as_written(r)}", fontsize=9)
+    ax.set_title(f"Touch voltage; {where} ({r.body_weights}, red line); {verdict}{_as_written(r)}", fontsize=9)
     fig.tight_layout()
     return Rendered("touch", "Touch voltage", fig, worst.value)
 
@@ -268,7 +268,7 @@ def step_figure(r: StudyResult) -> Rendered:
         ax.set_title("Step voltage (the standard sets no step limit; reported only)", fontsize=9)
     else:
         where = f"tolerable {limit:,.0f} V" if len(r.zones) == 1 else "tolerable per zone"
-        ax.set_title(f"Step voltage; {where} ({r.body_weight} kg); {'PASS' if r.step_ok else 'FAIL'}{_as_written(r)}",
+        ax.set_title(f"Step voltage; {where} ({r.body_weights}); {'PASS' if r.step_ok else 'FAIL'}{_as_written(r)}",
                      fontsize=9)
     fig.tight_layout()
     return Rendered("step", "Step voltage", fig, worst.value)

@@ -55,7 +55,7 @@ def _zones(r: StudyResult) -> list[dict]:
         out.append({"name": z.name,
                     "surface_layer": None if layer is None else {"resistivity_ohm_m": layer.resistivity,
                                                                  "thickness_m": layer.thickness},
-                    "surface_layer_factor_cs": _num(z.limits.cs),
+                    "surface_layer_factor_cs": _num(z.limits.cs), "body_weight_kg": z.body_weight,
                     "tolerable_touch_voltage_v": _num(z.tolerable_touch),
                     "tolerable_step_voltage_v": _num(z.tolerable_step),
                     "max_touch_voltage_v": _value(e.touch), "max_touch_at": _at(e.touch),

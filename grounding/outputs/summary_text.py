@@ -100,7 +100,8 @@ def safety_lines(r: StudyResult) -> list[str]:
         out.append(f"    {'zone':<22}{'covering':<22}{'Cs':>6}{'touch limit':>13}{'step limit':>12}")
         for z in r.zones:
             cs = "—" if z.limits.standard == "en50522" else f"{z.limits.cs:.3f}"
-            out.append(f"    {z.name[:21]:<22}{covering_text(z.zone)[:21]:<22}{cs:>6}"
+            name = z.name if z.zone.body_weight is None else f"{z.name} ({z.body_weight} kg)"
+            out.append(f"    {name[:21]:<22}{covering_text(z.zone)[:21]:<22}{cs:>6}"
                        f"{_volts(z.tolerable_touch):>13}{_volts(z.tolerable_step):>12}")
     else:
         z = r.zones[0]
@@ -213,7 +214,7 @@ def standard_heading(r: StudyResult) -> str:
     f = r.case.fault
     if r.case.criteria.standards[0] == "en50522":
         return f"Safety (EN 50522, tf = {f.shock_duration:g} s, footwear {r.case.criteria.footwear_resistance:g} Ω)"
-    return f"Safety (IEEE Std 80, {r.body_weight} kg, ts = {f.shock_duration:g} s)"
+    return f"Safety (IEEE Std 80, {r.body_weights}, ts = {f.shock_duration:g} s)"
 
 
 def other_criteria_lines(r: StudyResult) -> list[str]:

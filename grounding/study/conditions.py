@@ -37,12 +37,15 @@ Progress = Callable[[str, float], None]
 
 
 def zone_severity(case: Case) -> tuple[int, ...]:
-    """Rank of each surface zone's severity (0 the most lenient; equal limits, equal rank), by Cs·ρs: a lower
-    Cs·ρs gives a lower limit. The order of the IEEE Std 80 limits does not depend on body weight or shock
-    duration, and the surface stage only compares severities, so coverings that keep this order give the same
-    surface results."""
+    """Rank of each surface zone's severity (0 the most lenient; equal limits, equal rank), by the IEEE Std 80
+    touch limit at 1 s with the zone's body weight: a lower Cs·ρs or a lighter body gives a lower limit. The
+    order does not depend on the shock duration (nor, with one body weight, on the weight), and the surface stage
+    only compares severities (which zone a point on a shared edge, or a step across it, belongs to), so
+    coverings that keep this order give the same surface results. With body weights per zone the step limits'
+    order may differ from the touch limits'; the touch order is used."""
     limits = zone_limits(case.soil.top_resistivity, case.zones, 1.0)
-    values = [-lim.cs * lim.surface_resistivity for lim in limits]
+    weight = case.criteria.body_weight
+    values = [-lim.touch[z.weight(weight)] for z, lim in zip(case.zones, limits)]
     distinct = sorted(set(values))
     return tuple(distinct.index(v) for v in values)
 
@@ -431,7 +434,7 @@ def _judge(case: Case, standard: str, surface: SurfaceResult, segments: Segments
     limits = zone_limits(case.soil.top_resistivity, case.zones, fault.shock_duration, standard,
                          case.criteria.footwear_resistance)
     weight = case.criteria.body_weight
-    zones = tuple(ZoneVerdict(z, lim, weight, ext) for z, lim, ext in zip(case.zones, limits, surface.zones))
+    zones = tuple(ZoneVerdict(z, lim, z.weight(weight), ext) for z, lim, ext in zip(case.zones, limits, surface.zones))
     touch, step, mesh = governing(zones, "touch"), governing(zones, "step"), governing(zones, "mesh", needed=False)
     separate = tuple(
         separate_result(e.name, e.connection,

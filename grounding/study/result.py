@@ -426,8 +426,16 @@ class StudyResult:
 
     @property
     def body_weight(self) -> int:
-        """Body weight the verdicts use, kg."""
+        """Body weight the verdicts use, kg (zones may set their own: :attr:`body_weights`)."""
         return self.case.criteria.body_weight
+
+    @property
+    def body_weights(self) -> str:
+        """The body weights of the verdicts in words: '70 kg', or '70 kg; 50 kg in outside' when zones set their
+        own."""
+        own = [(z.name, z.body_weight) for z in self.zones if z.zone.body_weight is not None
+               and z.body_weight != self.body_weight]
+        return f"{self.body_weight} kg" + "".join(f"; {w} kg in {n}" for n, w in own)
 
     @property
     def tolerable_touch(self) -> float:

@@ -260,7 +260,7 @@ class _Watch:
             lim = None
             if check.worst is not None and check.zone in names:
                 table = limits[names.index(check.zone)]
-                lim = (table.step if criterion == "step" else table.touch)[weight]
+                lim = (table.step if criterion == "step" else table.touch)[case.zones[names.index(check.zone)].weight(weight)]
             out[f"{criterion}_limit"] = lim
         if limits_only:
             return out

@@ -69,7 +69,7 @@ def cover(ctx: Context) -> list:
     story += [Spacer(1, 4 * mm), table(ident, [35 * mm, 135 * mm], st, header=False), Spacer(1, 6 * mm)]
     overall = r.passes
     story.append(P(f"<b>Overall: {'all criteria PASS' if overall else 'at least one criterion FAILS'}</b> "
-                   + (f"(IEEE Std 80, {r.body_weight} kg body, ts = {f.shock_duration:g} s)"
+                   + (f"(IEEE Std 80, {r.body_weights} body, ts = {f.shock_duration:g} s)"
                       if c.criteria.standards[0] == "ieee80" else
                       f"(EN 50522, tf = {f.shock_duration:g} s, footwear {c.criteria.footwear_resistance:g} Ω)")
                    + (" — further standards in section 3.2" if len(c.criteria.standards) > 1 else ""), "h2"))
@@ -167,7 +167,7 @@ def inputs(ctx: Context) -> list:
     story.append(P("1.3  Criteria and discretisation", "h2"))
     el = c.electrodes
     crit_rows = [["Item", "Value"],
-                 ["Body weight (verdicts)", f"{c.criteria.body_weight} kg"],
+                 ["Body weight (verdicts)", r.body_weights],
                  ["Shock duration ts", f"{f.shock_duration:g} s"],
                  ["Electrodes", f"{len(el.grids)} grid(s), {len(el.conductors)} conductor(s), {len(el.rods)} rod(s); "
                                 f"{r.segments.total_length:,.1f} m in all"],
