@@ -91,6 +91,49 @@ def test_remote_rod_draws_current_and_lowers_rg():
     assert e.transferred_voltage is not None and e.transferred_voltage > 0
 
 
+def test_metal_not_relied_on_is_also_judged_without(tmp_path):
+    """separate_electrodes[].rely_on: false (a neighbour's pipe that may become plastic): the study adds the
+    condition without it, whose Rg is the lone rod's (Dwight 1936, as above), says by how much the metal helps and
+    keeps the worse verdict."""
+    plain = _two_rods(2.0, "remote")
+    case = parse_case(open_case_text := plain_text_with_rely(2.0), file="rods.yaml")
+    assert [s.name for s in case.scenarios] == ["without neighbour"]
+    r = run_study(case, estimate_error=False)
+    with_, without = r.scenarios
+    assert with_.grid_resistance == pytest.approx(run_study(plain, estimate_error=False).grid_resistance, rel=1e-12)
+    assert without.grid_resistance == pytest.approx(_dwight_rod(RHO, ROD_L, ROD_A), rel=0.03)
+    assert without.grid_resistance > with_.grid_resistance
+    assert without.separate == ()
+    note = next(w for w in r.warnings if "not relied on" in w and "Rg" in w)
+    pct = (without.grid_resistance - with_.grid_resistance) / with_.grid_resistance * 100
+    assert f"({pct:+.1f} %)" in note and "worse of the two" in note
+    # the governing touch is the larger of the two conditions (less margin: same limit)
+    assert r.touch_check.worst.value == max(with_.touch_check.worst.value, without.touch_check.worst.value)
+    larger = max((with_, without), key=lambda x: x.touch_check.worst.value)
+    assert r.touch_check.scenario == larger.scenario
+    bad = tmp_path / "bad.yaml"
+    bad.write_text(open_case_text.replace("rely_on: false", "rely_on: maybe"))
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(bad)], capture_output=True, text=True)
+    assert run.returncode == 2 and "separate_electrodes[0].rely_on" in run.stderr
+    assert len(run.stderr.strip().splitlines()) == 1
+
+
+def plain_text_with_rely(s: float) -> str:
+    return case_text(f"""\
+        rods:
+          - {{top: [0, 0, 0], length: {ROD_L}, diameter: {2 * ROD_A}}}
+        """, soil=f"{{resistivity: {RHO}}}", extra=textwrap.dedent(f"""\
+        separate_electrodes:
+          - name: neighbour
+            connection: remote
+            rely_on: false
+            rods:
+              - {{top: [{s}, 0, 0], length: {ROD_L}, diameter: {2 * ROD_A}}}
+        discretization: {{max_segment: 0.1}}
+        surface: {{resolution: 1.0, margin: 2}}
+        """))
+
+
 def test_bonded_separate_electrode_equals_listing_it_with_the_electrodes():
     bonded = _two_rods(3.0, "bonded")
     listed = parse_case(case_text("""\

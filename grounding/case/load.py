@@ -81,6 +81,33 @@ def parse_case(text: str, file: str = "<case>", sha256: str = "") -> Case:
     return CaseReader(doc).read(sha256 or hashlib.sha256(text.encode("utf-8")).hexdigest())
 
 
+def with_conditions_without_unrelied_metal(case: Case) -> Case:
+    """The case with one more scenario per condition (the case as written and each scenario) where separate
+    electrodes are marked ``rely_on: false``: the condition without them, so that the verdicts are the worse
+    of the site with and without metal the owner does not control."""
+    gone = tuple(e.name for e in case.separate_electrodes if not e.rely_on)
+    if not gone:
+        return case
+    names = ", ".join(f"'{n}'" for n in gone)
+    conditions = [(case.base_scenario, case)] + [(s.name, s.case) for s in case.scenarios]
+    extra = []
+    for name, c in conditions:
+        kept = tuple(e for e in c.separate_electrodes if e.name not in gone)
+        areas = []
+        for t in c.surface.touch_areas:               # reach around named metal: without the metal that is gone
+            metal = tuple(m for m in t.metal if m not in gone)
+            if t.area is not None or not t.metal or metal:
+                areas.append(t if t.area is not None or not t.metal else replace(t, metal=metal))
+        areas = tuple(areas)
+        without = replace(c, separate_electrodes=kept, scenarios=(), surface=replace(c.surface, touch_areas=areas))
+        label = f"without {', '.join(gone)}" if not case.scenarios else f"{name} without {', '.join(gone)}"
+        extra.append(Scenario(label, without, ("separate_electrodes",), gone, name))
+    note = (f"separate electrode{'s' if len(gone) > 1 else ''} {names} {'are' if len(gone) > 1 else 'is'} not relied "
+            "on (rely_on: false): every condition is also studied without "
+            f"{'them' if len(gone) > 1 else 'it'} and the worse verdict kept")
+    return replace(case, scenarios=case.scenarios + tuple(extra), notes=case.notes + (note,))
+
+
 class CaseReader(ElectrodeSections, SiteSections, DrawingSections):
     """Walks the document section by section; validation happens here once, then data is trusted."""
 
@@ -90,7 +117,9 @@ class CaseReader(ElectrodeSections, SiteSections, DrawingSections):
         self.fits = {} if fits is None else fits
 
     # ---- sections -------------------------------------------------------------------------
-    def read(self, sha256: str) -> Case:
+    def read(self, sha256: str, nested: bool = False) -> Case:
+        """The validated case; ``nested`` for a scenario's own case (its conditions without separate electrodes
+        that are not relied on are made once, at the top)."""
         data = self.doc.data
         if data is None:
             raise self.doc.fail("", "is empty; a case needs at least format, soil, fault and electrodes")
@@ -142,11 +171,12 @@ class CaseReader(ElectrodeSections, SiteSections, DrawingSections):
             notes.append("the sweep block is not used by a single study (the case is studied as written); "
                          "run grounding sweep or grounding design for the options")
         scenarios, base_name = self.scenarios(top.get("scenarios"), "scenarios" in top, sha256)
-        return Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
+        case = Case(title=title, soil=soil, fault=fault, electrodes=electrodes, criteria=criteria,
                     surface_layer=surface_layer, surface_zones=zones, separate_electrodes=separate,
                     scenarios=scenarios, base_scenario=base_name, discretization=discretization, surface=surface,
                     probes=probes, soil_fit=soil_fit, costs=costs, notes=tuple(notes), site=site,
                     source=self.doc.file, sha256=sha256)
+        return case if nested else with_conditions_without_unrelied_metal(case)
 
     def scenarios(self, value: Any, given: bool, sha256: str) -> tuple[tuple[Scenario, ...], str]:
         """The ``scenarios`` list: each entry is the case with the blocks it names replaced, validated as a
@@ -191,7 +221,7 @@ class CaseReader(ElectrodeSections, SiteSections, DrawingSections):
                         lines[b + key[len(prefix):]] = line
             try:
                 case = CaseReader(Document(self.doc.file, data, lines), self.fits).read(
-                    hashlib.sha256((sha256 + "scenario " + name).encode()).hexdigest())
+                    hashlib.sha256((sha256 + "scenario " + name).encode()).hexdigest(), nested=True)
             except CaseError as exc:
                 raise CaseError(exc.file, exc.line, exc.path, f"{exc.problem} (in scenario '{name}')") from None
             case = replace(case, notes=tuple(n for n in case.notes if not n.startswith("the sweep block")))

@@ -405,6 +405,10 @@ class SeparateElectrode:
         Key path in the case file.
     line : int or None
         Line of its entry in the case file, for messages.
+    rely_on : bool
+        False for metal the owner does not control (a water main, a neighbour's cable screen) that may be
+        removed or replaced by plastic one day: every condition is then also studied without it (a scenario
+        of its own) and the worse verdict kept.
     """
 
     name: str
@@ -414,6 +418,7 @@ class SeparateElectrode:
     rods: tuple[Rod, ...] = ()
     key: str = ""
     line: int | None = None
+    rely_on: bool = True
 
 
 @dataclass(frozen=True)
@@ -525,11 +530,17 @@ class Scenario:
         The whole case under this condition (validated like a file).
     overrides : tuple of str
         The blocks the scenario replaces.
+    without : tuple of str
+        For a condition made because separate electrodes are not relied on (``rely_on: false``): their names.
+    of : str
+        Then the condition it is made from (the case as written's name, or a scenario's).
     """
 
     name: str
     case: "Case"
     overrides: tuple[str, ...] = ()
+    without: tuple[str, ...] = ()
+    of: str = ""
 
 
 @dataclass(frozen=True)

@@ -114,7 +114,8 @@ class SiteSections(Checks):
         out, names = [], {}
         for i, item in enumerate(items):
             p = f"separate_electrodes[{i}]"
-            m = self.mapping(p, item, ("name", "connection", "grids", "conductors", "rods"), ("name", "connection"))
+            m = self.mapping(p, item, ("name", "connection", "grids", "conductors", "rods", "rely_on"),
+                             ("name", "connection"))
             name = self.name(f"{p}.name", m["name"])
             if name in names:
                 raise self.doc.fail(f"{p}.name", f"'{name}' is already the name of separate_electrodes[{names[name]}]")
@@ -127,7 +128,11 @@ class SiteSections(Checks):
             grids, conductors, rods = self.metal(p, m)
             if not (grids or conductors or rods):
                 raise self.doc.fail(p, "has no metal; give at least one of grids, conductors or rods")
-            out.append(SeparateElectrode(name, kind, grids, conductors, rods, p, self.doc.line(p)))
+            rely = m.get("rely_on", True)
+            if not isinstance(rely, bool):
+                raise self.doc.fail(f"{p}.rely_on", f"must be true or false, got {fmt(rely)}; false for metal the owner "
+                                                    "does not control (the site is then also judged without it)")
+            out.append(SeparateElectrode(name, kind, grids, conductors, rods, p, self.doc.line(p), rely))
         return tuple(out)
 
     def contours(self, path: str, value: Any) -> tuple[float, ...]:

@@ -264,7 +264,38 @@ def study_conditions(case: Case, progress: Progress | None = None, estimate_erro
         t0 = time.perf_counter()
         r = _run_condition(sc.case, progress, estimate_error, units, screen_drop, sc.name, cache, coarse)
         results.append(_named(r, sc.name, time.perf_counter() - t0))
-    return combine_scenarios(results)
+    combined = combine_scenarios(results)
+    notes = unrelied_metal_notes(case, results)
+    if not notes:
+        return combined
+    d = combined.diagnostics
+    return replace(combined, diagnostics=replace(d, warnings=tuple(d.warnings) + tuple(notes)))
+
+
+def unrelied_metal_notes(case: Case, results: list[StudyResult]) -> list[str]:
+    """How much the separate electrodes that are not relied on (``rely_on: false``) help: Rg and the worst touch
+    voltage of each condition with them and without them."""
+    by_name = {r.scenario: r for r in results}
+    out = []
+    for sc in case.scenarios:
+        if not sc.without or sc.of not in by_name or sc.name not in by_name:
+            continue
+        with_, without = by_name[sc.of], by_name[sc.name]
+        names = ", ".join(f"'{n}'" for n in sc.without)
+
+        def change(a, b, unit, digits):
+            return f"{a:,.{digits}f} {unit} with, {b:,.{digits}f} {unit} without ({(b - a) / a * 100:+.1f} %)" \
+                if a else f"{a:,.{digits}f} → {b:,.{digits}f} {unit}"
+        parts = [f"Rg {change(with_.grid_resistance, without.grid_resistance, 'Ω', 3)}"]
+        ta, tb = with_.touch_check.worst, without.touch_check.worst
+        if ta is not None and tb is not None:
+            parts.append(f"worst touch {change(ta.value, tb.value, 'V', 0)}")
+        verdict = ("the verdicts are the same without it" if with_.passes == without.passes else
+                   "the verdict changes without it: " + ("PASS with it, FAIL without" if with_.passes else
+                                                          "FAIL with it, PASS without"))
+        out.append(f"{names} (not relied on) in '{sc.of}': {'; '.join(parts)}; {verdict}; the study keeps the "
+                   "worse of the two")
+    return out
 
 
 def _unit_for(case: Case, progress, estimate_error: bool, units: dict, screen_drop: bool, name: str, cache,
