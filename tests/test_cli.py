@@ -258,6 +258,20 @@ def test_burial_depth_in_millimetres_is_refused(tmp_path):
     assert "grids[0].depth = 600 m is deeper than 50 m" in run.stderr and "0.6 for 600 mm" in run.stderr
 
 
+@pytest.mark.parametrize("rod, words", [("{top: [0, 0, 0.5], length: 3000, diameter: 0.016}",
+                                         "rods[0].length = 3000 m is implausibly long for a rod"),
+                                        ("{top: [0, 0, 500], length: 3, diameter: 0.016}",
+                                         "rods[0].top[2] = 500 m is deeper than 50 m")])
+def test_rod_length_and_top_in_millimetres_are_refused(tmp_path, rod, words):
+    """A rod 3000 m long or with its top 500 m deep (millimetres given as metres) is refused in one line."""
+    path = tmp_path / "r.yaml"
+    path.write_text("format: 1\nsoil: {resistivity: 100}\nfault: {current: 1000, clearing_time: 0.5}\n"
+                    f"electrodes:\n  rods: [{rod}]\n")
+    run = subprocess.run([sys.executable, "-m", "grounding.cli", "check", str(path)], capture_output=True, text=True)
+    assert run.returncode == 2 and len(run.stderr.strip().splitlines()) == 1
+    assert words in run.stderr and "mm" in run.stderr
+
+
 @pytest.mark.parametrize("soil, words, absent", [
     ("soil: ", "soil must be a mapping of keys, got nothing (an empty value)", "NoneType"),
     ("soil: {resistivity: " + str(list(range(1000))) + "}", "got [0, 1, 2,", "999"),

@@ -88,3 +88,47 @@ def test_side_by_side_conductors_closer_than_their_diameters_warned(make_case):
 def test_ordinary_grid_has_no_proximity_warning(make_case):
     case = make_case("grids: [{origin: [0, 0], size: [10, 10], meshes: [5, 5], depth: 0.5, diameter: 0.01}]\n")
     assert not any("side by side" in w for w in segment(case).warnings)
+
+
+def test_overshoot_of_a_third_of_a_millimetre_leaves_no_sliver(make_case):
+    """A 14 mm conductor that runs 0.33 mm past the one it meets: its end is moved onto the other's axis
+    (within the two radii), no piece shorter than 1 mm (or the diameter) is left, and a note says so."""
+    case = make_case("conductors:\n"
+                     "  - {start: [0, 0, 0.5], end: [10, 0, 0.5], diameter: 0.014}\n"
+                     "  - {start: [5, -4, 0.5], end: [5, 0.00033, 0.5], diameter: 0.014}\n",
+                     extra="discretization: {max_segment: 1.0}\n")
+    s = segment(case)
+    assert s.length.min() >= 1e-3
+    assert s.total_length == pytest.approx(10 + 4, abs=1e-9)          # the 0.33 mm overshoot is gone
+    assert np.isclose(s.end[:, :2], [5.0, 0.0]).all(axis=1).any()     # the branch ends on the axis it meets
+    assert any("moved onto it" in w and "0.33 mm" in w for w in s.warnings)
+    assert not any("do not touch" in w for w in s.warnings)
+
+
+def test_post_top_half_a_millimetre_from_the_wire_touches_it(make_case):
+    """A fence post whose top lies 0.5 mm below the bottom wire's axis (wire 10 mm, post 50 mm): the metal
+    touches, so the fence is one piece (no "do not touch" note) and the post starts on the wire."""
+    case = make_case("conductors: [{start: [0, 0, 0.5], end: [10, 0, 0.5], diameter: 0.01}]\n", extra=
+                     "separate_electrodes:\n"
+                     "  - name: fence\n"
+                     "    connection: floating\n"
+                     "    conductors: [{start: [-2, -2, 0.3], end: [12, -2, 0.3], diameter: 0.01}]\n"
+                     "    rods: [{top: [4, -2, 0.3005], length: 1.0, diameter: 0.05}]\n")
+    s = segment(case)
+    assert not any("do not touch" in w for w in s.warnings)
+    rod = s.is_rod
+    assert s.start[rod][:, 2].min() == pytest.approx(0.3, abs=1e-9)
+
+
+def test_short_pieces_between_close_crossings_merged(make_case):
+    """Two conductors crossing a third 0.4 mm apart would cut a 0.4 mm piece out of it: merged (equipotential
+    model), with a note; no piece is shorter than 1 mm and no metal is lost."""
+    case = make_case("conductors:\n"
+                     "  - {start: [0, 0, 0.5], end: [10, 0, 0.5], diameter: 0.01}\n"
+                     "  - {start: [5, -3, 0.5], end: [5, 3, 0.5], diameter: 0.01}\n"
+                     "  - {start: [5.0004, -3, 0.5], end: [5.0004, 3, 0.5], diameter: 0.0001}\n",
+                     extra="discretization: {max_segment: 1.0}\n")
+    s = segment(case)
+    assert s.length.min() >= 1e-3
+    assert s.total_length == pytest.approx(10 + 6 + 6, abs=1e-9)
+    assert any("merged into their neighbours" in w for w in s.warnings)

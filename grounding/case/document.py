@@ -35,6 +35,9 @@ MAX_CASE_LINES = 20_000
 #: Deepest burial of horizontal metal accepted, m (grids and conductors lie within a few metres of the surface; deep
 #: electrodes are rods, whose length is checked on its own).
 MAX_BURIAL_DEPTH = 50.0
+#: Longest rod accepted, m: deep-driven or bored earth electrodes reach some tens of metres, rarely 100 m and more
+#: (common practice); 300 m and more is nearly always millimetres given as metres.
+MAX_ROD_LENGTH = 300.0
 
 
 class _DuplicateKey(Exception):

@@ -7,7 +7,7 @@ import math
 from typing import Any
 
 from ..materials import MATERIALS
-from .document import Checks, fmt
+from .document import MAX_BURIAL_DEPTH, MAX_ROD_LENGTH, Checks, fmt
 from .model import Conductor, Electrodes, Grid, Rod, Soil
 
 #: Most meshes along one side of a grid (a spacing given where a count is asked for is the usual cause).
@@ -185,7 +185,14 @@ class ElectrodeSections(Checks):
         top = self.vector(f"{p}.top", m["top"], 3, "m", "x, y, depth")
         if top[2] < 0:
             raise self.doc.fail(f"{p}.top[2]", f"depth must be >= 0 m (z is positive downward), got {top[2]:g}")
+        if top[2] > MAX_BURIAL_DEPTH:
+            raise self.doc.fail(f"{p}.top[2]", f"= {top[2]:g} m is deeper than {MAX_BURIAL_DEPTH:g} m for a rod's top: "
+                                               f"give metres (e.g. {top[2] / 1000:g} for {top[2]:g} mm)")
         length = self.number(f"{p}.length", m["length"], "m", gt=0)
+        if length >= MAX_ROD_LENGTH:
+            raise self.doc.fail(f"{p}.length", f"= {length:g} m is implausibly long for a rod (at least "
+                                               f"{MAX_ROD_LENGTH:g} m): give metres (e.g. {length / 1000:g} for "
+                                               f"{length:g} mm)")
         d = self.diameter(f"{p}.diameter", m["diameter"])
         self.long_enough(f"{p}.length", length, d)
         return Rod(top, length, d, key=p, name=self._label(p, m), cross_section=self.cross_section(p, m, d),

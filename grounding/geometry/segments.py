@@ -19,6 +19,11 @@ from ..errors import CaseError, ModelTooLargeError
 NODE_TOLERANCE = 1e-6
 #: Most straight conductors a case may make (junction finding compares every pair of them).
 MAX_CONDUCTORS = 2000
+#: Shortest piece a cut may leave, m, unless the conductor's diameter is longer: a piece shorter than the
+#: conductor is thick is not a wire (its leakage per metre is meaningless) and is merged into its neighbour.
+MIN_PIECE = 1e-3
+#: Axes closer than this are touching whatever the radii, m (the former fixed tolerance).
+TOUCH_TOLERANCE = 1e-4
 
 
 @dataclass(frozen=True)
@@ -233,7 +238,10 @@ def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
     t = np.clip(np.einsum("ijk,jk->ij", pi - a[None, :, :], u), 0.0, L[None, :])
     pj = a[None, :, :] + t[..., None] * u[None, :, :]
     gap = np.linalg.norm(pi - pj, axis=2)
-    touching = gap < 1e-4
+    # metal touches where the axes come closer than the two radii (crossing at slightly different depths, a
+    # post's top a fraction of a millimetre from a wire); side-by-side parallel runs are reported apart
+    reach = np.maximum(TOUCH_TOLERANCE, c.radius[:, None] + c.radius[None, :])
+    touching = gap < np.where(parallel, TOUCH_TOLERANCE, reach)
     np.fill_diagonal(touching, False)
     # parallel (non-collinear after merging) conductors touch only end to end: check end points
     ends = np.stack([a, b], axis=1)                         # (M, 2, 3)
@@ -252,6 +260,42 @@ def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
         ci.append(t[touching[:, i], i])
         cuts.append(np.concatenate(ci))
     return cuts, touching, contact
+
+
+def snap_ends(c: Conductors) -> tuple[Conductors, list[str]]:
+    """Ends that lie within the two radii of another (not parallel) conductor's axis but not on it, moved onto
+    it (the nearest such point): a conductor that overshoots another by a fraction of its diameter, or stops
+    just short of it, touches it, and the cut there leaves no sliver. Moves are at most the sum of the radii;
+    returns the conductors and a note listing what moved."""
+    a, b = c.start, c.end
+    d = b - a
+    L = np.linalg.norm(d, axis=1)
+    u = d / L[:, None]
+    ends = np.stack([a, b], axis=1)                                      # (M, 2, 3)
+    rel = ends[:, :, None, :] - a[None, None, :, :]                      # end e of i relative to a_j
+    t = np.clip(np.einsum("iejk,jk->iej", rel, u), 0.0, L[None, None, :])
+    foot = a[None, None, :, :] + t[..., None] * u[None, None, :, :]      # nearest point of j's axis
+    dist = np.linalg.norm(ends[:, :, None, :] - foot, axis=3)            # (M, 2, M)
+    parallel = np.abs(np.einsum("ik,jk->ij", u, u)) > 1 - 1e-9
+    reach = c.radius[:, None] + c.radius[None, :]
+    near = (dist > NODE_TOLERANCE) & (dist <= reach[:, None, :]) & ~parallel[:, None, :]
+    near[np.arange(len(L)), :, np.arange(len(L))] = False
+    if not near.any():
+        return c, []
+    start, end = a.copy(), b.copy()
+    moved = []
+    for i, e in zip(*np.nonzero(near.any(axis=2))):
+        j = int(np.argmin(np.where(near[i, e], dist[i, e], np.inf)))
+        (start if e == 0 else end)[i] = foot[i, e, j]
+        moved.append((c.keys[i], c.keys[j], float(dist[i, e, j])))
+    keep = np.linalg.norm(end - start, axis=1) > NODE_TOLERANCE
+    if not keep.all():
+        start, end = np.where(keep[:, None], start, a), np.where(keep[:, None], end, b)
+    listed = "; ".join(f"{ki} to {kj} ({g * 1000:.2f} mm)" for ki, kj, g in moved[:4])
+    note = (f"{len(moved)} conductor end{'s' if len(moved) > 1 else ''} within the radii of another conductor moved "
+            f"onto it, so that they touch and leave no piece thinner than the wire ({listed}"
+            f"{' ...' if len(moved) > 4 else ''})")
+    return Conductors(start, end, c.radius, c.keys, c.is_rod, c.group), [note]
 
 
 def close_parallel_pairs(c: Conductors) -> list[tuple[int, int, float]]:
@@ -400,7 +444,8 @@ def segment(case: Case) -> Segments:
             f"rods), more than {MAX_CONDUCTORS:,}; check the grids' meshes (a mesh count, not a spacing in mm?)")
     lines, moved = _off_interfaces(lines, case.soil)
     conductors, warnings = merge_collinear(*lines)
-    warnings = moved + warnings
+    conductors, snapped = snap_ends(conductors)
+    warnings = moved + warnings + snapped
     cuts, touching, contact = junction_parameters(conductors)
     _refuse_contacts(case, conductors, touching, contact)
     for i, j, gap in close_parallel_pairs(conductors)[:5]:
@@ -427,6 +472,8 @@ def segment(case: Case) -> Segments:
     a, b = conductors.start, conductors.end
     L = conductors.length
     starts, ends, owner = [], [], []
+    merged = []
+    exact_nodes = case.electrodes.conductor_impedance        # the metal network needs every junction node
     for i in range(len(L)):
         za, zb = a[i, 2], b[i, 2]
         extra = []
@@ -440,6 +487,10 @@ def segment(case: Case) -> Segments:
             p = np.array([0.0, L[i]])
         if len(p) > 2 and p[-1] - p[-2] <= 1e-4:
             p = np.delete(p, -2)
+        shortest = max(MIN_PIECE, 2 * conductors.radius[i])
+        if len(p) > 2 and np.diff(p).min() < shortest and not exact_nodes:
+            p, tiny = _merge_short_pieces(p, shortest)
+            merged.append((conductors.keys[i], tiny))
         pieces = np.diff(p)
         n = np.maximum(1, np.ceil(pieces / max_seg - 1e-9).astype(int))
         fr = np.concatenate([p[k] + pieces[k] * np.arange(n[k] + 1) / n[k] for k in range(len(n))])
@@ -447,5 +498,24 @@ def segment(case: Case) -> Segments:
         pts = a[i] + fr[:, None] * (b[i] - a[i])
         starts.append(pts[:-1]); ends.append(pts[1:]); owner.append(np.full(len(pts) - 1, i))
     owner = np.concatenate(owner)
+    if merged:
+        warnings.append(f"{len(merged)} conductor{'s' if len(merged) > 1 else ''} would have been cut into pieces "
+                        f"shorter than their diameter (or {MIN_PIECE * 1000:g} mm) at junctions; those pieces are "
+                        "merged into their neighbours (" + "; ".join(f"{k}: {t * 1000:.2f} mm" for k, t in merged[:4])
+                        + (" ..." if len(merged) > 4 else "") + ")")
     return Segments(np.vstack(starts), np.vstack(ends), conductors.radius[owner], owner, conductors,
                     tuple(warnings))
+
+
+def _merge_short_pieces(p: np.ndarray, shortest: float) -> tuple[np.ndarray, float]:
+    """Cut positions (m, sorted, with both ends) without the cuts that leave pieces shorter than ``shortest``:
+    a short piece joins the piece before it (the last one the piece after it). Returns the positions and the
+    shortest piece removed, m."""
+    tiny = float(np.diff(p).min())
+    kept = [p[0]]
+    for x in p[1:-1]:
+        if x - kept[-1] >= shortest:
+            kept.append(x)
+    if len(kept) > 1 and p[-1] - kept[-1] < shortest:
+        kept.pop()
+    return np.array(kept + [p[-1]]), tiny
