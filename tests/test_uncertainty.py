@@ -7,6 +7,7 @@ import json
 import math
 import subprocess
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -279,3 +280,29 @@ discretization: {max_segment: %g}
     assert err.order == pytest.approx(0.4) and err.refinement_ratio == pytest.approx(1.5)
     assert err.estimate_ohm >= coarse.grid_resistance - fine.grid_resistance > 0
     assert err.estimate_ohm < 3 * (coarse.grid_resistance - fine.grid_resistance)     # not a blanket bound
+
+
+ERROR_BAR_CASES = sorted(str(p) for p in (ROOT / "cases").glob("*.yaml")) + \
+    sorted(str(p) for p in (ROOT / "tests" / "golden" / "cases").glob("*.yaml"))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("path", ERROR_BAR_CASES, ids=lambda p: Path(p).stem)
+def test_error_bars_cover_a_model_four_times_finer(path):
+    """On every demo and golden case the reported ± of Rg and of the worst touch, step and mesh voltages covers
+    the difference to the same case at a quarter of the segment length (same map). The estimate is Richardson's
+    with the factor of safety 1.25 of Roache's grid convergence index (P. J. Roache, Verification and Validation
+    in Computational Science and Engineering, 1998); without that factor two of these cases were not covered."""
+    case = replace(load_case(path), scenarios=())
+    r = run_study(case, uncertainty=False)
+    if r.discretization_error.estimate_ohm is None:
+        pytest.skip(f"no estimate made: {r.discretization_error.note}")
+    d = case.discretization
+    fine = run_study(replace(case, discretization=replace(d, max_segment=d.max_segment / 4)), estimate_error=False,
+                     uncertainty=False, screen_drop=False)
+    assert abs(r.grid_resistance - fine.grid_resistance) <= r.discretization_error.estimate_ohm
+    for crit in ("touch_check", "step_check", "mesh_check"):
+        c, f = getattr(r, crit), getattr(fine, crit)
+        if c.worst is None:
+            continue
+        assert abs(c.worst.value - f.worst.value) <= c.error, crit

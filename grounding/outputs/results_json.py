@@ -8,6 +8,7 @@ import json
 import math
 
 from ..study.result import StudyResult
+from ..surface.results import SAFETY_FACTOR
 from ..version import __version__
 
 RESULTS_FORMAT = 1
@@ -119,8 +120,9 @@ def _voltage_error(r: StudyResult) -> dict:
     how = ("" if err.order is None else
            f", r = {err.refinement_ratio:.3g} (the segments' refinement ratio), p = {err.order:.2g} (1 for grids, "
            "0.4 for rods, by the rods' share of the current)")
-    out["method"] = (f"|V − V(2h)|/(r^p − 1){how}, from the solve at twice the segment length at the same point, "
-                     "plus |V − V(2Δ)| from the searches on a map of twice the spacing")
+    out["method"] = (f"Fs·|V − V(2h)|/(r^p − 1){how}, from the solve at twice the segment length at the same "
+                     "point, plus Fs·|V − V(2Δ)| from the searches on a map of twice the spacing; "
+                     f"Fs = {SAFETY_FACTOR:g}, the factor of safety of Roache's grid convergence index")
     return out
 
 

@@ -10,7 +10,7 @@ from ..case.model import Case
 from ..operators.potential import SurfacePotential
 from ..solve.equipotential import Solution
 from ..solve.run import solve_case
-from ..surface.results import Extreme, SurfaceResult, ZoneExtremes
+from ..surface.results import SAFETY_FACTOR, Extreme, SurfaceResult, ZoneExtremes
 from ..surface.steps import step_at
 from .result import DiscretizationError
 
@@ -23,12 +23,12 @@ ROD_CONVERGENCE_ORDER = 0.4
 
 def richardson_factor(fine_segments: int, coarse_segments: int, rod_share: float) -> tuple[float, float, float]:
     """(factor, ratio, order): Richardson's estimate of the error of the fine value is |fine − coarse| · factor,
-    factor = 1/(r^p − 1), with r the refinement ratio actually made (segment counts: pieces shorter than the
-    coarse length do not split, so r is often below 2) and p the order, interpolated between the grid's and the
-    rods' by the rods' share of the leakage current (0–1)."""
+    factor = Fs/(r^p − 1) (Roache's grid convergence index, Fs = SAFETY_FACTOR), with r the refinement ratio
+    actually made (segment counts: pieces shorter than the coarse length do not split, so r is often below 2) and
+    p the order, interpolated between the grid's and the rods' by the rods' share of the leakage current (0–1)."""
     r = fine_segments / coarse_segments
     p = CONVERGENCE_ORDER - (CONVERGENCE_ORDER - ROD_CONVERGENCE_ORDER) * float(np.clip(rod_share, 0.0, 1.0))
-    return 1.0 / (r ** p - 1.0), r, p
+    return SAFETY_FACTOR / (r ** p - 1.0), r, p
 
 
 def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int,

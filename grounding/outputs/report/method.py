@@ -102,7 +102,8 @@ def accuracy_text(r: StudyResult) -> str:
     if err.relative is not None:
         text = ("How sure: Rg and the worst voltages carry a discretisation-error estimate (the solve at twice the "
                 "segment length, Richardson's estimate with the refinement ratio made and order p = "
-                f"{err.order:.2g}, and the search on a map of twice the spacing); a limit "
+                f"{err.order:.2g}, and the search on a map of twice the spacing, both with the factor of safety "
+                "1.25 of Roache's grid convergence index); a limit "
                 "inside that band makes the verdict marginal.")
     else:
         text = f"How sure: no discretisation-error estimate was made ({err.note})."

@@ -231,7 +231,8 @@ def results(ctx: Context) -> list:
         story.extend(criteria_story(r, st, P))
     story.append(P("± : estimated discretisation error of the worst voltage (the solve at twice the segment "
                    "length re-evaluated at the same point, Richardson's estimate for the refinement ratio made and order p — 1 for grids, 0.4 for rods by their share of the current —, plus the change found "
-                   "with a map of twice the spacing). A verdict marked ? has its limit inside that band: it is "
+                   "with a map of twice the spacing; both times 1.25, the factor of safety of Roache's grid "
+                   "convergence index). A verdict marked ? has its limit inside that band: it is "
                    "marginal and could flip with a finer model.", "small"))
     if r.scenarios:
         story += [P("Scenarios: conditions the layout must all pass (seasons, a wet surface layer, a future fault "
