@@ -31,9 +31,11 @@ def test_rod_cut_at_layer_interface(make_case):
                      soil="{layers: [{resistivity: 300, thickness: 2.2}, {resistivity: 50}]}",
                      extra="discretization: {max_segment: 10}\n")
     s = segment(case)
-    assert len(s) == 2
-    assert s.end[0, 2] == pytest.approx(2.2)
-    assert s.start[1, 2] == pytest.approx(2.2)
+    # two pieces (0.5–2.2 m, 2.2–6.5 m), each end refined at a quarter and a half of its length (ROD_END_GRADING)
+    assert len(s) == 6 and s.graded == 4 and s.base_count == 2
+    assert np.any(np.isclose(s.end[:, 2], 2.2)) and np.any(np.isclose(s.start[:, 2], 2.2))
+    assert not np.any((s.start[:, 2] < 2.2 - 1e-9) & (s.end[:, 2] > 2.2 + 1e-9))     # none crosses it
+    assert sorted(np.round(s.length, 6)) == sorted(np.round([0.425, 0.425, 0.85, 1.075, 1.075, 2.15], 6))
 
 
 def test_rod_top_on_conductor_cuts_it(make_case):

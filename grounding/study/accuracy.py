@@ -43,11 +43,11 @@ def estimate_discretization_error(case: Case, fine: Solution, fine_segments: int
     coarse_case = replace(case, discretization=replace(case.discretization,
                                                             max_segment=2 * case.discretization.max_segment))
     segments, kernel, coarse, _ = solve(coarse_case)
-    if len(segments) >= fine_segments:
+    if segments.base_count >= fine_segments:
         return DiscretizationError(coarse.resistance, None, None,
                                    "not estimated: doubling max_segment does not change the segments "
                                    "(conductor pieces between junctions are already shorter)"), surface
-    factor, ratio, order = richardson_factor(fine_segments, len(segments), rod_share)
+    factor, ratio, order = richardson_factor(fine_segments, segments.base_count, rod_share)
     est = abs(fine.resistance - coarse.resistance) * factor
     error = DiscretizationError(coarse.resistance, est, est / fine.resistance, "", ratio, order)
     if surface is None:

@@ -211,7 +211,7 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
     if estimate_error:
         if progress:
             progress("error estimate", 0.0)
-        error, surface = estimate_discretization_error(case, solution, len(segments), surface,
+        error, surface = estimate_discretization_error(case, solution, segments.base_count, surface,
                                                        rod_share(segments, solution), coarse or solve_case)
     else:
         error = DiscretizationError(None, None, None, "not requested")
