@@ -97,11 +97,12 @@ def safety_lines(r: StudyResult) -> list[str]:
     several = len(r.zones) > 1
     if several:
         out.append("  Zones (where people stand); each criterion is judged in every zone against that zone's limit:")
-        out.append(f"    {'zone':<22}{'covering':<22}{'Cs':>6}{'touch limit':>13}{'step limit':>12}")
-        for z in r.zones:
+        names = [z.name if z.zone.body_weight is None else f"{z.name} ({z.body_weight} kg)" for z in r.zones]
+        w = min(34, max(22, max(len(n) for n in names) + 1))
+        out.append(f"    {'zone':<{w}}{'covering':<22}{'Cs':>6}{'touch limit':>13}{'step limit':>12}")
+        for z, name in zip(r.zones, names):
             cs = "—" if z.limits.standard == "en50522" else f"{z.limits.cs:.3f}"
-            name = z.name if z.zone.body_weight is None else f"{z.name} ({z.body_weight} kg)"
-            out.append(f"    {name[:21]:<22}{covering_text(z.zone)[:21]:<22}{cs:>6}"
+            out.append(f"    {name[:w - 1]:<{w}}{covering_text(z.zone)[:21]:<22}{cs:>6}"
                        f"{_volts(z.tolerable_touch):>13}{_volts(z.tolerable_step):>12}")
     else:
         z = r.zones[0]
@@ -244,10 +245,11 @@ def _short(check) -> str:
 
 def scenario_lines(r: StudyResult) -> list[str]:
     """One line per scenario: Rg, GPR and each criterion against its limit; the worst govern the verdicts."""
+    w = min(34, max(18, max(len(s.scenario) for s in r.scenarios) + 1))     # names up to 33 characters in full
     out = ["  Scenarios (conditions the layout must all pass; the verdicts above are the worst of them):",
-           f"    {'scenario':<18}{'Rg':>9}{'GPR':>10}  {'touch':<22}{'step':<22}{'mesh':<22}all"]
+           f"    {'scenario':<{w}}{'Rg':>9}{'GPR':>10}  {'touch':<22}{'step':<22}{'mesh':<22}all"]
     for s in r.scenarios:
-        out.append(f"    {s.scenario[:17]:<18}{s.grid_resistance:>7.3f} Ω{_volts(s.ground_potential_rise):>10}  "
+        out.append(f"    {s.scenario[:w - 1]:<{w}}{s.grid_resistance:>7.3f} Ω{_volts(s.ground_potential_rise):>10}  "
                    f"{_short(s.touch_check):<22}{_short(s.step_check):<22}{_short(s.mesh_check):<22}"
                    f"{'PASS' if s.passes else 'FAIL'}")
     for s in r.scenarios:

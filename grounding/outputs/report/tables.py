@@ -169,7 +169,8 @@ def scenario_rows(r: StudyResult):
         return f"{volts(check.worst.value)} / {volts(check.limit)}"
 
     rows = [["Scenario", "Replaces", "Rg", "GPR", "Touch / limit", "Step / limit", "Mesh / limit", "All"]]
-    over = {sc.name: ", ".join(sc.overrides) for sc in r.case.scenarios}
+    over = {sc.name: ("without " + ", ".join(sc.without) + " (not relied on)") if sc.without else
+            ", ".join(sc.overrides).replace("_", " ") for sc in r.case.scenarios}
     for x in r.scenarios:
         rows.append([x.scenario[:20], over.get(x.scenario, "—"), f"{x.grid_resistance:.3f} Ω",
                      volts(x.ground_potential_rise), short(x.touch_check), short(x.step_check), short(x.mesh_check),
