@@ -453,10 +453,14 @@ class Discretization:
     solver : str
         ``auto`` (the dense Cholesky solve up to a size where it is fast and safe, the compressed
         operator with conjugate gradients above), ``dense`` or ``iterative``.
+    refine_rod_ends : bool
+        Cut each rod's end segments again at a quarter and a half of their length (the leakage density rises
+        steeply at a rod's ends); off only for the soil-uncertainty sensitivities' coarser solves.
     """
 
     max_segment: float = 1.0
     solver: str = "auto"
+    refine_rod_ends: bool = True
 
 
 @dataclass(frozen=True)

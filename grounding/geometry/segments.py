@@ -510,7 +510,7 @@ def segment(case: Case) -> Segments:
         n = np.maximum(1, np.ceil(pieces / max_seg - 1e-9).astype(int))
         fr = np.concatenate([p[k] + pieces[k] * np.arange(n[k] + 1) / n[k] for k in range(len(n))])
         fr = fr[np.concatenate([[True], np.diff(fr) > 1e-12])] / L[i]
-        if conductors.is_rod[i] and ROD_END_GRADING:
+        if conductors.is_rod[i] and ROD_END_GRADING and case.discretization.refine_rod_ends:
             before = len(fr)
             fr = _graded_ends(fr, ROD_END_GRADING, max(MIN_PIECE, 2 * conductors.radius[i]) / L[i])
             graded += len(fr) - before
