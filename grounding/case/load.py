@@ -94,10 +94,11 @@ def with_conditions_without_unrelied_metal(case: Case) -> Case:
     for name, c in conditions:
         kept = tuple(e for e in c.separate_electrodes if e.name not in gone)
         areas = []
-        for t in c.surface.touch_areas:               # reach around named metal: without the metal that is gone
-            metal = tuple(m for m in t.metal if m not in gone)
-            if t.area is not None or not t.metal or metal:
-                areas.append(t if t.area is not None or not t.metal else replace(t, metal=metal))
+        for t in c.surface.touch_areas:
+            if t.area is not None or not t.metal:     # a polygon, or the reach around all the main metal
+                areas.append(t)
+            elif metal := tuple(m for m in t.metal if m not in gone):     # reach around the metal that stays
+                areas.append(replace(t, metal=metal))
         areas = tuple(areas)
         without = replace(c, separate_electrodes=kept, scenarios=(), surface=replace(c.surface, touch_areas=areas))
         label = f"without {', '.join(gone)}" if not case.scenarios else f"{name} without {', '.join(gone)}"

@@ -144,8 +144,11 @@ def _uncertainty(r: StudyResult) -> dict | None:
     return out
 
 
-def _overrides(c, name: str) -> tuple[str, ...]:
-    return next((sc.overrides for sc in c.scenarios if sc.name == name), ())
+def _scenario_keys(c, name: str) -> dict:
+    """The blocks the scenario ``name`` replaces and the separate electrodes it is without (empty for the case as
+    written)."""
+    sc = next((s for s in c.scenarios if s.name == name), None)
+    return {"overrides": list(sc.overrides) if sc else [], "without": list(sc.without) if sc else []}
 
 
 def _contours(r: StudyResult) -> list[dict]:
@@ -279,9 +282,7 @@ def _results_dict(r: StudyResult) -> dict:
             "tolerable_step_voltage_v": {str(w): _num(v) for w, v in r.limits.step.items()},
         },
         "soil": _soil(c),
-        "scenarios": [{"name": x.scenario, "overrides": list(_overrides(c, x.scenario)),
-                       "without": list(next((sc.without for sc in c.scenarios if sc.name == x.scenario), ())),
-                       "summary": _summary(x),
+        "scenarios": [{"name": x.scenario, **_scenario_keys(c, x.scenario), "summary": _summary(x),
                        "scenario_s": _num(x.timings.get("scenario_s"), 4), "solve": _solve(x)} for x in r.scenarios],
         "uncertainty": _uncertainty(r),
         "separate_electrodes": _separate(r),

@@ -193,7 +193,7 @@ def solve_geometry(case: Case, progress: Progress | None = None, estimate_error:
                    screen_drop: bool = True, coarse: CoarseSolves | None = None) -> UnitStudy:
     """Solve the electrodes at 1 V and map the surface; see :class:`UnitStudy`. ``screen_drop``: also screen
     the potential drop along the metal of an equipotential study (:func:`estimate_metal_drop`); ``coarse``:
-    the run's coarser solves, shared with other stages (a new set when None)."""
+    the run's coarser solves, shared with other stages (None: the error estimate solves its own)."""
     segments, kernel, solution, timings = solve_case(case, progress)
     t0 = time.perf_counter()
     if progress:
@@ -272,6 +272,12 @@ def study_conditions(case: Case, progress: Progress | None = None, estimate_erro
     return replace(combined, diagnostics=replace(d, warnings=tuple(d.warnings) + tuple(notes)))
 
 
+def _with_and_without(a: float, b: float, unit: str, digits: int) -> str:
+    """'a unit with, b unit without (±x %)'."""
+    change = f" ({(b - a) / a * 100:+.1f} %)" if a else ""
+    return f"{a:,.{digits}f} {unit} with, {b:,.{digits}f} {unit} without{change}"
+
+
 def unrelied_metal_notes(case: Case, results: list[StudyResult]) -> list[str]:
     """How much the separate electrodes that are not relied on (``rely_on: false``) help: Rg and the worst touch
     voltage of each condition with them and without them."""
@@ -282,14 +288,10 @@ def unrelied_metal_notes(case: Case, results: list[StudyResult]) -> list[str]:
             continue
         with_, without = by_name[sc.of], by_name[sc.name]
         names = ", ".join(f"'{n}'" for n in sc.without)
-
-        def change(a, b, unit, digits):
-            return f"{a:,.{digits}f} {unit} with, {b:,.{digits}f} {unit} without ({(b - a) / a * 100:+.1f} %)" \
-                if a else f"{a:,.{digits}f} → {b:,.{digits}f} {unit}"
-        parts = [f"Rg {change(with_.grid_resistance, without.grid_resistance, 'Ω', 3)}"]
+        parts = [f"Rg {_with_and_without(with_.grid_resistance, without.grid_resistance, 'Ω', 3)}"]
         ta, tb = with_.touch_check.worst, without.touch_check.worst
         if ta is not None and tb is not None:
-            parts.append(f"worst touch {change(ta.value, tb.value, 'V', 0)}")
+            parts.append(f"worst touch {_with_and_without(ta.value, tb.value, 'V', 0)}")
         verdict = ("the verdicts are the same without it" if with_.passes == without.passes else
                    "the verdict changes without it: " + ("PASS with it, FAIL without" if with_.passes else
                                                           "FAIL with it, PASS without"))
