@@ -23,7 +23,7 @@ import numpy as np
 from scipy.interpolate import CubicSpline
 from scipy.special import j0
 
-from .base import DEPTH_QUANTUM, TABLE_REACH, ImageTerms, Radial, RadialTable, SoilKernel, _levels
+from .base import DEPTH_QUANTUM, TABLE_REACH, ImageTerms, Radial, RadialTable, SoilKernel, _levels, kept_per_kernel
 
 #: Sub-grids per filter spacing on the logarithmic r nodes (lagged convolution).
 SUBGRIDS = 4
@@ -72,7 +72,7 @@ class LayeredSoil(SoilKernel):
         """Reflection factor seen from layer a towards layer b."""
         return (self.rho[b] - self.rho[a]) / (self.rho[b] + self.rho[a])
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def near_terms(self, obs_layer: int, src_layer: int) -> ImageTerms:
         n = len(self.rho)
         c = self.rho[src_layer] / (4 * np.pi)
@@ -179,11 +179,23 @@ class LayeredSoil(SoilKernel):
             self._grid_cache = (np.exp(ln_r), np.exp(ln_lam), i_of, wts, delta)
         return self._grid_cache
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def _grid_coefficients(self, zp: float) -> np.ndarray:
         return self.coefficients(self._grid()[1], zp)
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
+    def _small_r_block(self, first: int, last: int):
+        """(r_switch, band, r, J0(λ r)) of the trapezoid sum for small r, for a spectrum living on the λ indices
+        first…last: the same for every depth pair whose spectrum lives there (a large yard's thousands of tables
+        share a few dozen), so computed once per kernel."""
+        lam = self._grid()[1]
+        lam_max = lam[min(last + 1, len(lam) - 1)]
+        r_switch = float(np.clip(SMOOTH_J0 / lam_max, NODE_START, 1e3))
+        band = slice(max(first - 1, 0), last + 2)
+        r_small = np.linspace(0.0, r_switch, 33)
+        return r_switch, band, r_small, j0(np.outer(r_small, lam[band]))
+
+    @kept_per_kernel
     def remainder_radial(self, z: float, zp: float) -> Radial | None:
         r_log, lam, i_of, wts, delta = self._grid()
         spec = self._spectrum_from(self._grid_coefficients(zp), lam, z, zp)
@@ -195,11 +207,8 @@ class LayeredSoil(SoilKernel):
         live = np.flatnonzero(mag > SPECTRUM_FLOOR * max(mag.max(), 1e-300))
         if len(live) == 0:
             return None
-        lam_max = lam[min(live[-1] + 1, len(lam) - 1)]
-        r_switch = float(np.clip(SMOOTH_J0 / lam_max, NODE_START, 1e3))
-        band = slice(max(live[0] - 1, 0), live[-1] + 2)
-        r_small = np.linspace(0.0, r_switch, 33)
-        g_small = j0(np.outer(r_small, lam[band])) @ (spec[band] * lam[band]) * delta
+        r_switch, band, r_small, bessel = self._small_r_block(int(live[0]), int(live[-1]))
+        g_small = bessel @ (spec[band] * lam[band]) * delta
         keep = r_log > r_switch
         g_log = spec[i_of[keep]] @ wts / r_log[keep]
         r = np.concatenate([r_small, r_log[keep]])
@@ -213,7 +222,7 @@ class LayeredSoil(SoilKernel):
 
         return RadialTable(exact, r_s)
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def radial(self, z: float, zp: float) -> Radial:
         near = self.near_terms(int(self.layer_of(z)), int(self.layer_of(zp)))
         rem = self.remainder_radial(z, zp)

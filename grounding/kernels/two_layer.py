@@ -14,11 +14,10 @@ relative size of the neglected tail.
 from __future__ import annotations
 
 import math
-from functools import lru_cache
 
 import numpy as np
 
-from .base import ImageTerms, Radial, RadialTable, SoilKernel
+from .base import ImageTerms, Radial, RadialTable, SoilKernel, kept_per_kernel
 
 #: Nodes of a radial table (about ln(reach / r_c) / step), for the table-or-direct choice.
 TABLE_NODES = 5000
@@ -103,7 +102,7 @@ class TwoLayerSoil(SoilKernel):
         m = order <= self.near_order if near else order > self.near_order
         return ImageTerms(terms.coefficient[m], terms.sign[m], terms.shift[m])
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def near_terms(self, obs_layer: int, src_layer: int) -> ImageTerms:
         return self._split(obs_layer, src_layer, near=True)
 
@@ -117,7 +116,7 @@ class TwoLayerSoil(SoilKernel):
     def direct_remainder(self, r, z, zp):
         return self.sum_by_layers(lambda a, b: self._far_terms(a, b), r, z, zp)
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def _far_terms(self, obs: int, src: int) -> ImageTerms:
         return self._split(obs, src, near=False)
 
@@ -129,7 +128,7 @@ class TwoLayerSoil(SoilKernel):
         terms, _ = self._all[self._layers(z, zp)]
         return _sum_terms(terms, np.asarray(r, float), z, zp)
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def radial(self, z: float, zp: float) -> Radial:
         terms, _ = self._all[self._layers(z, zp)]
         dz = abs(z - zp)
@@ -137,7 +136,7 @@ class TwoLayerSoil(SoilKernel):
         r_min = 1e-4 if dz < 1e-6 else 0.0
         return RadialTable(lambda r: _sum_terms(terms, r, z, zp), r_c, r_min, weight_scale=dz)
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def remainder_radial(self, z: float, zp: float) -> Radial | None:
         far = self._split(*self._layers(z, zp), near=False)
         if len(far) == 0:

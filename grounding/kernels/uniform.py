@@ -2,11 +2,9 @@
 
 from __future__ import annotations
 
-from functools import lru_cache
-
 import numpy as np
 
-from .base import ImageTerms, Radial, SoilKernel
+from .base import ImageTerms, Radial, SoilKernel, kept_per_kernel
 
 
 class UniformSoil(SoilKernel):
@@ -28,7 +26,7 @@ class UniformSoil(SoilKernel):
     def near_terms(self, obs_layer: int, src_layer: int) -> ImageTerms:
         return self._terms
 
-    @lru_cache(maxsize=None)
+    @kept_per_kernel
     def radial(self, z: float, zp: float) -> Radial:
         c = self.resistivity / (4 * np.pi)
         dm2, dp2 = (z - zp) ** 2, (z + zp) ** 2
