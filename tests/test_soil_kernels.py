@@ -15,7 +15,7 @@ from scipy.integrate import quad
 from scipy.special import j0
 
 from grounding.case.model import Layer, Soil
-from grounding.kernels import TwoLayerSoil, UniformSoil, make_kernel
+from grounding.kernels import LayeredSoil, TwoLayerSoil, UniformSoil, make_kernel
 
 RHO1, RHO2, H = 300.0, 60.0, 4.0
 
@@ -141,3 +141,32 @@ def test_series_truncation_order():
     k = 0.9
     n = series_order(k, 1e-6)
     assert abs(k) ** n / (1 - abs(k)) < 1e-6 <= abs(k) ** (n - 1) / (1 - abs(k))
+
+
+@pytest.mark.parametrize("make", [lambda: UniformSoil(100.0), lambda: TwoLayerSoil(300.0, 50.0, 1.5),
+                                  lambda: LayeredSoil((100.0, 50.0, 300.0), (1.0, 5.0))],
+                         ids=["uniform", "two-layer", "three-layer"])
+def test_a_kernel_and_its_tables_are_freed_when_dropped(make):
+    """A kernel's tables are memoised on the kernel itself: once nothing refers to it, it is freed (functools.lru_cache
+    on a method kept every kernel alive, 181 MB of tables per soil on a large yard)."""
+    import gc
+    import weakref
+    kernel = make()
+    kernel.radial(0.5, 0.5)
+    kernel.remainder_radial(0.5, 0.6)
+    assert kernel.radial(0.5, 0.5) is kernel.radial(0.5, 0.5)          # memoised
+    ref = weakref.ref(kernel)
+    del kernel
+    gc.collect()
+    assert ref() is None
+
+
+def test_a_kernel_with_tables_pickles_without_them():
+    """Kernels go to worker processes (sweeps): pickled without their memoised tables, equal values after."""
+    import pickle
+    kernel = LayeredSoil((100.0, 50.0, 300.0), (1.0, 5.0))
+    r = np.array([0.5, 2.0, 20.0])
+    before = kernel.radial(0.5, 0.7)(r)
+    copy = pickle.loads(pickle.dumps(kernel))
+    assert not any(k.startswith("_kept_") for k in vars(copy))
+    np.testing.assert_array_equal(copy.radial(0.5, 0.7)(r), before)

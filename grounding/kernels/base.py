@@ -127,6 +127,10 @@ class SoilKernel(ABC):
     #: Interface depths, m.
     interfaces: tuple[float, ...]
 
+    def __getstate__(self) -> dict:
+        """The kernel without its memoised tables (closures, not picklable: another process makes its own)."""
+        return {k: v for k, v in self.__dict__.items() if not k.startswith("_kept_")}
+
     def describe(self) -> dict:
         """What the kernel is, for the results' diagnostics."""
         return {"kind": type(self).__name__, "resistivities_ohm_m": list(self.resistivities),
