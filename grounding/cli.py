@@ -620,12 +620,34 @@ def check(case_file):
         click.echo(f"  sweep: {len(variants)} options, each valid")
 
 
+def _reuse_freed_memory() -> None:
+    """With glibc, let the allocator keep freed memory for the next arrays instead of handing it back to the system
+    after every large temporary and faulting it in again (arrays up to 32 MiB from the heap, up to 512 MiB of free
+    heap kept, heap grown 64 MiB at a time). Measured on the benchmark yard, paired runs: 38.9 → 28.3 s wall,
+    system time 17.6 → 6.7 s, peak memory +18 % (1.73 → 2.04 GB) on a machine where page faults were dear; 4 %
+    faster where they were cheap. GROUNDING_MALLOC=system leaves the allocator as it is."""
+    import ctypes
+    import os
+
+    if os.environ.get("GROUNDING_MALLOC") == "system":
+        return
+    try:
+        mallopt = ctypes.CDLL(None).mallopt       # glibc (and musl, where it does nothing); absent elsewhere
+    except (OSError, AttributeError):
+        return
+    M_TRIM_THRESHOLD, M_TOP_PAD, M_MMAP_THRESHOLD = -1, -2, -3
+    mallopt(M_MMAP_THRESHOLD, 32 * 2 ** 20)
+    mallopt(M_TRIM_THRESHOLD, 512 * 2 ** 20)
+    mallopt(M_TOP_PAD, 64 * 2 ** 20)
+
+
 def run() -> None:
     """Console entry point: the command line, with a last safety net. A user's mistake is a
     GroundingError (one line, exit 2); anything else is a defect of this program and is reported in
     one line with exit 1 (set GROUNDING_DEBUG=1 for the traceback)."""
     import os
 
+    _reuse_freed_memory()
     try:
         main(standalone_mode=True)
     except SystemExit:
