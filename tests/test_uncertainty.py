@@ -208,6 +208,22 @@ def test_sensitivities_at_twice_the_segment_length_agree(monkeypatch):
         assert coarse.quantities[key].sigma_log == pytest.approx(fine.quantities[key].sigma_log, rel=0.05), key
 
 
+def test_error_estimate_solve_is_the_sensitivities_base(monkeypatch):
+    """A whole study that takes its sensitivities at twice the segment length solves that level once: the error
+    estimate's solve is the propagation's base (CoarseSolves), so only the nudged soils cost a solve, and the
+    result equals the propagation made on its own."""
+    import grounding.study.uncertainty as U
+    monkeypatch.setattr(U, "COARSE_FROM", 10)
+    monkeypatch.setattr(U, "COARSE_FLOOR", 10 ** 9)                  # twice, not four times
+    case = parse_case(MC_GRID)
+    whole = run_study(case)
+    alone = U.propagate_soil_uncertainty(run_study(case, uncertainty=False))
+    assert "twice" in whole.uncertainty.level
+    assert whole.uncertainty.extra_solves == alone.extra_solves - 1      # the base solve was shared
+    for key in ("grid_resistance", "touch", "step", "mesh"):
+        assert whole.uncertainty.quantities[key].sensitivities == alone.quantities[key].sensitivities, key
+
+
 def test_sensitivities_at_four_times_the_segment_length_agree(monkeypatch):
     """Where the model at four times the segment length keeps uncertainty.COARSE_FLOOR segments the sensitivities
     are taken there; on the two-layer grid forced to do so σ(log) agrees with the study's own level within 5 %."""
