@@ -23,10 +23,11 @@ MAX_CONDUCTORS = 2000
 #: conductor is thick is not a wire (its leakage per metre is meaningless) and is merged into its neighbour.
 MIN_PIECE = 1e-3
 #: Rod ends refined: each rod's first and last segment is cut again at these fractions of its length from the end
-#: (a quarter, a quarter and a half; a fence post of one segment into quarters). The leakage density rises steeply at a rod's ends, and the surface potential
-#: above a rod or post that reaches the surface follows it: without this the step voltage beside the bonded fence
-#: posts of a demo came out 8.7 % below the same model at a quarter of the segment length, outside its error bar;
-#: with it 0.2 % (tests/test_uncertainty.py, every demo and golden case against a model four times finer).
+#: (a quarter, a quarter and a half; a fence post of one segment into quarters). The leakage density rises steeply
+#: at a rod's ends, and the surface potential above a rod or post that reaches the surface follows it: without
+#: this the step voltage beside the bonded fence posts of a demo came out 8.7 % below the same model at a quarter
+#: of the segment length, outside its error bar; with it 0.2 % (tests/test_uncertainty.py, every demo and golden
+#: case against a model four times finer).
 ROD_END_GRADING = (0.25, 0.5)
 #: Axes closer than this are touching whatever the radii, m (the former fixed tolerance).
 TOUCH_TOLERANCE = 1e-4
@@ -259,11 +260,8 @@ def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
     touching = gap < np.where(parallel, TOUCH_TOLERANCE, reach)
     np.fill_diagonal(touching, False)
     # parallel (non-collinear after merging) conductors touch only end to end: check end points
-    ends = np.stack([a, b], axis=1)                         # (M, 2, 3)
-    rel = ends[None, :, :, :] - a[:, None, None, :]          # end e of j relative to a_i
-    proj = np.einsum("ijek,ik->ije", rel, u)
-    foot = a[:, None, None, :] + np.clip(proj, 0, L[:, None, None])[..., None] * u[:, None, None, :]
-    on_i = np.linalg.norm(ends[None] - foot, axis=3) < 1e-4   # (M, M, 2)
+    along, _, dist = ends_on_axes(a, b, u, L)
+    on_i = dist < 1e-4                                       # (M, M, 2)
     np.fill_diagonal(on_i[..., 0], False); np.fill_diagonal(on_i[..., 1], False)
     touching |= on_i.any(axis=2) | on_i.any(axis=2).T
     # where each touching pair meets: (i, j) → point on i
@@ -271,10 +269,21 @@ def junction_parameters(c: Conductors) -> tuple[list[np.ndarray], np.ndarray]:
     cuts = []
     for i in range(m):
         ci = [s[i, touching[i]]]
-        ci.append(np.clip(proj[i][on_i[i]], 0, L[i]))
+        ci.append(along[i][on_i[i]])
         ci.append(t[touching[:, i], i])
         cuts.append(np.concatenate(ci))
     return cuts, touching, contact
+
+
+def ends_on_axes(a: np.ndarray, b: np.ndarray, u: np.ndarray, L: np.ndarray):
+    """For the axis of every conductor i (start a, unit direction u, length L, m) and each end e of every conductor
+    j (ends a, b): the distance along i of the axis point nearest that end (clipped to the conductor), the point,
+    and the end's distance to it, m; shapes (M, M, 2), (M, M, 2, 3), (M, M, 2)."""
+    ends = np.stack([a, b], axis=1)                                      # (M, 2, 3)
+    rel = ends[None, :, :, :] - a[:, None, None, :]                      # end e of j relative to a_i
+    along = np.clip(np.einsum("ijek,ik->ije", rel, u), 0, L[:, None, None])
+    foot = a[:, None, None, :] + along[..., None] * u[:, None, None, :]
+    return along, foot, np.linalg.norm(ends[None] - foot, axis=3)
 
 
 def snap_ends(c: Conductors) -> tuple[Conductors, list[str]]:
@@ -286,11 +295,8 @@ def snap_ends(c: Conductors) -> tuple[Conductors, list[str]]:
     d = b - a
     L = np.linalg.norm(d, axis=1)
     u = d / L[:, None]
-    ends = np.stack([a, b], axis=1)                                      # (M, 2, 3)
-    rel = ends[:, :, None, :] - a[None, None, :, :]                      # end e of i relative to a_j
-    t = np.clip(np.einsum("iejk,jk->iej", rel, u), 0.0, L[None, None, :])
-    foot = a[None, None, :, :] + t[..., None] * u[None, None, :, :]      # nearest point of j's axis
-    dist = np.linalg.norm(ends[:, :, None, :] - foot, axis=3)            # (M, 2, M)
+    _, foot, dist = ends_on_axes(a, b, u, L)
+    foot, dist = np.transpose(foot, (1, 2, 0, 3)), np.transpose(dist, (1, 2, 0))   # [i, e, j]: end e of i on j
     parallel = np.abs(np.einsum("ik,jk->ij", u, u)) > 1 - 1e-9
     reach = c.radius[:, None] + c.radius[None, :]
     near = (dist > NODE_TOLERANCE) & (dist <= reach[:, None, :]) & ~parallel[:, None, :]
@@ -510,9 +516,9 @@ def segment(case: Case) -> Segments:
         n = np.maximum(1, np.ceil(pieces / max_seg - 1e-9).astype(int))
         fr = np.concatenate([p[k] + pieces[k] * np.arange(n[k] + 1) / n[k] for k in range(len(n))])
         fr = fr[np.concatenate([[True], np.diff(fr) > 1e-12])] / L[i]
-        if conductors.is_rod[i] and ROD_END_GRADING and case.discretization.refine_rod_ends:
+        if conductors.is_rod[i] and case.discretization.refine_rod_ends:
             before = len(fr)
-            fr = _graded_ends(fr, ROD_END_GRADING, max(MIN_PIECE, 2 * conductors.radius[i]) / L[i])
+            fr = _graded_ends(fr, ROD_END_GRADING, shortest / L[i])
             graded += len(fr) - before
         pts = a[i] + fr[:, None] * (b[i] - a[i])
         starts.append(pts[:-1]); ends.append(pts[1:]); owner.append(np.full(len(pts) - 1, i))

@@ -97,7 +97,7 @@ def safety_lines(r: StudyResult) -> list[str]:
     several = len(r.zones) > 1
     if several:
         out.append("  Zones (where people stand); each criterion is judged in every zone against that zone's limit:")
-        names = [z.name if z.zone.body_weight is None else f"{z.name} ({z.body_weight} kg)" for z in r.zones]
+        names = [z.label() for z in r.zones]
         w = min(34, max(22, max(len(n) for n in names) + 1))
         out.append(f"    {'zone':<{w}}{'covering':<22}{'Cs':>6}{'touch limit':>13}{'step limit':>12}")
         for z, name in zip(r.zones, names):

@@ -44,6 +44,12 @@ class ZoneVerdict:
         """Zone name."""
         return self.zone.name
 
+    def label(self, cut: int | None = None) -> str:
+        """The name as printed in tables (its first ``cut`` characters), with the body weight where the zone sets
+        its own ('public (50 kg)')."""
+        name = self.name[:cut]
+        return name if self.zone.body_weight is None else f"{name} ({self.body_weight} kg)"
+
     @property
     def tolerable_touch(self) -> float:
         """V."""

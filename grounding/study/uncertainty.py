@@ -265,8 +265,8 @@ class _Watch:
         for criterion, check in self.checks.items():
             lim = None
             if check.worst is not None and check.zone in names:
-                table = limits[names.index(check.zone)]
-                lim = (table.step if criterion == "step" else table.touch)[case.zones[names.index(check.zone)].weight(weight)]
+                k = names.index(check.zone)
+                lim = (limits[k].step if criterion == "step" else limits[k].touch)[case.zones[k].weight(weight)]
             out[f"{criterion}_limit"] = lim
         if limits_only:
             return out

@@ -154,8 +154,7 @@ def zone_rows(r: StudyResult):
     for z in r.zones:
         e = z.extremes
         oks = [z.ok(k) for k in ("touch", "step", "mesh") if z.ok(k) is not None]
-        name = z.name[:24] if z.zone.body_weight is None else f"{z.name[:24]} ({z.body_weight} kg)"
-        rows.append([name, covering_text(z.zone), f"{z.limits.cs:.3f}",
+        rows.append([z.label(24), covering_text(z.zone), f"{z.limits.cs:.3f}",
                      f"{volts(e.touch.value) if e.touch else '—'} / {volts(z.tolerable_touch)}",
                      f"{volts(e.step.value) if e.step else '—'} / {volts(z.tolerable_step)}",
                      volts(e.mesh.value) if e.mesh else "—", verdict_word(all(oks)) if oks else "n/a"])
