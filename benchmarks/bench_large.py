@@ -38,12 +38,12 @@ SOILS = {
 CHILD = r"""
 import json, resource, sys, time
 import numpy as np
-from grounding.case_loader import parse_case
-from grounding.geometry import segment
-from grounding.operators import compressed_operator, dense_operator
-from grounding.soil import make_kernel
-from grounding.solve import solve_operator
-from grounding.surface import surface_potential
+from grounding.case.load import parse_case
+from grounding.geometry.segments import segment
+from grounding.kernels import make_kernel
+from grounding.operators.mutual_resistance import compressed_operator, dense_operator
+from grounding.operators.potential import surface_potential
+from grounding.solve.equipotential import solve_operator
 
 case = parse_case(sys.argv[1]); kind = sys.argv[2]; do_map = sys.argv[3] == "1"
 seg = segment(case)
