@@ -30,6 +30,11 @@ ITERATIVE_RTOL = 1e-6
 #: Absolute floor of every comparison in SI units (1 nV, 1 nA, 1 nm, 1 nΩ): numbers that should be zero
 #: (a coordinate on an axis, a current per volt that cancels) differ by rounding there.
 ATOL = 1e-9
+#: Relative tolerance of a case whose soil is fitted to a sounding: the fit is the minimum of a least-squares
+#: misfit, which is quadratic there and so locates its argument only to about the square root of the machine
+#: epsilon (√2.2e-16 ≈ 1.5e-8; Press et al., Numerical Recipes, 3rd ed., §10.1). Rounding of other CPUs' BLAS
+#: kernels moves the fitted layers that far: measured 1.9e-8 on an AVX-512 machine against the stored results.
+FITTED_RTOL = 1e-7
 
 
 @dataclass(frozen=True)
@@ -45,7 +50,7 @@ CASES = (
     GoldenCase("uniform", "cases/kestrel-bend-uniform.yaml"),
     GoldenCase("two-layer", "cases/kestrel-bend-two-layer.yaml"),
     GoldenCase("three-layer", "cases/kestrel-bend-three-layer.yaml"),
-    GoldenCase("fitted", "cases/kestrel-bend-fitted.yaml"),
+    GoldenCase("fitted", "cases/kestrel-bend-fitted.yaml", FITTED_RTOL),
     GoldenCase("fence-isolated", "cases/kestrel-bend-fence-isolated.yaml"),
     GoldenCase("fence-bonded", "cases/kestrel-bend-fence-bonded.yaml"),
     GoldenCase("seasons", "cases/kestrel-bend-seasons.yaml"),
