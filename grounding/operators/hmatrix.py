@@ -260,14 +260,18 @@ def cluster_basis(tree: ClusterTree, points: np.ndarray, used: np.ndarray,
     """
     used, per_axis, first, count, m = _basis_layout(tree, used, nodes_xy, nodes_z)
     nodes = np.zeros((m, 3))
-    rows, cols, vals = [], [], []
+    # row k (a node of cluster c) holds the weights of c's points: row pointers first, then the values in place
+    row_len = np.repeat(tree.size[used].astype(np.int64), count[used])
+    indptr = np.zeros(m + 1, np.int64)
+    np.cumsum(row_len, out=indptr[1:])
+    idx_type = np.int32 if max(int(indptr[-1]), m, len(points)) < 2 ** 31 else np.int64
+    indices, data = np.empty(int(indptr[-1]), idx_type), np.empty(int(indptr[-1]))
     for idx, at, grid, w in _basis_groups(tree, points, used, per_axis, first):
         nodes[at.ravel()] = grid.reshape(-1, 3)
-        rows.append(np.broadcast_to(at[:, None, :], w.shape).ravel().astype(np.int32))
-        cols.append(np.broadcast_to(idx[:, :, None], w.shape).ravel().astype(np.int32))
-        vals.append(w.ravel())
-    cat = (lambda x, t: np.concatenate(x) if x else np.zeros(0, t))
-    matrix = unique_csr(cat(rows, np.int32), cat(cols, np.int32), cat(vals, float), (m, len(points)))
+        pos = indptr[at][:, :, None] + np.arange(idx.shape[1])                          # (g, k, n)
+        indices[pos] = np.broadcast_to(idx[:, None, :], pos.shape)
+        data[pos] = np.swapaxes(w, 1, 2)
+    matrix = sp.csr_matrix((data, indices, indptr.astype(idx_type)), shape=(m, len(points)), copy=False)
     return ClusterBasis(nodes, first, count, matrix)
 
 
@@ -348,29 +352,79 @@ def threaded_map(function, items, window: int | None = None):
             yield pending.popleft().result()
 
 
-def _block_entries(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s_first, s_count, s_pts,
-                   t_index, s_index, t_depth, s_depth, symmetric: bool, progress: Progress | None, label: str):
-    """COO entries (rows, cols, values) of the dense blocks of :func:`_block_values`; with ``symmetric``
-    each block (t, s), t ≠ s, also gives its transpose and diagonal blocks are made exactly symmetric."""
-    rows, cols, vals = [], [], []
-    for g, it, js, v in _block_values(kernel, blocks, t_first, t_count, t_pts, s_first, s_count, s_pts,
+def _ragged(first: np.ndarray, count: np.ndarray) -> np.ndarray:
+    """first[k] + 0 … count[k] − 1 for every k, concatenated."""
+    count = np.asarray(count, np.int64)
+    total = int(count.sum())
+    if total == 0:
+        return np.zeros(0, np.int64)
+    starts = np.cumsum(count) - count
+    return np.repeat(np.asarray(first, np.int64) - starts, count) + np.arange(total)
+
+
+def _block_csr(kernel: Kernel, blocks: np.ndarray, t_first, t_count, t_pts, s_first, s_count, s_pts,
+               t_index, s_index, t_depth, s_depth, symmetric: bool, progress: Progress | None, label: str,
+               shape: tuple[int, int], zero_diagonal: bool = False, extra: np.ndarray | None = None) -> sp.csr_matrix:
+    """The CSR matrix of the dense blocks of :func:`_block_values`, written straight into its final arrays.
+
+    Every row belongs to one target cluster and all rows of a cluster hold the same blocks, so each block's place
+    in its rows is known before any value is: row pointers first, then each chunk of values into place (12 bytes
+    an entry in all, no coordinate lists nor sorting). With ``symmetric`` each block (t, s), t ≠ s, also fills its
+    transpose and diagonal blocks are made exactly symmetric; ``zero_diagonal``: entries (i, i) are 0; ``extra``:
+    index pairs (k, 2) held with the value 0 at the end of their rows. No (row, column) may repeat."""
+    extra = np.zeros((0, 2), np.int64) if extra is None else np.asarray(extra, np.int64)
+    blocks = np.asarray(blocks, np.int64).reshape(-1, 2)
+    nb = len(blocks)
+    # oriented blocks: (t, s) each, and (s, t) for the off-diagonal blocks of a symmetric matrix
+    mirror = np.flatnonzero(blocks[:, 0] != blocks[:, 1]) if symmetric else np.zeros(0, np.int64)
+    tgt = np.concatenate([blocks[:, 0], blocks[mirror, 1]])
+    width = np.concatenate([s_count[blocks[:, 1]], t_count[blocks[mirror, 0]]]).astype(np.int64)
+    order = np.argsort(tgt, kind="stable")
+    within = np.cumsum(width[order]) - width[order]                    # running width over all oriented blocks …
+    group_start = np.searchsorted(tgt[order], tgt[order])              # … less that before this target's first
+    offset = np.empty(len(tgt), np.int64)
+    offset[order] = within - within[group_start]
+    cluster_width = np.bincount(tgt, width, minlength=len(t_count)).astype(np.int64)
+    # row pointers: a row's blocks, then its extra entries
+    row_len = np.zeros(shape[0], np.int64)
+    clusters = np.flatnonzero(cluster_width)
+    row_len[t_index[_ragged(t_first[clusters], t_count[clusters])]] = np.repeat(cluster_width[clusters],
+                                                                               t_count[clusters])
+    extra_at = row_len.copy()
+    row_len += np.bincount(extra[:, 0], minlength=shape[0]).astype(np.int64)
+    indptr = np.zeros(shape[0] + 1, np.int64)
+    np.cumsum(row_len, out=indptr[1:])
+    nnz = int(indptr[-1])
+    idx_type = np.int32 if max(nnz, *shape) < 2 ** 31 else np.int64
+    indices, data = np.empty(nnz, idx_type), np.empty(nnz)
+    if len(extra):
+        order_e = np.argsort(extra[:, 0], kind="stable")
+        e = extra[order_e]
+        rank = np.arange(len(e)) - np.searchsorted(e[:, 0], e[:, 0])   # place among its row's extras
+        pos = indptr[e[:, 0]] + extra_at[e[:, 0]] + rank
+        indices[pos] = e[:, 1]
+        data[pos] = 0.0
+    back = np.full(nb, -1, np.int64)
+    back[mirror] = nb + np.arange(len(mirror))
+    ids = np.column_stack([blocks, np.arange(nb)])
+    for g, it, js, v in _block_values(kernel, ids, t_first, t_count, t_pts, s_first, s_count, s_pts,
                                       t_index, s_index, t_depth, s_depth, progress, label):
-        I = np.broadcast_to(it[:, :, None], v.shape)
-        J = np.broadcast_to(js[:, None, :], v.shape)
+        a, b = it.shape[1], js.shape[1]
+        diag = g[:, 0] == g[:, 1]
+        if symmetric and diag.any():
+            v[diag] = 0.5 * (v[diag] + np.swapaxes(v[diag], 1, 2))
+        if zero_diagonal and diag.any():
+            v[diag] = np.where(it[diag][:, :, None] == js[diag][:, None, :], 0.0, v[diag])
+        pos = (indptr[it] + offset[g[:, 2]][:, None])[:, :, None] + np.arange(b)
+        indices[pos] = np.broadcast_to(js[:, None, :], v.shape)
+        data[pos] = v
         if symmetric:
-            diag = g[:, 0] == g[:, 1]
-            if diag.any():
-                v[diag] = 0.5 * (v[diag] + np.swapaxes(v[diag], 1, 2))
             off = ~diag
-            rows += [I.ravel(), J[off].ravel()]
-            cols += [J.ravel(), I[off].ravel()]
-            vals += [v.ravel(), v[off].ravel()]
-        else:
-            rows.append(I.ravel()); cols.append(J.ravel()); vals.append(v.ravel())
-    if not rows:
-        z = np.zeros(0, np.int32)
-        return z, z, np.zeros(0)
-    return (np.concatenate(rows).astype(np.int32), np.concatenate(cols).astype(np.int32), np.concatenate(vals))
+            if off.any():
+                pos = (indptr[js[off]] + offset[back[g[off, 2]]][:, None])[:, :, None] + np.arange(a)
+                indices[pos] = np.broadcast_to(it[off][:, None, :], (int(off.sum()), b, a))
+                data[pos] = np.swapaxes(v[off], 1, 2)
+    return sp.csr_matrix((data, indices, indptr.astype(idx_type)), shape=shape, copy=False)
 
 
 @dataclass(frozen=True)
@@ -391,6 +445,11 @@ class HMatrix:
         Counts of the two kinds of blocks.
     target_tree, source_tree : ClusterTree
         The cluster trees (the same object for a symmetric matrix).
+    leaf_of : ndarray of int, shape (M,), optional
+        Symmetric matrix: the leaf cluster of each point.
+    near_keys : ndarray of int64, optional
+        Symmetric matrix: the leaf pairs held in ``near``, as sorted keys min(t, s)·C + max(t, s), C clusters
+        (see :meth:`in_near`).
     """
 
     near: sp.csr_matrix
@@ -401,6 +460,13 @@ class HMatrix:
     near_blocks: int
     target_tree: ClusterTree
     source_tree: ClusterTree
+    leaf_of: np.ndarray | None = None
+    near_keys: np.ndarray | None = None
+
+    def in_near(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+        """Whether the kernel values of point pairs (i, j) of a symmetric matrix are held in ``near`` (not
+        interpolated)."""
+        return _holds(self.near_keys, _leaf_pair_keys(self.leaf_of[i], self.leaf_of[j], len(self.target_tree.start)))
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -427,10 +493,34 @@ def _flat_depth(tree: ClusterTree) -> np.ndarray:
     return np.where(flat, np.round(tree.lo[:, 2] / QUANTUM), -1).astype(np.int64)
 
 
+def leaf_of_points(tree: ClusterTree) -> np.ndarray:
+    """The leaf cluster holding each point (the leaves' ranges partition the tree order)."""
+    leaves = np.flatnonzero(tree.is_leaf)
+    leaves = leaves[np.argsort(tree.start[leaves])]
+    out = np.empty(len(tree.order), np.int64)
+    out[tree.order] = np.repeat(leaves, tree.size[leaves])
+    return out
+
+
+def _leaf_pair_keys(a: np.ndarray, b: np.ndarray, clusters: int) -> np.ndarray:
+    """Order-free keys of leaf pairs: min·C + max."""
+    a, b = np.asarray(a, np.int64), np.asarray(b, np.int64)
+    return np.minimum(a, b) * clusters + np.maximum(a, b)
+
+
+def _holds(sorted_keys: np.ndarray, keys: np.ndarray) -> np.ndarray:
+    """Whether each of ``keys`` is in ``sorted_keys``."""
+    if len(sorted_keys) == 0:
+        return np.zeros(np.shape(keys), bool)
+    at = np.minimum(np.searchsorted(sorted_keys, keys), len(sorted_keys) - 1)
+    return sorted_keys[at] == keys
+
+
 def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | None = None,
                   target_layer: np.ndarray | None = None, source_layer: np.ndarray | None = None,
                   eta: float = ETA, leaf_size: int = LEAF_SIZE, nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z,
-                  progress: Progress | None = None, label: str = "compress") -> HMatrix:
+                  progress: Progress | None = None, label: str = "compress",
+                  pattern: tuple[np.ndarray, ...] = ()) -> HMatrix:
     """Hierarchical approximation of K_ij = kernel(x_i, y_j).
 
     Parameters
@@ -451,6 +541,9 @@ def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | Non
         Chebyshev nodes per horizontal coordinate and in depth.
     progress : callable, optional
         Called as progress(label, fraction).
+    pattern : tuple of ndarray of int, each of shape (k, 2), optional
+        Symmetric matrix: point pairs (i ≤ j) the ``near`` matrix must hold an entry for, both ways; pairs the
+        near blocks do not cover get an explicit 0 (room for a later sparse correction, added in place).
     """
     symmetric = sources is None
     targets = np.asarray(targets, float)
@@ -464,17 +557,22 @@ def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | Non
     tb = cluster_basis(t_tree, targets, far[:, 0] if not symmetric else far.ravel(), nodes_xy, nodes_z)
     sb = tb if symmetric else cluster_basis(s_tree, sources, far[:, 1], nodes_xy, nodes_z)
     t_depth, s_depth = _flat_depth(t_tree), _flat_depth(s_tree)
-    r, c, v = _block_entries(kernel, far, tb.first, tb.count, tb.nodes, sb.first, sb.count, sb.nodes,
-                             np.arange(len(tb.nodes)), np.arange(len(sb.nodes)), t_depth, s_depth, symmetric,
-                             progress, label)
-    coupling = unique_csr(r, c, v, (len(tb.nodes), len(sb.nodes)))
-    del r, c, v
-    r, c, v = _block_entries(kernel, near, t_tree.start, t_tree.size, targets, s_tree.start, s_tree.size, sources,
-                             t_tree.order, s_tree.order, t_depth, s_depth, symmetric, progress, label)
+    coupling = _block_csr(kernel, far, tb.first, tb.count, tb.nodes, sb.first, sb.count, sb.nodes,
+                          np.arange(len(tb.nodes)), np.arange(len(sb.nodes)), t_depth, s_depth, symmetric,
+                          progress, label, (len(tb.nodes), len(sb.nodes)))
+    leaf_of = near_keys = extra = None
     if symmetric:
-        v[r == c] = 0.0
-    near_m = unique_csr(r, c, v, (len(targets), len(sources)))
-    return HMatrix(near_m, tb, coupling, sb, len(far), len(near), t_tree, s_tree)
+        leaf_of = leaf_of_points(t_tree)
+        near_keys = np.sort(_leaf_pair_keys(near[:, 0], near[:, 1], len(t_tree.start)))
+        outside = [P[~_holds(near_keys, _leaf_pair_keys(leaf_of[P[:, 0]], leaf_of[P[:, 1]], len(t_tree.start)))]
+                   for P in (pattern or ())]
+        if outside:
+            out = np.vstack(outside).astype(np.int64)
+            extra = np.vstack([out, out[out[:, 0] != out[:, 1]][:, ::-1]])
+    near_m = _block_csr(kernel, near, t_tree.start, t_tree.size, targets, s_tree.start, s_tree.size, sources,
+                        t_tree.order, s_tree.order, t_depth, s_depth, symmetric, progress, label,
+                        (len(targets), len(sources)), zero_diagonal=symmetric, extra=extra)
+    return HMatrix(near_m, tb, coupling, sb, len(far), len(near), t_tree, s_tree, leaf_of, near_keys)
 
 
 def apply_once(kernel: Kernel, targets: np.ndarray, sources: np.ndarray, x: np.ndarray,

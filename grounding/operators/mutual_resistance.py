@@ -23,7 +23,7 @@ import scipy.sparse as sp
 from ..geometry.segments import Segments
 from ..kernels.base import SoilKernel
 from .assembly import PAIR_CHUNK, AssemblyOptions, Progress, assemble, middle_values, near_pairs, near_values
-from .hmatrix import HMatrix, build_hmatrix, pair_values, threaded_map, unique_csr
+from .hmatrix import HMatrix, build_hmatrix, pair_values, threaded_map
 
 #: Largest diagonal block of the block-Jacobi preconditioner (segments).
 PRECONDITIONER_BLOCK = 256
@@ -76,23 +76,21 @@ class CompressedOperator:
         Hierarchical approximation of the midpoint kernel between segments, Ω (its ``near`` part is
         held in ``local``).
     local : scipy.sparse.csr_matrix
-        The hierarchical matrix's near blocks plus the correction, Ω: one sparse product.
-    correction : scipy.sparse.csr_matrix
-        Galerkin minus midpoint values of the self, near and middle pairs, Ω.
+        The hierarchical matrix's near blocks plus the correction C (Galerkin minus midpoint values of the self,
+        near and middle pairs), Ω: one sparse product.
     segments, kernel
         What the operator was built from (for exact sub-blocks).
     """
 
     hmatrix: HMatrix
     local: sp.csr_matrix
-    correction: sp.csr_matrix
     segments: Segments
     kernel: SoilKernel
     kind: str = field(default="compressed", init=False)
 
     @property
     def size(self) -> int:
-        return self.correction.shape[0]
+        return self.local.shape[0]
 
     def apply(self, x: np.ndarray) -> np.ndarray:
         """R x, V per A of x (x of shape (N,) or (N, k))."""
@@ -103,12 +101,14 @@ class CompressedOperator:
         return self.local.diagonal()
 
     def block(self, idx: np.ndarray) -> np.ndarray:
-        """R restricted to the segments ``idx``: midpoint kernel plus correction, evaluated exactly."""
+        """R restricted to the segments ``idx``, exactly: the local matrix, and the midpoint kernel for the pairs
+        the hierarchical matrix interpolates."""
         mid = self.segments.midpoint[idx]
         g = pair_values(self.kernel.potential, mid[:, None, :], mid[None, :, :])
         np.fill_diagonal(g, 0.0)
         g = 0.5 * (g + g.T)
-        return g + self.correction[idx][:, idx].toarray()
+        held = self.hmatrix.in_near(idx[:, None], idx[None, :])
+        return np.where(held, 0.0, g) + self.local[idx][:, idx].toarray()
 
     def dense(self, limit: int = 20_000) -> np.ndarray:
         """R as a dense array (N ≤ ``limit``; for checks and small cases), Ω."""
@@ -130,8 +130,8 @@ class CompressedOperator:
 
     @property
     def nbytes(self) -> int:
-        return self.hmatrix.nbytes + sum(int(c.data.nbytes + c.indices.nbytes + c.indptr.nbytes)
-                                         for c in (self.local, self.correction))
+        l = self.local
+        return self.hmatrix.nbytes + int(l.data.nbytes + l.indices.nbytes + l.indptr.nbytes)
 
 
 def dense_operator(segments: Segments, kernel: SoilKernel, options: AssemblyOptions = AssemblyOptions(),
@@ -150,11 +150,23 @@ def midpoint_values(segments: Segments, kernel: SoilKernel, i: np.ndarray, j: np
 
 def compressed_operator(segments: Segments, kernel: SoilKernel, options: AssemblyOptions = AssemblyOptions(),
                         progress: Progress | None = None) -> CompressedOperator:
-    """The compressed operator; memory and time grow about as N log N."""
+    """The compressed operator; memory and time grow about as N log N.
+
+    The correction is added in place to the hierarchical matrix's near part, whose pattern was built to hold
+    every corrected pair: one sparse matrix, no second one nor a sum of two (the transient copies that set the
+    build's peak memory)."""
     mid = segments.midpoint
+    near, middle = (p.astype(np.int32) for p in near_pairs(segments, options))
+    if progress:
+        progress("assemble", 0.0)
     H = build_hmatrix(kernel.potential, mid, target_layer=kernel.layer_of(mid[:, 2]), progress=progress,
-                      label="assemble")
-    near, middle = near_pairs(segments, options)
+                      label="assemble", pattern=(near, middle))
+    local = H.near
+    local.sort_indices()
+    n = len(segments)
+    keys = np.repeat(np.arange(n, dtype=np.int64), np.diff(local.indptr))      # (row · n + column) of each entry,
+    keys *= n                                                                   # ascending once the rows are sorted
+    keys += local.indices
     chunks = [(pairs[a:a + PAIR_CHUNK], exact) for pairs, exact in ((near, True), (middle, False))
               for a in range(0, len(pairs), PAIR_CHUNK)]
 
@@ -165,19 +177,16 @@ def compressed_operator(segments: Segments, kernel: SoilKernel, options: Assembl
             - midpoint_values(segments, kernel, i, j)
         return i, j, v
 
-    rows, cols, vals = [], [], []
     for i, j, v in threaded_map(correct, chunks):
         off = i != j
-        rows += [i, j[off]]
-        cols += [j, i[off]]
-        vals += [v, v[off]]
-    n = len(segments)
-    correction = unique_csr(np.concatenate(rows).astype(np.int32), np.concatenate(cols).astype(np.int32),
-                            np.concatenate(vals), (n, n))
-    del rows, cols, vals
-    local = H.near + correction
-    empty = sp.csr_matrix((n, n))
-    return CompressedOperator(replace(H, near=empty), local, correction, segments, kernel)
+        for a, b, w in ((i, j, v), (j[off], i[off], v[off])):
+            k = a.astype(np.int64) * n + b
+            at = np.searchsorted(keys, k)
+            if not np.array_equal(keys[np.minimum(at, len(keys) - 1)], k):
+                raise RuntimeError("compressed operator: a corrected pair is missing from the near pattern")
+            local.data[at] += w
+    del keys
+    return CompressedOperator(replace(H, near=sp.csr_matrix((n, n))), local, segments, kernel)
 
 
 def compressed_memory_bytes(n_segments: int) -> int:

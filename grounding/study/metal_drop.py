@@ -54,6 +54,13 @@ def estimate_metal_drop(case: Case, segments: Segments | None = None) -> MetalDr
     h = case.discretization.max_segment
     coarse = case
     if segments is None or len(segments) > DROP_ESTIMATE_SEGMENTS:
+        # the pieces between junctions are the fewest segments any max_segment gives: past the limit, no
+        # coarsening reaches it (one segmentation instead of a search that cannot succeed)
+        pieces = len(segment(replace(case, discretization=replace(case.discretization, max_segment=1e9))))
+        if pieces > DROP_MAX_SEGMENTS:
+            return MetalDrop(None, None, None, True, f"not estimated: the layout needs more than "
+                                                     f"{DROP_MAX_SEGMENTS} segments even when coarsened "
+                                                     f"({pieces:,} conductor pieces between junctions)")
         start, found = (None if segments is None else len(segments)), False
         # toward DROP_ESTIMATE_SEGMENTS; a layout with too many pieces for that, toward DROP_MAX_SEGMENTS (the
         # finest discretisation that fits: far coarser ones can make segments longer than their spacing)
