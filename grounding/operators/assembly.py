@@ -73,7 +73,15 @@ def near_pairs(segments: Segments, options: AssemblyOptions) -> tuple[np.ndarray
     pairs = tree.query_pairs(options.mid_reach * L.max(), output_type="ndarray")
     if len(pairs) == 0:
         pairs = np.zeros((0, 2), dtype=np.intp)
-    d = np.linalg.norm(mid[pairs[:, 0]] - mid[pairs[:, 1]], axis=1)
+    i, j = pairs[:, 0], pairs[:, 1]
+    d = np.zeros(len(pairs))
+    for k in range(3):                     # a coordinate at a time: no (n, 3) gathers (np.linalg.norm's took 6.5 of
+        x = np.ascontiguousarray(mid[:, k])   # 7 s at 241 000 segments, 35 million pairs)
+        dx = x[i]
+        dx -= x[j]
+        dx *= dx
+        d += dx
+    d = np.sqrt(d)
     lm = np.maximum(L[pairs[:, 0]], L[pairs[:, 1]])
     near = d < options.near_reach * lm
     middle = ~near & (d < options.mid_reach * lm)

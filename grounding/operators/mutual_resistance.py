@@ -170,22 +170,27 @@ def compressed_operator(segments: Segments, kernel: SoilKernel, options: Assembl
     chunks = [(pairs[a:a + PAIR_CHUNK], exact) for pairs, exact in ((near, True), (middle, False))
               for a in range(0, len(pairs), PAIR_CHUNK)]
 
+    def place(a, b):
+        """Positions in ``local.data`` of the entries (a, b)."""
+        k = a.astype(np.int64) * n + b
+        order = np.argsort(k)                  # sorted needles: each search starts where the last one ended
+        at = np.empty(len(k), np.int64)
+        at[order] = np.searchsorted(keys, k[order])
+        if not np.array_equal(keys[np.minimum(at, len(keys) - 1)], k):
+            raise RuntimeError("compressed operator: a corrected pair is missing from the near pattern")
+        return at
+
     def correct(item):
         p, exact = item
         i, j = p[:, 0], p[:, 1]
         v = (near_values(segments, kernel, i, j) if exact else middle_values(segments, kernel, i, j)) \
             - midpoint_values(segments, kernel, i, j)
-        return i, j, v
-
-    for i, j, v in threaded_map(correct, chunks):
         off = i != j
-        for a, b, w in ((i, j, v), (j[off], i[off], v[off])):
-            k = a.astype(np.int64) * n + b
-            at = np.searchsorted(keys, k)
-            if not np.array_equal(keys[np.minimum(at, len(keys) - 1)], k):
-                raise RuntimeError("compressed operator: a corrected pair is missing from the near pattern")
-            local.data[at] += w
-    del keys
+        return place(i, j), place(j[off], i[off]), v, v[off]
+
+    for at, back, v, w in threaded_map(correct, chunks):     # the searches on the worker threads, the sums here
+        local.data[at] += v
+        local.data[back] += w
     return CompressedOperator(replace(H, near=sp.csr_matrix((n, n))), local, segments, kernel)
 
 
