@@ -275,14 +275,6 @@ def cluster_basis(tree: ClusterTree, points: np.ndarray, used: np.ndarray,
     return ClusterBasis(nodes, first, count, matrix)
 
 
-def unique_csr(rows: np.ndarray, cols: np.ndarray, vals: np.ndarray, shape: tuple[int, int]) -> sp.csr_matrix:
-    """CSR matrix of entries known to have no duplicate (row, col): the summing of duplicates, a sort of
-    every row's indices, is skipped (products do not need sorted indices)."""
-    coo = sp.coo_matrix((vals, (rows, cols)), shape=shape)
-    coo.has_canonical_format = True
-    return coo.tocsr()
-
-
 def pair_values(kernel: Kernel, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     """G between point arrays of equal leading shape x (…, 3) and y (…, 3), non-finite values → 0."""
     r = np.hypot(x[..., 0] - y[..., 0], x[..., 1] - y[..., 1])
