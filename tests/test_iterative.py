@@ -80,12 +80,16 @@ def test_hmatrix_product_matches_the_direct_sum(kernel):
     assert np.abs(got - Ds @ x).max() < 1e-4 * np.abs(Ds @ x).max()
 
 
-def test_compressed_operator_is_symmetric_and_close_to_the_dense_matrix():
+def _two_layer_operators():
+    """The compressed operator and the dense matrix of the two-layer test case."""
     case = _case("two-layer")
     seg = segment(case)
     kernel = make_kernel(case.soil, 1.0)
-    op = compressed_operator(seg, kernel)
-    R = dense_operator(seg, kernel).matrix
+    return compressed_operator(seg, kernel), dense_operator(seg, kernel).matrix
+
+
+def test_compressed_operator_is_symmetric_and_close_to_the_dense_matrix():
+    op, R = _two_layer_operators()
     C = op.dense()
     assert np.abs(C - C.T).max() <= 1e-12 * np.abs(C).max()
     np.testing.assert_allclose(op.diagonal, np.diag(R), rtol=1e-12)
@@ -97,11 +101,7 @@ def test_preconditioner_blocks_are_the_exact_matrix_and_the_local_part_holds_eac
     from it and the midpoint kernel where the hierarchical matrix interpolates, equals the dense assembly's block
     to the layered kernel's tabulation (measured 7e-8; a lost correction would be off by percents, a lost midpoint
     term entirely), and no (row, column) repeats."""
-    case = _case("two-layer")
-    seg = segment(case)
-    kernel = make_kernel(case.soil, 1.0)
-    op = compressed_operator(seg, kernel)
-    R = dense_operator(seg, kernel).matrix
+    op, R = _two_layer_operators()
     blocks = op.blocks()
     assert len(blocks) > 1
     for idx in blocks:

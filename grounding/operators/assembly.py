@@ -82,7 +82,7 @@ def near_pairs(segments: Segments, options: AssemblyOptions) -> tuple[np.ndarray
         dx *= dx
         d += dx
     d = np.sqrt(d)
-    lm = np.maximum(L[pairs[:, 0]], L[pairs[:, 1]])
+    lm = np.maximum(L[i], L[j])
     near = d < options.near_reach * lm
     middle = ~near & (d < options.mid_reach * lm)
     own = np.repeat(np.arange(len(L))[:, None], 2, axis=1)
