@@ -253,7 +253,9 @@ def _levels(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return q[:1], np.zeros(q.size, dtype=np.int64)
     sample = np.unique(q[:: max(1, q.size // 4096)])
     idx = np.minimum(np.searchsorted(sample, q), len(sample) - 1)
-    if np.array_equal(sample[idx], q):
+    missed = sample[idx] != q
+    if not missed.any():
         return sample, idx
-    levels, inverse = np.unique(q, return_inverse=True)
-    return levels, inverse.ravel()
+    # depths the sample missed (rod points: many depths, few pairs each) are added; no full sort of q
+    levels = np.union1d(sample, q[missed])
+    return levels, np.searchsorted(levels, q)

@@ -100,8 +100,8 @@ def near_term_sum(kernel: SoilKernel, obs_z: np.ndarray, src_a: np.ndarray, src_
     lo = kernel.layer_of(obs_z)
     ls = kernel.layer_of(0.5 * (src_a[:, 2] + src_b[:, 2]))
     out = np.zeros(len(obs_z))
-    for o in np.unique(lo):
-        for sl in np.unique(ls):
+    for o in np.flatnonzero(np.bincount(lo)):               # the layers present, ascending (np.unique sorts)
+        for sl in np.flatnonzero(np.bincount(ls)):
             m = (lo == o) & (ls == sl)
             if not m.any():
                 continue
