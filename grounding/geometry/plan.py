@@ -12,21 +12,30 @@ from ..case.site import shapely_polygon
 from .segments import Segments
 
 
-def metal_footprint(segments: Segments, mask: np.ndarray, reach: float,
-                    inside: shapely.Geometry | None = None) -> tuple[shapely.Geometry, shapely.Geometry]:
-    """Plan view of the conductors selected by ``mask``: (meshes they form, everything within ``reach``
-    of them), shapely geometries in the x–y plane (m).
-
-    ``inside``: an area the caller adds to the result anyway (e.g. the grid's meshes of the touch area). The
-    second geometry is then (everything within ``reach``) ∪ ``inside``, computed without buffering the
-    conductors whose band lies in ``inside`` (covered by it and at least ``reach`` from its edge: a point of the
-    band outside would put the edge closer), the same set at a fraction of the cost on large grids."""
+def _noded_meshes(segments: Segments, mask: np.ndarray) -> tuple[shapely.Geometry | None, shapely.Geometry]:
+    """The horizontal conductors selected by ``mask`` noded at their crossings, and the meshes they close."""
     c = segments.conductors
     horizontal = ~c.is_rod & mask
     lines = [LineString([tuple(c.start[k, :2]), tuple(c.end[k, :2])]) for k in np.flatnonzero(horizontal)
              if np.linalg.norm(c.start[k, :2] - c.end[k, :2]) > 1e-6]
     noded = unary_union(MultiLineString(lines)) if lines else None
     meshes = unary_union(list(polygonize(noded))) if noded is not None else Polygon()
+    return noded, meshes
+
+
+def metal_footprint(segments: Segments, mask: np.ndarray, reach: float,
+                    inside: shapely.Geometry | None = None,
+                    noded_meshes: tuple | None = None) -> tuple[shapely.Geometry, shapely.Geometry]:
+    """Plan view of the conductors selected by ``mask``: (meshes they form, everything within ``reach``
+    of them), shapely geometries in the x–y plane (m).
+
+    ``inside``: an area the caller adds to the result anyway (e.g. the grid's meshes of the touch area). The
+    second geometry is then (everything within ``reach``) ∪ ``inside``, computed without buffering the
+    conductors whose band lies in ``inside`` (covered by it and at least ``reach`` from its edge: a point of the
+    band outside would put the edge closer), the same set at a fraction of the cost on large grids.
+    ``noded_meshes``: :func:`_noded_meshes` of the same ``mask``, when the caller has it."""
+    c = segments.conductors
+    noded, meshes = noded_meshes or _noded_meshes(segments, mask)
     if reach <= 0 and inside is None:                # the meshes alone were asked for
         return meshes, Polygon()
     parts = []
@@ -88,9 +97,11 @@ def touch_region(segments: Segments, surface: SurfaceMap) -> tuple[shapely.Geome
     c = segments.conductors
     main = c.group == 0
     block = main & c.matching(("electrodes",))
-    meshes, _ = metal_footprint(segments, block, 0.0)
+    noded = _noded_meshes(segments, block)
+    meshes = noded[1]
     if not surface.touch_areas:
-        _, reach = metal_footprint(segments, main, surface.touch_reach, inside=meshes)
+        _, reach = metal_footprint(segments, main, surface.touch_reach, inside=meshes,
+                                   noded_meshes=noded if np.array_equal(block, main) else None)
         return unary_union([meshes, reach]), meshes
     parts = []
     for t in surface.touch_areas:

@@ -567,10 +567,56 @@ def build_hmatrix(kernel: Kernel, targets: np.ndarray, sources: np.ndarray | Non
     return HMatrix(near_m, tb, coupling, sb, len(far), len(near), t_tree, s_tree, leaf_of, near_keys)
 
 
+class SourceMoments:
+    """Node values of the source clusters' interpolation (the weights of a cluster's points times their strengths,
+    summed per node), made for a cluster the first time a product uses it and kept: the products of one set of
+    sources at many target sets (a map, then its searches) share them.
+
+    Parameters
+    ----------
+    tree : ClusterTree
+        The sources' cluster tree.
+    points : ndarray, shape (N, 3)
+        Source points, m.
+    x : ndarray, shape (N,)
+        Source strengths.
+    """
+
+    def __init__(self, tree: ClusterTree, points: np.ndarray, x: np.ndarray, nodes_xy: int = NODES_XY,
+                 nodes_z: int = NODES_Z):
+        self.tree, self.points, self.x = tree, points, np.asarray(x, float)
+        self.nodes_xy, self.nodes_z = nodes_xy, nodes_z
+        clusters = len(tree.start)
+        self.first = np.zeros(clusters, int)
+        self.count = np.zeros(clusters, int)
+        self.have = np.zeros(clusters, bool)
+        self.nodes = np.zeros((0, 3))
+        self.values = np.zeros(0)
+
+    def of(self, used: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """(first, count, nodes, values) holding at least the clusters ``used``: cluster c's nodes are
+        ``nodes[first[c]:first[c] + count[c]]``."""
+        used = np.unique(used)
+        missing = used[~self.have[used]]
+        if len(missing):
+            done, axis, first, count, m = _basis_layout(self.tree, missing, self.nodes_xy, self.nodes_z)
+            nodes, values = np.zeros((m, 3)), np.zeros(m)
+            for idx, at, grid, w in _basis_groups(self.tree, self.points, done, axis, first):
+                nodes[at.ravel()] = grid.reshape(-1, 3)
+                values[at] = np.einsum("gnk,gn->gk", w, self.x[idx])
+            self.first[done] = first[done] + len(self.nodes)
+            self.count[done] = count[done]
+            self.have[done] = True
+            self.nodes = np.vstack([self.nodes, nodes])
+            self.values = np.concatenate([self.values, values])
+        return self.first, self.count, self.nodes, self.values
+
+
 def apply_once(kernel: Kernel, targets: np.ndarray, sources: np.ndarray, x: np.ndarray,
                source_layer: np.ndarray | None = None, eta: float = ETA, leaf_size: int = LEAF_SIZE,
                nodes_xy: int = NODES_XY, nodes_z: int = NODES_Z, progress: Progress | None = None,
-               label: str = "surface", source_tree: "ClusterTree | None" = None) -> np.ndarray:
+               label: str = "surface", source_tree: "ClusterTree | None" = None,
+               moments: SourceMoments | None = None) -> np.ndarray:
     """K x for K_ij = kernel(x_i, y_j) by the same hierarchical approximation as :func:`build_hmatrix`,
     streamed block by block instead of stored: for a product needed once (a surface map), memory stays
     at the size of the node values and one chunk.
@@ -589,6 +635,9 @@ def apply_once(kernel: Kernel, targets: np.ndarray, sources: np.ndarray, x: np.n
         Soil layer of each source; clusters never mix layers.
     source_tree : ClusterTree, optional
         ``cluster_tree(sources, source_layer, leaf_size)`` kept from an earlier call with the same sources.
+    moments : SourceMoments, optional
+        The sources' node values kept between calls with the same sources, strengths and tree (made with
+        ``source_tree``, ``nodes_xy`` and ``nodes_z``).
     """
     targets, sources, x = np.asarray(targets, float), np.asarray(sources, float), np.asarray(x, float)
     t_tree = cluster_tree(targets, None, leaf_size)
@@ -597,11 +646,9 @@ def apply_once(kernel: Kernel, targets: np.ndarray, sources: np.ndarray, x: np.n
     t_depth, s_depth = _flat_depth(t_tree), _flat_depth(s_tree)
     out = np.zeros(len(targets))
     # sources → node values
-    s_used, s_axis, s_first, s_count, m_s = _basis_layout(s_tree, far[:, 1], nodes_xy, nodes_z)
-    s_nodes, w_nodes = np.zeros((m_s, 3)), np.zeros(m_s)
-    for idx, at, grid, w in _basis_groups(s_tree, sources, s_used, s_axis, s_first):
-        s_nodes[at.ravel()] = grid.reshape(-1, 3)
-        w_nodes[at] = np.einsum("gnk,gn->gk", w, x[idx])
+    moments = moments or SourceMoments(s_tree, sources, x, nodes_xy, nodes_z)
+    s_first, s_count, s_nodes, w_nodes = moments.of(far[:, 1])
+    m_s = len(s_nodes)
     t_used, t_axis, t_first, t_count, m_t = _basis_layout(t_tree, far[:, 0], nodes_xy, nodes_z)
     t_nodes = np.zeros((m_t, 3))
     for idx, at, grid, _ in _basis_groups(t_tree, targets, t_used, t_axis, t_first, weights=False):

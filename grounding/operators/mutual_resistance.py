@@ -155,10 +155,10 @@ def compressed_operator(segments: Segments, kernel: SoilKernel, options: Assembl
     The correction is added in place to the hierarchical matrix's near part, whose pattern was built to hold
     every corrected pair: one sparse matrix, no second one nor a sum of two (the transient copies that set the
     build's peak memory)."""
-    mid = segments.midpoint
-    near, middle = (p.astype(np.int32) for p in near_pairs(segments, options))
     if progress:
         progress("assemble", 0.0)
+    mid = segments.midpoint
+    near, middle = (p.astype(np.int32) for p in near_pairs(segments, options))
     H = build_hmatrix(kernel.potential, mid, target_layer=kernel.layer_of(mid[:, 2]), progress=progress,
                       label="assemble", pattern=(near, middle))
     local = H.near

@@ -12,7 +12,7 @@ from ..geometry.segments import Segments
 from ..kernels.base import DEPTH_QUANTUM, SoilKernel
 from ..kernels.integrals import GAUSS2, line_integral
 from .assembly import MAX_DEPTH_CLASSES, AssemblyOptions, gauss_points, near_term_sum
-from .hmatrix import LEAF_SIZE, apply_once, cluster_tree, threaded_map
+from .hmatrix import LEAF_SIZE, SourceMoments, apply_once, cluster_tree, threaded_map
 
 Progress = Callable[[str, float], None]
 
@@ -23,6 +23,10 @@ POINT_CHUNK = 2048
 PAIR_CHUNK = 100_000
 #: From this many (point, segment) pairs the map's far field uses the hierarchical matrix.
 COMPRESS_FROM_PAIRS = 50_000_000
+#: From this many segments the far field of smaller point sets is compressed too, from this many pairs: the
+#: sources' tree and node values are kept between calls, so that only the points' side is new. Measured at
+#: 241 216 segments: 49 points 0.91 s direct, 0.33 s compressed; 196 points 2.99 s and 0.73 s (values within 2e-5).
+COMPRESS_LARGE_SOURCES = (50_000, 10_000_000)
 
 
 class SurfacePotential:
@@ -55,7 +59,8 @@ class SurfacePotential:
             [(kernel.radial(0.0, classes[k] * DEPTH_QUANTUM), np.flatnonzero(cls.ravel() == k))
              for k in range(len(classes))]
         self.tree = cKDTree(self.mid)
-        self.source_tree = None                          # cluster tree of the Gauss points, made at first use
+        self.source_tree = None                          # cluster tree of the Gauss points, made at first use,
+        self.moments = None                              # and their node values (hmatrix.SourceMoments)
 
     def __call__(self, xy: np.ndarray, progress: Progress | None = None) -> np.ndarray:
         """Potential relative to remote earth (V) at surface points ``xy`` (m), shape (M, 2) → (M,)."""
@@ -65,19 +70,22 @@ class SurfacePotential:
         k = currents.shape[1]
         out = np.zeros((m, k))
         a, b = self.segments.start, self.segments.end
-        compressed = m * len(mid) >= COMPRESS_FROM_PAIRS
+        many, pairs = COMPRESS_LARGE_SOURCES
+        compressed = m * len(mid) >= (pairs if len(mid) >= many else COMPRESS_FROM_PAIRS)
         if compressed:
             # large maps: the hierarchical far field of the segments' 2-point Gauss–Legendre sources (the
             # middle tier's rule, so that only near pairs need correcting), interpolated to about 1e-5
             sources = gauss_points(a, b).reshape(-1, 3)
             layers = kernel.layer_of(sources[:, 2])
-            if self.source_tree is None:                 # the same sources at every call: their tree once
-                self.source_tree = cluster_tree(sources, layers, LEAF_SIZE)
+            if self.source_tree is None:                 # the same sources at every call: their tree and node
+                self.source_tree = cluster_tree(sources, layers, LEAF_SIZE)             # values made once
+                self.moments = [SourceMoments(self.source_tree, sources, np.repeat(0.5 * currents[:, c], 2))
+                                for c in range(k)]
             for c in range(k):
                 out[:, c] += apply_once(kernel.potential, np.column_stack([xy, np.zeros(m)]), sources,
                                         np.repeat(0.5 * currents[:, c], 2), source_layer=layers,
                                         progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None,
-                                        source_tree=self.source_tree)
+                                        source_tree=self.source_tree, moments=self.moments[c])
         for start in range(0, 0 if compressed else m, POINT_CHUNK):
             rows = slice(start, min(m, start + POINT_CHUNK))
             if self.members is None:
