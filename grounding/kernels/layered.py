@@ -179,6 +179,16 @@ class LayeredSoil(SoilKernel):
             self._grid_cache = (np.exp(ln_r), np.exp(ln_lam), i_of, wts, delta)
         return self._grid_cache
 
+    def _filter_matrix(self) -> np.ndarray:
+        """The digital filter on the logarithmic r nodes as a matrix over the wavenumber grid: row n holds the
+        filter weights at the λ indices ``i_of[n]`` (spectra of many depth pairs then go through one product)."""
+        if not hasattr(self, "_filter_cache"):
+            r_log, lam, i_of, wts, _ = self._grid()
+            W = np.zeros((len(r_log), len(lam)))
+            np.add.at(W, (np.repeat(np.arange(len(r_log)), i_of.shape[1]), i_of.ravel()), np.tile(wts, len(r_log)))
+            self._filter_cache = W
+        return self._filter_cache
+
     @kept_per_kernel
     def _grid_coefficients(self, zp: float) -> np.ndarray:
         return self.coefficients(self._grid()[1], zp)
@@ -209,8 +219,8 @@ class LayeredSoil(SoilKernel):
             return None
         r_switch, band, r_small, bessel = self._small_r_block(int(live[0]), int(live[-1]))
         g_small = bessel @ (spec[band] * lam[band]) * delta
-        keep = r_log > r_switch
-        g_log = spec[i_of[keep]] @ wts / r_log[keep]
+        keep = slice(int(np.searchsorted(r_log, r_switch, side="right")), None)   # r_log > r_switch
+        g_log = self._filter_matrix()[keep] @ spec / r_log[keep]
         r = np.concatenate([r_small, r_log[keep]])
         g = np.concatenate([g_small, g_log])
         r_s = r_switch                                   # the scale on which the remainder varies
