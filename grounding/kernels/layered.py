@@ -20,6 +20,7 @@ from __future__ import annotations
 from functools import lru_cache
 
 import numpy as np
+import scipy.sparse as sp
 from scipy.interpolate import CubicSpline
 from scipy.special import j0
 
@@ -180,13 +181,14 @@ class LayeredSoil(SoilKernel):
         return self._grid_cache
 
     def _filter_matrix(self) -> np.ndarray:
-        """The digital filter on the logarithmic r nodes as a matrix over the wavenumber grid: row n holds the
-        filter weights at the λ indices ``i_of[n]`` (spectra of many depth pairs then go through one product)."""
+        """The digital filter on the logarithmic r nodes as a sparse matrix over the wavenumber grid: row n holds
+        the filter weights at the λ indices ``i_of[n]``; one product per table instead of a gather of every node's
+        filter points."""
         if not hasattr(self, "_filter_cache"):
             r_log, lam, i_of, wts, _ = self._grid()
-            W = np.zeros((len(r_log), len(lam)))
-            np.add.at(W, (np.repeat(np.arange(len(r_log)), i_of.shape[1]), i_of.ravel()), np.tile(wts, len(r_log)))
-            self._filter_cache = W
+            rows = np.repeat(np.arange(len(r_log)), i_of.shape[1])
+            self._filter_cache = sp.csr_matrix((np.tile(wts, len(r_log)), (rows, i_of.ravel())),
+                                               shape=(len(r_log), len(lam)))
         return self._filter_cache
 
     @kept_per_kernel
