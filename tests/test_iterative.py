@@ -153,6 +153,32 @@ def test_compressed_surface_map_matches_the_direct_map(monkeypatch):
     assert np.abs(compressed - direct).max() < 1e-4
 
 
+def test_kept_source_values_and_small_compressed_sets_match(monkeypatch):
+    """One potential evaluated at several point sets keeps its sources' node values (hmatrix.SourceMoments) and
+    gives what a fresh evaluation of each set gives (the node values are the same sums); point sets small enough
+    for the direct sum, compressed as from potential.COMPRESS_LARGE_SOURCES, agree with the direct sum to the
+    map's bound, 1e-4 of the GPR (issue: fast studies)."""
+    case = _case("two-layer")
+    seg = segment(case)
+    kernel = make_kernel(case.soil, 1.0)
+    currents = solve_operator(dense_operator(seg, kernel)).currents_per_volt
+    rng = np.random.default_rng(5)
+    sets = [rng.uniform(-4, 57, (n, 2)) for n in (49, 3000, 196)]
+    monkeypatch.setattr(potential_module, "COMPRESS_FROM_PAIRS", 0)
+    kept = potential_module.SurfacePotential(seg, currents, kernel)
+    for xy in sets:
+        fresh = potential_module.SurfacePotential(seg, currents, kernel)(xy)
+        np.testing.assert_allclose(kept(xy), fresh, rtol=1e-12, atol=0.0)
+    assert kept.moments[0].have.sum() > 0
+    monkeypatch.setattr(potential_module, "COMPRESS_FROM_PAIRS", 10 ** 18)
+    monkeypatch.setattr(potential_module, "COMPRESS_LARGE_SOURCES", (10 ** 9, 0))
+    direct = potential_module.SurfacePotential(seg, currents, kernel)(sets[0])
+    monkeypatch.setattr(potential_module, "COMPRESS_LARGE_SOURCES", (0, 0))
+    small = potential_module.SurfacePotential(seg, currents, kernel)
+    assert np.abs(small(sets[0]) - direct).max() < 1e-4
+    assert small.moments is not None                 # the compressed path ran
+
+
 def test_auto_solver_switches_by_size_and_the_key_is_checked():
     case = _case()
     assert solver_kind(case, DENSE_LIMIT) == "dense"

@@ -170,3 +170,17 @@ def test_a_kernel_with_tables_pickles_without_them():
     copy = pickle.loads(pickle.dumps(kernel))
     assert not any(k.startswith("_kept_") for k in vars(copy))
     np.testing.assert_array_equal(copy.radial(0.5, 0.7)(r), before)
+
+
+def test_depth_levels_found_from_a_sample_equal_a_full_sort():
+    """kernels.base._levels finds the distinct depths from a sample and adds the ones it missed (rod points:
+    many depths, few pairs each); its levels and indices equal numpy.unique's (the independent reference)."""
+    from grounding.kernels.base import DEPTH_QUANTUM, _levels
+
+    rng = np.random.default_rng(7)
+    z = np.repeat([0.5, 0.8], 50_000)
+    z[rng.choice(len(z), 37, replace=False)] = rng.uniform(0.5, 3.5, 37)     # rare depths the sample misses
+    levels, index = _levels(z)
+    ref, inverse = np.unique(np.round(z / DEPTH_QUANTUM).astype(np.int64), return_inverse=True)
+    np.testing.assert_array_equal(levels, ref)
+    np.testing.assert_array_equal(index, inverse.ravel())
