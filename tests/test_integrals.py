@@ -39,6 +39,20 @@ def test_pair_integral_against_dblquad(q0, q1, tol):
     assert got == pytest.approx(reference_pair(p0, p1, q0, q1), rel=tol)
 
 
+@pytest.mark.parametrize("q0,q1", [
+    ((0.4, 1.2, 0.3), (0.9, 2.1, 0.8)),            # about one length apart: 12-node plain rule
+    ((0.2, 4.5, 1.0), (1.1, 5.2, 0.2)),            # about four lengths apart: 6-node plain rule
+    ((3.0, 9.0, 2.0), (3.5, 9.5, 2.9)),            # far
+])
+def test_pair_integral_of_apart_pairs_to_rounding(q0, q1):
+    """Pairs a length or more apart take one plain Gauss–Legendre rule (integrals.FAR_RULES); against
+    scipy.integrate.dblquad they agree to 1e-11 (the rules' error bound is about 1e-15)."""
+    p0, p1 = (0, 0, 0), (1, 0, 0)
+    got = segment_pair_integral(np.array([p0], float), np.array([p1], float), np.array([q0], float),
+                                np.array([q1], float), np.array([A]))[0]
+    assert got == pytest.approx(reference_pair(p0, p1, q0, q1), rel=1e-11)
+
+
 def test_self_term_closed_form():
     """Self term of the reduced kernel: 2 [L asinh(L/a) − √(L² + a²) + a] (direct integration)."""
     L = 1.0
