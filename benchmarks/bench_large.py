@@ -10,12 +10,14 @@ Seconds are printed because the targets are stated in seconds; on a noisy machin
 of magnitude. Each size runs in a fresh process so that peak memory is its own.
 
 Run: python benchmarks/bench_large.py [--sizes 10000,100000] [--soils uniform,two-layer] [--dense-check]
+     python benchmarks/bench_large.py --km      (the fast-studies issue's 241 000 / 402 000-segment studies, ~6 min)
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import os
 import subprocess
 import sys
 
@@ -90,7 +92,12 @@ def main():
     ap.add_argument("--dense-check", action="store_true", help="also compare with the dense solve at 12 000 segments")
     ap.add_argument("--study", action="store_true",
                     help="also time `grounding study` on the largest size with a 2 m map, cold, one process")
+    ap.add_argument("--km", action="store_true",
+                    help="only the 1 km x 1 km grid of 5 m meshes (two-layer soil, 5 m map) at 2 m and 1 m segments "
+                         "(241 216 and 402 022): whole study cold, stage times, peak, ratio to assemble + solve")
     args = ap.parse_args()
+    if args.km:
+        sys.exit(0 if km_studies() else 1)
     sizes = [int(s) for s in args.sizes.split(",")]
     failed = False
     for soil in args.soils.split(","):
@@ -157,6 +164,57 @@ def whole_study(segments: int, soil: str) -> bool:
               f"{diag['solve_s']:.0f} s, surface {diag['surface_s']:.0f} s, peak {diag['peak_memory_mb']:.0f} MB, "
               f"solver {diag['solver']}")
         return ok
+
+
+KM_CASE = """\
+format: 1
+soil: {{layers: [{{resistivity: 300, thickness: 2.0}}, {{resistivity: 60}}]}}
+fault: {{current: 20000, split_factor: 0.6, clearing_time: 0.5}}
+electrodes:
+  grids: [{{origin: [0, 0], size: [1000, 1000], meshes: [200, 200], depth: 0.5, diameter: 0.012}}]
+  rods: [{{top: [0, 0, 0.5], length: 6, diameter: 0.016}}, {{top: [1000, 1000, 0.5], length: 6, diameter: 0.016}}]
+discretization: {{max_segment: {h}}}
+surface: {{margin: 2, resolution: 5}}
+"""
+
+
+def km_studies() -> bool:
+    """The issue's large-site targets: at 2 m segments (241 216) the whole study ≤ 1.5 × its own assemble + solve
+    and peak < 6 GB; at 1 m (402 022) accepted and solved on 24 GB, time and peak reported. `--progress` gives the
+    stages; the peak is the child's own (resource.getrusage)."""
+    import re
+    import tempfile
+    import time
+    from pathlib import Path
+
+    ok = True
+    with tempfile.TemporaryDirectory() as tmp:
+        for h in (2.0, 1.0):
+            case = Path(tmp) / f"km-{h:g}.yaml"
+            case.write_text(KM_CASE.format(h=h))
+            t = time.perf_counter()
+            p = subprocess.run([sys.executable, "-c", "import resource, runpy, sys; sys.argv = ['grounding'] + "
+                                "sys.argv[1:]\ntry:\n    runpy.run_module('grounding.cli', run_name='__main__')\n"
+                                "except SystemExit as e:\n    code = e.code\nelse:\n    code = 0\nprint('PEAK', "
+                                "resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, file=sys.stderr)\nsys.exit(code)",
+                                "study", str(case), "--no-cache", "--progress"],
+                               capture_output=True, text=True, env={**os.environ, "GROUNDING_CACHE_DIR": tmp})
+            wall = time.perf_counter() - t
+            stages = {m.group(1): float(m.group(2)) for m in re.finditer(r"^([a-z ]+): ([0-9.]+) s$", p.stderr, re.M)}
+            peak = next((float(x.split()[1]) / 1e6 for x in p.stderr.splitlines() if x.startswith("PEAK")), float("nan"))
+            if p.returncode not in (0, 1):
+                print(f"km grid at {h:g} m: failed: {(p.stderr.strip().splitlines() or ['?'])[-1]}")
+                ok = False
+                continue
+            base = stages.get("assemble", 0.0) + stages.get("solve", 0.0)
+            ratio = wall / base if base else float("nan")
+            print(f"km grid at {h:g} m: {wall:.0f} s, peak {peak:.2f} GB; " +
+                  ", ".join(f"{k} {v:.1f}" for k, v in stages.items()) + f"; whole / (assemble + solve) {ratio:.2f}")
+            if h == 2.0:
+                met = ratio <= 1.5 and peak < 6.0
+                print(f"  target: ratio <= 1.5 and peak < 6 GB -> {'ok' if met else 'MISSED'}")
+                ok &= met
+    return ok
 
 
 if __name__ == "__main__":
