@@ -180,7 +180,7 @@ class LayeredSoil(SoilKernel):
             self._grid_cache = (np.exp(ln_r), np.exp(ln_lam), i_of, wts, delta)
         return self._grid_cache
 
-    def _filter_matrix(self) -> np.ndarray:
+    def _filter_matrix(self) -> sp.csr_matrix:
         """The digital filter on the logarithmic r nodes as a sparse matrix over the wavenumber grid: row n holds
         the filter weights at the λ indices ``i_of[n]``; one product per table instead of a gather of every node's
         filter points."""
