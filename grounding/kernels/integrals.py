@@ -64,9 +64,14 @@ def _parallel_pair(a, b, c, d, radius):
     return G(L1 - lo) + G(0.0 - hi) - G(0.0 - lo) - G(L1 - hi)
 
 
-_tau, _w = np.polynomial.legendre.leggauss(OUTER_ORDER)
-_tau = 0.5 * (_tau + 1.0)
-_w = 0.5 * _w
+@functools.lru_cache(maxsize=None)
+def _plain_rule(order: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss–Legendre nodes and weights of ``order`` points on [0, 1]."""
+    x, w = np.polynomial.legendre.leggauss(order)
+    return 0.5 * (x + 1.0), 0.5 * w
+
+
+_tau, _w = _plain_rule(OUTER_ORDER)
 # smoothstep map s = 3τ² − 2τ³ clusters the nodes at both ends, where a touching segment
 # makes the inner integral logarithmically singular
 _S = 3 * _tau ** 2 - 2 * _tau ** 3
@@ -152,13 +157,6 @@ def _oblique_pair(a, b, c, d, radius):
         out[todo] = L1[todo] * _outer_sum(a[todo], u[todo], c[todo], d[todo], L2[todo], a2[todo],
                                           ((np.zeros(len(sp)), sp), (sp, 1.0 - sp)), _S, _W)
     return out
-
-
-@functools.lru_cache(maxsize=None)
-def _plain_rule(order: int) -> tuple[np.ndarray, np.ndarray]:
-    """Gauss–Legendre nodes and weights of ``order`` points on [0, 1]."""
-    x, w = np.polynomial.legendre.leggauss(order)
-    return 0.5 * (x + 1.0), 0.5 * w
 
 
 def segment_pair_integral(a, b, c, d, radius) -> np.ndarray:
