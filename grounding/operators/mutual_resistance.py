@@ -15,6 +15,7 @@ value. Its storage grows about linearly with the number of segments.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -23,7 +24,7 @@ import scipy.sparse as sp
 from ..geometry.segments import Segments
 from ..kernels.base import SoilKernel
 from .assembly import PAIR_CHUNK, AssemblyOptions, Progress, assemble, middle_values, near_pairs, near_values
-from .hmatrix import HMatrix, build_hmatrix, pair_values, threaded_map
+from .hmatrix import HMatrix, build_hmatrix, pair_values, row_parts, rows_product, threaded_map
 
 #: Largest diagonal block of the block-Jacobi preconditioner (segments).
 PRECONDITIONER_BLOCK = 256
@@ -94,7 +95,16 @@ class CompressedOperator:
 
     def apply(self, x: np.ndarray) -> np.ndarray:
         """R x, V per A of x (x of shape (N,) or (N, k))."""
-        return self.local @ x + self.hmatrix.far(x)
+        return rows_product(self.local_rows, x) + self.hmatrix.far(x)
+
+    @functools.cached_property
+    def local_rows(self) -> list[sp.csr_matrix]:
+        """The local matrix's rows in parts for the worker threads (:func:`~.hmatrix.row_parts`)."""
+        return row_parts(self.local)
+
+    def __getstate__(self) -> dict:
+        """The operator without its row parts (views, remade on use)."""
+        return {k: v for k, v in self.__dict__.items() if k != "local_rows"}
 
     @property
     def diagonal(self) -> np.ndarray:
