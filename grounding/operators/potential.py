@@ -91,6 +91,7 @@ class SurfacePotential:
                                         np.repeat(0.5 * currents[:, c], 2), source_layer=layers,
                                         progress=(lambda _s, f: progress("surface", 0.8 * f)) if progress else None,
                                         source_tree=self.source_tree, moments=self.moments[c])
+
         def far(rows: slice):
             part = np.zeros((rows.stop - rows.start, k))
             if self.members is None:
@@ -99,7 +100,8 @@ class SurfacePotential:
                 part += radial(cdist(xy[rows], mid[cols, :2])) @ currents[cols]
             return rows, part
 
-        # point chunks sized to the cache, on the worker threads (a point's value does not depend on its chunk)
+        # point chunks sized to the cache, on the worker threads (a point's value depends on its chunk only through the
+        # matrix product's rounding: 1e-15 seen against chunks of 2 048 points)
         chunk = int(np.clip(POINT_PAIRS // max(len(mid), 1), MIN_POINT_CHUNK, POINT_CHUNK))
         for rows, part in threaded_map(far, [slice(s0, min(m, s0 + chunk)) for s0 in range(0, 0 if compressed else m,
                                                                                           chunk)]):
