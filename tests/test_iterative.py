@@ -9,9 +9,11 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+import scipy.sparse as sp
 from click.testing import CliRunner
 from scipy.spatial.distance import cdist
 
+import grounding.operators.hmatrix as hmatrix_module
 import grounding.operators.potential as potential_module
 import grounding.solve.equipotential as solve_module
 from grounding import run_study
@@ -94,6 +96,20 @@ def test_compressed_operator_is_symmetric_and_close_to_the_dense_matrix():
     assert np.abs(C - C.T).max() <= 1e-12 * np.abs(C).max()
     np.testing.assert_allclose(op.diagonal, np.diag(R), rtol=1e-12)
     assert np.linalg.norm(C - R) < 1e-4 * np.linalg.norm(R)
+
+
+def test_row_split_products_equal_the_whole_product_and_share_its_arrays(monkeypatch):
+    """The parts of a row split are views of the matrix (no copy of its entries) and their products, joined, are the
+    whole product to the last digit (each row's sum is the same sum). Reference: scipy.sparse's own product."""
+    monkeypatch.setattr(hmatrix_module, "worker_threads", lambda: 3)
+    rng = np.random.default_rng(7)
+    n, m, nnz = 3000, 800, 2 * hmatrix_module.PARALLEL_ENTRIES
+    a = sp.csr_matrix((rng.standard_normal(nnz), (rng.integers(0, n, nnz), rng.integers(0, m, nnz))), shape=(n, m))
+    parts = hmatrix_module.row_parts(a)
+    assert len(parts) == 3 and sum(p.shape[0] for p in parts) == n
+    assert all(np.shares_memory(p.data, a.data) and np.shares_memory(p.indices, a.indices) for p in parts)
+    for x in (rng.standard_normal(m), rng.standard_normal((m, 2))):
+        assert np.array_equal(hmatrix_module.rows_product(parts, x), a @ x)
 
 
 def test_preconditioner_blocks_are_the_exact_matrix_and_the_local_part_holds_each_entry_once():

@@ -363,8 +363,11 @@ def row_parts(a: sp.csr_matrix) -> list[sp.csr_matrix]:
     parts = []
     for r0, r1 in zip(bounds[:-1], bounds[1:]):
         e0, e1 = a.indptr[r0], a.indptr[r1]
-        parts.append(sp.csr_matrix((a.data[e0:e1], a.indices[e0:e1], a.indptr[r0:r1 + 1] - e0),
-                                   shape=(r1 - r0, a.shape[1]), copy=False))
+        # the arrays are set after construction: scipy's constructor copies a view that is less than half of its
+        # base (its "prune"), which made each part a copy: the yard's coupling, 19.7 M entries, 0.8 s and 236 MB
+        part = sp.csr_matrix((r1 - r0, a.shape[1]), dtype=a.dtype)
+        part.indptr, part.indices, part.data = a.indptr[r0:r1 + 1] - e0, a.indices[e0:e1], a.data[e0:e1]
+        parts.append(part)
     return parts
 
 
