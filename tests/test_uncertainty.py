@@ -327,3 +327,48 @@ def test_error_bars_cover_a_model_four_times_finer(path):
         if c.worst is None:
             continue
         assert f.worst.value <= c.worst.value + c.error, crit
+
+
+def test_scope_names_the_condition_and_what_other_scenarios_take():
+    """The propagation is of the case as written: its outputs say so, and say that scenarios with the same solve share
+    the relative σ, not the probability (theirs is their own), and that scenarios with another soil are not propagated."""
+    from types import SimpleNamespace as NS
+
+    from grounding.study.uncertainty import scope_of
+
+    def cond(name, key):
+        return NS(scenario=name, diagnostics=NS(solve=NS(key=key)), case=NS(soil=None))
+
+    base, rock, dry = cond("measured", "k1"), cond("wet rock", "k1"), cond("dry", "k2")
+    scope = scope_of(NS(scenarios=(base, rock, dry)))
+    assert scope.startswith("for the case as written ('measured')")
+    assert "same solve ('wet rock')" in scope and "their own probabilities" in scope
+    assert "another soil ('dry') are not propagated" in scope
+    assert scope_of(NS(scenarios=())) == ""
+
+
+def test_a_scenario_with_the_same_solve_gets_its_own_probability_and_warning():
+    """A scenario that only raises the fault current shares the case's solve: its P(limit exceeded) is its own (the
+    same sensitivities, its own thinner margin) and equals the propagation of that scenario studied on its own; it
+    passes narrowly, so the summary warns about it even though the case as written is far from its limit (before,
+    only the case as written's probability was looked at and this thin pass went unremarked)."""
+    from grounding.outputs.summary_text import study_summary, uncertain_passes
+
+    probe = run_study(parse_case(MC_CASE), estimate_error=False, uncertainty=False)
+    per_amp = probe.touch_check.worst.value / probe.touch_check.limit / 90.0
+    thin = 0.97 / per_amp                                 # the scenario's touch at 97 % of its limit
+    text = MC_CASE.replace("fault: {current: 90,", f"fault: {{current: {thin / 2:.6f},")
+    case = parse_case(text + f"scenarios:\n  - {{name: as written}}\n  - {{name: thin, fault: {{current: {thin:.6f}}}}}\n")
+    r = run_study(case, estimate_error=False)
+    u = r.uncertainty
+    shared = dict(u.scenario_probabilities)["thin"]
+    alone = run_study(parse_case(MC_CASE.replace("fault: {current: 90,", f"fault: {{current: {thin:.6f},")),
+                      estimate_error=False).uncertainty
+    for k in ("touch", "step", "mesh"):
+        if shared[k] is not None:
+            assert shared[k] == pytest.approx(alone.quantities[k].probability_exceeds_limit, rel=1e-9, abs=1e-12), k
+    assert shared["touch"] is not None and 0.3 < shared["touch"] < 0.6          # Φ(log 0.97 / σ), σ ≈ 0.1
+    assert u.quantities["touch"].probability_exceeds_limit < 0.05               # the case as written: wide margin
+    assert r.scenarios[1].touch_check.ok
+    assert any("scenario 'thin'" in w and name == "touch" for w, name, _ in uncertain_passes(r))
+    assert "MARGINAL (touch, scenario 'thin')" in " ".join(study_summary(r).split())

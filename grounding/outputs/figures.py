@@ -307,7 +307,8 @@ def uncertainty_figure(r: StudyResult) -> Rendered | None:
     from scipy.stats import lognorm
 
     dist = lognorm(s=q.sigma_log, scale=q.value)
-    limit = r.touch_check.limit
+    base = r.scenarios[0] if r.scenarios else r        # the propagation's condition: the case as written
+    limit = base.touch_check.limit
     lo, hi = dist.ppf(1e-4), dist.ppf(1 - 1e-4)
     lo, hi = min(lo, 0.9 * limit), max(hi, 1.1 * limit)
     v = np.linspace(lo, hi, 400)
@@ -322,7 +323,8 @@ def uncertainty_figure(r: StudyResult) -> Rendered | None:
     ax.set_ylabel("probability density (1/V)")
     ax.set_yticks([])
     ax.legend(fontsize=7, loc="upper right")
-    ax.set_title(f"Worst touch voltage under the soil uncertainty (σ(log) = {q.sigma_log:.3f})", fontsize=10)
+    where = f", '{base.scenario}'" if base.scenario else ""
+    ax.set_title(f"Worst touch voltage{where} under the soil uncertainty (σ(log) = {q.sigma_log:.3f})", fontsize=10)
     fig.tight_layout()
     return Rendered("uncertainty", "Soil uncertainty", fig, q.value)
 

@@ -73,6 +73,8 @@ def soil_text(case) -> str:
 
 #: A passing criterion whose probability of exceeding its limit is above this is flagged marginal.
 UNLIKELY = 0.05
+#: A no-break space: keeps a value and its unit on one line when a line is wrapped.
+NBSP = "\u00a0"
 
 
 def _alert(text: str) -> list[str]:
@@ -192,12 +194,9 @@ def safety_lines(r: StudyResult) -> list[str]:
         out.extend(_alert(f"The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat "
                           "the verdict as marginal (soil data, fault data and discretisation are all less certain "
                           "than that)."))
-    if r.uncertainty is not None:
-        for name, check in (("touch", r.touch_check), ("step", r.step_check), ("mesh", r.mesh_check)):
-            p = r.uncertainty.quantities[name].probability_exceeds_limit
-            if check.ok and p is not None and p > UNLIKELY:
-                out.extend(_alert(f"MARGINAL ({name}): it passes as computed, but with the soil uncertainty given "
-                                  f"the probability that the limit is exceeded is {_probability(p)}."))
+    for where, name, p in uncertain_passes(r):
+        out.extend(_alert(f"MARGINAL ({name}{where}): it passes as computed, but with the soil uncertainty given "
+                          f"the probability that the limit is exceeded is {_probability(p)}."))
     inside = [(name, check) for name, check in (("touch", r.touch_check), ("step", r.step_check),
                                                 ("mesh", r.mesh_check)) if check.limit_within_error]
     for name, check in inside:
@@ -268,8 +267,10 @@ def uncertainty_lines(r: StudyResult) -> list[str]:
     """σ of Rg, GPR and the worst voltages, and the probability that each limit is exceeded."""
     u = r.uncertainty
     out = [f"  From {u.source}: " + ", ".join(f"{n} ± {math.expm1(s) * 100:.0f} %"
-                                              for n, s in zip(u.parameters, u.sigma_log)),
-           f"  {'':<22}{'value':>10}{'1-σ':>10}{'P(limit exceeded)':>20}"]
+                                              for n, s in zip(u.parameters, u.sigma_log))]
+    if u.scope:
+        out.extend(textwrap.wrap(f"Scope: {u.scope}.", WIDTH - 4, initial_indent="  ", subsequent_indent="  "))
+    out.append(f"  {'':<22}{'value':>10}{'1-σ':>10}{'P(limit exceeded)':>20}")
     for key, label in UNCERTAINTY_LABELS.items():
         q = u.quantities[key]
         if q.value is None or q.sigma is None:
@@ -277,10 +278,42 @@ def uncertainty_lines(r: StudyResult) -> list[str]:
         fmt = (lambda v: f"{v:.3f} Ω") if key == "grid_resistance" else _volts
         prob = "" if q.probability_exceeds_limit is None else _probability(q.probability_exceeds_limit)
         out.append(f"  {label:<22}{fmt(q.value):>10}{fmt(q.sigma):>10}{prob:>20}")
+    for line in shared_probability_lines(u):
+        out.extend(textwrap.wrap(f"P(limit exceeded), {line}", WIDTH - 4, initial_indent="  ",
+                                 subsequent_indent="    "))
     out.extend(textwrap.wrap(f"Model: {u.model}; {u.level}. Cost: {u.extra_solves} extra solves ({u.seconds:.1f} s). "
                              "Soil data only: fault data, discretisation and the choice of soil model add to this.",
                              WIDTH - 4, initial_indent="  ", subsequent_indent="  "))
     return out
+
+
+def uncertain_passes(r: StudyResult) -> list[tuple[str, str, float]]:
+    """(where, criterion, P) of every check that passes as computed but whose limit the soil uncertainty exceeds with
+    a probability above UNLIKELY: the case as written and each scenario with its solve, each judged on its own check
+    (a scenario with a thinner margin than the case's has the higher probability)."""
+    u = r.uncertainty
+    if u is None:
+        return []
+    base = r.scenarios[0] if r.scenarios else r
+    by_name = {s.scenario: s for s in r.scenarios}
+    conditions = [(base, {k: u.quantities[k].probability_exceeds_limit for k in ("touch", "step", "mesh")})]
+    conditions += [(by_name[name], probs) for name, probs in u.scenario_probabilities if name in by_name]
+    out = []
+    for cond, probs in conditions:
+        where = f", scenario '{cond.scenario}'" if cond.scenario else ""
+        for name, check in (("touch", cond.touch_check), ("step", cond.step_check), ("mesh", cond.mesh_check)):
+            p = probs.get(name)
+            if check.ok and p is not None and p > UNLIKELY:
+                out.append((where, name, p))
+    return out
+
+
+def shared_probability_lines(u) -> list[str]:
+    """P(limit exceeded) of the scenarios with the as-written case's solve, a line each, in words."""
+    return [f"'{name}' (same solve): " + ", ".join(
+        f"{k} {'not computed (worst point elsewhere)' if p is None else _probability(p).replace(' %', NBSP + '%')}"
+        for k, p in probs.items())
+        for name, probs in u.scenario_probabilities]
 
 
 def _probability(p: float) -> str:

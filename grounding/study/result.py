@@ -143,6 +143,12 @@ class SoilUncertaintyResult:
         The statistical model, in words.
     level : str
         The discretisation the sensitivities were taken at, in words.
+    scope : str
+        Which condition the values and probabilities are of and what the other scenarios take from them, in words
+        ("" without scenarios).
+    scenario_probabilities : tuple of (str, dict)
+        For each scenario with the as-written case's solve: its name and P(limit exceeded) of its own touch, step and
+        mesh checks (None where its worst point is elsewhere than the case's, so no sensitivity was taken there).
     """
 
     source: str
@@ -156,6 +162,8 @@ class SoilUncertaintyResult:
                   "places and neighbourhoods, and Σ S_ρ = 1 for a soil whose resistivities set the only scale "
                   "(Euler's theorem); P = Φ(log(worst/limit) / σ)")
     level: str = "sensitivities at the study's own segment length"
+    scope: str = ""
+    scenario_probabilities: tuple = ()
 
 
 

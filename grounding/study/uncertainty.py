@@ -167,8 +167,70 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None, cache=None,
                 q = math.log(ratio)
                 prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
         out[k] = QuantityUncertainty(value, value * math.expm1(sl), sl, prob, tuple(s.tolist()))
+    shared = tuple((r.scenario, _shared_probabilities(r, watch, sens, cov, x0))
+                   for r in result.scenarios[1:] if _same_solve(r, base_result))
     return SoilUncertaintyResult(source, tuple(names), tuple(np.sqrt(np.diag(cov)).tolist()), out, solves,
-                                 time.perf_counter() - t0, level=level)
+                                 time.perf_counter() - t0, level=level, scope=scope_of(result),
+                                 scenario_probabilities=shared)
+
+
+def _same_solve(r: StudyResult, base: StudyResult) -> bool:
+    """Whether a scenario has the as-written case's solve (its voltages are that solve's, scaled)."""
+    a, b = r.diagnostics.solve, base.diagnostics.solve
+    return a.key == b.key if a is not None and b is not None else r.case.soil == base.case.soil
+
+
+def _shared_probabilities(r: StudyResult, watch: "_Watch", sens: dict, cov: np.ndarray,
+                          x0: np.ndarray) -> dict[str, float | None]:
+    """P(limit exceeded) of a scenario with the as-written case's solve, per criterion: its voltages scale that
+    solve's, so where its worst point is the same place in the same zone the voltage sensitivities are the same;
+    its limits (another covering, weight or time) are differenced with the nudged soils as the case's are. None where
+    its worst point is elsewhere (the sensitivities there were not taken) or it has none."""
+    mine = _Watch(r)
+    case = _plain(r.case)
+    base_limits = mine.values(case, limits_only=True)
+    nudged = []
+    for j in range(len(x0)):
+        x = x0.copy()
+        x[j] += LOG_STEP
+        nudged.append(mine.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True))
+    out: dict[str, float | None] = {}
+    for k in ("touch", "step", "mesh"):
+        ours, theirs = mine.checks[k], watch.checks[k]
+        ratio = mine.ratio(k)
+        same_place = (ours.worst is not None and theirs.worst is not None and ours.zone == theirs.zone
+                      and math.hypot(ours.worst.x - theirs.worst.x, ours.worst.y - theirs.worst.y) <= 1e-6)
+        s = np.array(sens[k], float)
+        s_limit = np.array([_log_difference(base_limits[f"{k}_limit"], n[f"{k}_limit"]) for n in nudged])
+        sr = s - s_limit
+        if not same_place or ratio is None or not np.all(np.isfinite(sr)):
+            out[k] = None
+            continue
+        slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
+        q = math.log(ratio)
+        out[k] = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
+    return out
+
+
+def scope_of(result: StudyResult) -> str:
+    """Which condition a propagation describes (the case as written) and what the other scenarios take from it, in
+    words; "" without scenarios. A scenario with the same solve only scales the voltages or moves the limits, so it
+    has the same relative σ but its own probability (not computed); one with another soil is not propagated."""
+    if not result.scenarios:
+        return ""
+    base, others = result.scenarios[0], result.scenarios[1:]
+
+    scaled = [r.scenario for r in others if _same_solve(r, base)]
+    other = [r.scenario for r in others if not _same_solve(r, base)]
+    words = [f"for the case as written ('{base.scenario}'): its worst voltages, at its own worst places, and its limits"]
+    if scaled:
+        words.append("scenarios with the same solve (" + ", ".join(f"'{n}'" for n in scaled) + ") have the same "
+                     "relative σ of Rg, GPR and the voltages; their own probabilities (their limits or fault current "
+                     "differ) are given where their worst point is the same place")
+    if other:
+        words.append("scenarios with another soil (" + ", ".join(f"'{n}'" for n in other) + ") are not propagated: "
+                     "their uncertainty is not known here")
+    return "; ".join(words)
 
 
 def sensitivity_level(case: Case, segments: int) -> int:

@@ -19,7 +19,14 @@ from ...study.validation import validation_checks
 from ...version import __version__
 from ..figures import png_bytes
 from ..plan_vector import plan_drawing
-from ..summary_text import UNCERTAINTY_LABELS, covering_text, soil_text, solver_text
+from ..summary_text import (
+    UNCERTAINTY_LABELS,
+    covering_text,
+    shared_probability_lines,
+    soil_text,
+    solver_text,
+    uncertain_passes,
+)
 from .common import caution_box, plus_minus, table, verdict_word, volts
 from .method import method_paragraphs
 from .tables import (
@@ -269,9 +276,15 @@ def results(ctx: Context) -> list:
         story += [P("Soil uncertainty carried to the verdict", "h2"),
                   P(f"Parameter uncertainty from {u.source}: " + ", ".join(
                       f"{n} ± {math.expm1(sg) * 100:.0f} %" for n, sg in zip(u.parameters, u.sigma_log)) + ". "
+                    + (f"Scope: {u.scope}. " if u.scope else "") +
                     f"Model: {u.model}; {u.level}. It cost {u.extra_solves} extra solves. This covers the soil parameters "
                     "only; fault data, the discretisation and the choice of soil model add to it.", "small"),
-                  table(rows, [45 * mm, 35 * mm, 35 * mm, 40 * mm], st), image("uncertainty", 150 * mm)]
+                  table(rows, [45 * mm, 35 * mm, 35 * mm, 40 * mm], st)]
+        story += [P("P(limit exceeded), " + line + ".", "small") for line in shared_probability_lines(u)]
+        story += [P(f"MARGINAL ({name}{where}): it passes as computed, but with the soil uncertainty given the "
+                    f"probability that the limit is exceeded is {p * 100:.2f} %.", "small")
+                  for where, name, p in uncertain_passes(r)]
+        story += [image("uncertainty", 150 * mm)]
     cc = r.conductor
     el = c.electrodes
     story += [P("3.3  Conductor sizing", "h2"),
