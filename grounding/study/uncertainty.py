@@ -142,13 +142,7 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None, cache=None,
             cache.put_sensitivities(key, sens)
     else:
         level += "; kept from an earlier run"
-    # the limits move with the top soil (Cs, EN 50522's standing resistance): differenced directly, no solve
-    base_limits = watch.values(case, limits_only=True)
-    nudged_limits = []                                    # the limits with each parameter nudged (no solve)
-    for j in range(len(x0)):
-        x = x0.copy()
-        x[j] += LOG_STEP
-        nudged_limits.append(watch.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True))
+    limit_sens = _limit_sensitivities(watch, case, x0)
     out = {}
     for k in QUANTITIES:
         s = np.array(sens[k], float)
@@ -157,15 +151,8 @@ def propagate_soil_uncertainty(result: StudyResult, progress=None, cache=None,
             out[k] = QuantityUncertainty(value, None, None, None, tuple(s.tolist()))
             continue
         sl = float(math.sqrt(max(s @ cov @ s, 0.0)))
-        prob = None
         ratio = watch.ratio(k) if k in ("touch", "step", "mesh") else None
-        if ratio is not None:
-            s_limit = [_log_difference(base_limits[f"{k}_limit"], n[f"{k}_limit"]) for n in nudged_limits]
-            sr = s - np.array(s_limit)
-            if np.all(np.isfinite(sr)):
-                slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
-                q = math.log(ratio)
-                prob = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
+        prob = None if ratio is None else _exceedance(ratio, s - limit_sens[k], cov)
         out[k] = QuantityUncertainty(value, value * math.expm1(sl), sl, prob, tuple(s.tolist()))
     shared = tuple((r.scenario, _shared_probabilities(r, watch, sens, cov, x0))
                    for r in result.scenarios[1:] if _same_solve(r, base_result))
@@ -187,39 +174,49 @@ def _shared_probabilities(r: StudyResult, watch: "_Watch", sens: dict, cov: np.n
     its limits (another covering, weight or time) are differenced with the nudged soils as the case's are. None where
     its worst point is elsewhere (the sensitivities there were not taken) or it has none."""
     mine = _Watch(r)
-    case = _plain(r.case)
-    base_limits = mine.values(case, limits_only=True)
-    nudged = []
-    for j in range(len(x0)):
-        x = x0.copy()
-        x[j] += LOG_STEP
-        nudged.append(mine.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True))
+    limit_sens = _limit_sensitivities(mine, _plain(r.case), x0)
     out: dict[str, float | None] = {}
     for k in ("touch", "step", "mesh"):
         ours, theirs = mine.checks[k], watch.checks[k]
         ratio = mine.ratio(k)
         same_place = (ours.worst is not None and theirs.worst is not None and ours.zone == theirs.zone
                       and math.hypot(ours.worst.x - theirs.worst.x, ours.worst.y - theirs.worst.y) <= 1e-6)
-        s = np.array(sens[k], float)
-        s_limit = np.array([_log_difference(base_limits[f"{k}_limit"], n[f"{k}_limit"]) for n in nudged])
-        sr = s - s_limit
-        if not same_place or ratio is None or not np.all(np.isfinite(sr)):
-            out[k] = None
-            continue
-        slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
-        q = math.log(ratio)
-        out[k] = float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
+        out[k] = (_exceedance(ratio, np.array(sens[k], float) - limit_sens[k], cov)
+                  if same_place and ratio is not None else None)
     return out
+
+
+def _limit_sensitivities(watch: "_Watch", case: Case, x0: np.ndarray) -> dict[str, np.ndarray]:
+    """∂ log limit / ∂ log p_j of the watched checks' zones, per criterion: the limits move with the top soil (Cs,
+    EN 50522's standing resistance), differenced directly with each parameter nudged (no solve)."""
+    base = watch.values(case, limits_only=True)
+    nudged = []
+    for j in range(len(x0)):
+        x = x0.copy()
+        x[j] += LOG_STEP
+        nudged.append(watch.values(replace(case, soil=soil_from_parameters(case.soil, x)), limits_only=True))
+    return {k: np.array([_log_difference(base[f"{k}_limit"], n[f"{k}_limit"]) for n in nudged])
+            for k in ("touch", "step", "mesh")}
+
+
+def _exceedance(ratio: float, sr: np.ndarray, cov: np.ndarray) -> float | None:
+    """P(limit exceeded) = Φ(log(worst/limit) / σ) with σ² = srᵀ C sr, sr the sensitivities of log(worst/limit);
+    None where a sensitivity is not finite."""
+    if not np.all(np.isfinite(sr)):
+        return None
+    slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
+    q = math.log(ratio)
+    return float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
 
 
 def scope_of(result: StudyResult) -> str:
     """Which condition a propagation describes (the case as written) and what the other scenarios take from it, in
     words; "" without scenarios. A scenario with the same solve only scales the voltages or moves the limits, so it
-    has the same relative σ but its own probability (not computed); one with another soil is not propagated."""
+    has the same relative σ but its own probability (see ``_shared_probabilities``); one with another soil is not
+    propagated."""
     if not result.scenarios:
         return ""
     base, others = result.scenarios[0], result.scenarios[1:]
-
     scaled = [r.scenario for r in others if _same_solve(r, base)]
     other = [r.scenario for r in others if not _same_solve(r, base)]
     words = [f"for the case as written ('{base.scenario}'): its worst voltages, at its own worst places, and its limits"]
