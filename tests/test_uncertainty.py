@@ -352,6 +352,7 @@ def test_a_scenario_with_the_same_solve_gets_its_own_probability_and_warning():
     same sensitivities, its own thinner margin) and equals the propagation of that scenario studied on its own; it
     passes narrowly, so the summary warns about it even though the case as written is far from its limit (before,
     only the case as written's probability was looked at and this thin pass went unremarked)."""
+    from grounding.outputs.results_json import results_dict
     from grounding.outputs.summary_text import study_summary, uncertain_passes
 
     probe = run_study(parse_case(MC_CASE), estimate_error=False, uncertainty=False)
@@ -370,5 +371,7 @@ def test_a_scenario_with_the_same_solve_gets_its_own_probability_and_warning():
     assert shared["touch"] is not None and 0.3 < shared["touch"] < 0.6          # Φ(log 0.97 / σ), σ ≈ 0.1
     assert u.quantities["touch"].probability_exceeds_limit < 0.05               # the case as written: wide margin
     assert r.scenarios[1].touch_check.ok
-    assert any("scenario 'thin'" in w and name == "touch" for w, name, _ in uncertain_passes(r))
+    assert any(scenario == "thin" and name == "touch" for scenario, name, _ in uncertain_passes(r))
     assert "MARGINAL (touch, scenario 'thin')" in " ".join(study_summary(r).split())
+    marginal = results_dict(r)["uncertainty"]["marginal"]
+    assert {"criterion": "touch", "scenario": "thin"}.items() <= next(m for m in marginal if m["criterion"] == "touch").items()

@@ -10,6 +10,7 @@ import math
 from ..study.result import StudyResult
 from ..surface.results import SAFETY_FACTOR
 from ..version import __version__
+from .summary_text import uncertain_passes
 
 RESULTS_FORMAT = 1
 
@@ -144,6 +145,10 @@ def _uncertainty(r: StudyResult) -> dict | None:
     out["scenarios_same_solve"] = [{"scenario": name, **{f"{k}_probability_exceeds_limit": _num(v)
                                                           for k, v in probs.items()}}
                                    for name, probs in u.scenario_probabilities]
+    # checks that pass as computed but whose limit the soil uncertainty exceeds with P above UNLIKELY (the terminal's
+    # and the report's MARGINAL warnings)
+    out["marginal"] = [{"criterion": name, "scenario": scenario or None, "probability_exceeds_limit": _num(p)}
+                       for scenario, name, p in uncertain_passes(r)]
     return out
 
 

@@ -194,8 +194,8 @@ def safety_lines(r: StudyResult) -> list[str]:
         out.extend(_alert(f"The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat "
                           "the verdict as marginal (soil data, fault data and discretisation are all less certain "
                           "than that)."))
-    for where, name, p in uncertain_passes(r):
-        out.extend(_alert(f"MARGINAL ({name}{where}): it passes as computed, but with the soil uncertainty given "
+    for scenario, name, p in uncertain_passes(r):
+        out.extend(_alert(f"MARGINAL ({name}{where_scenario(scenario)}): it passes as computed, but with the soil uncertainty given "
                           f"the probability that the limit is exceeded is {_probability(p)}."))
     inside = [(name, check) for name, check in (("touch", r.touch_check), ("step", r.step_check),
                                                 ("mesh", r.mesh_check)) if check.limit_within_error]
@@ -288,7 +288,7 @@ def uncertainty_lines(r: StudyResult) -> list[str]:
 
 
 def uncertain_passes(r: StudyResult) -> list[tuple[str, str, float]]:
-    """(where, criterion, P) of every check that passes as computed but whose limit the soil uncertainty exceeds with
+    """(scenario, criterion, P) of every check that passes as computed but whose limit the soil uncertainty exceeds with
     a probability above UNLIKELY: the case as written and each scenario with its solve, each judged on its own check
     (a scenario with a thinner margin than the case's has the higher probability)."""
     u = r.uncertainty
@@ -300,12 +300,16 @@ def uncertain_passes(r: StudyResult) -> list[tuple[str, str, float]]:
     conditions += [(by_name[name], probs) for name, probs in u.scenario_probabilities if name in by_name]
     out = []
     for cond, probs in conditions:
-        where = f", scenario '{cond.scenario}'" if cond.scenario else ""
         for name, check in (("touch", cond.touch_check), ("step", cond.step_check), ("mesh", cond.mesh_check)):
             p = probs.get(name)
             if check.ok and p is not None and p > UNLIKELY:
-                out.append((where, name, p))
+                out.append((cond.scenario, name, p))
     return out
+
+
+def where_scenario(scenario: str) -> str:
+    """", scenario 'name'" for a named scenario, "" for the case without scenarios."""
+    return f", scenario '{scenario}'" if scenario else ""
 
 
 def shared_probability_lines(u) -> list[str]:
