@@ -353,7 +353,8 @@ def test_a_scenario_with_the_same_solve_gets_its_own_probability_and_warning():
     passes narrowly, so the summary warns about it even though the case as written is far from its limit (before,
     only the case as written's probability was looked at and this thin pass went unremarked)."""
     from grounding.outputs.results_json import results_dict
-    from grounding.outputs.summary_text import study_summary, uncertain_passes
+    from grounding.outputs.summary_text import study_summary
+    from grounding.study.uncertainty import uncertain_passes
 
     probe = run_study(parse_case(MC_CASE), estimate_error=False, uncertainty=False)
     per_amp = probe.touch_check.worst.value / probe.touch_check.limit / 90.0

@@ -8,9 +8,9 @@ import json
 import math
 
 from ..study.result import StudyResult
+from ..study.uncertainty import uncertain_passes
 from ..surface.results import SAFETY_FACTOR
 from ..version import __version__
-from .summary_text import uncertain_passes
 
 RESULTS_FORMAT = 1
 

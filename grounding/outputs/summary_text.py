@@ -9,6 +9,7 @@ import textwrap
 from ..cautions import CAUTIONS
 from ..safety.site import STANDARD_NAMES
 from ..study.result import StudyResult
+from ..study.uncertainty import uncertain_passes
 from ..version import __version__
 from .style import volts
 
@@ -71,8 +72,6 @@ def soil_text(case) -> str:
     return f"{len(layers)} layers: " + ", ".join(parts) + f", then {layers[-1].resistivity:.4g} Ω·m"
 
 
-#: A passing criterion whose probability of exceeding its limit is above this is flagged marginal.
-UNLIKELY = 0.05
 #: A no-break space: keeps a value and its unit on one line when a line is wrapped.
 NBSP = "\u00a0"
 
@@ -284,26 +283,6 @@ def uncertainty_lines(r: StudyResult) -> list[str]:
     out.extend(textwrap.wrap(f"Model: {u.model}; {u.level}. Cost: {u.extra_solves} extra solves ({u.seconds:.1f} s). "
                              "Soil data only: fault data, discretisation and the choice of soil model add to this.",
                              WIDTH - 4, initial_indent="  ", subsequent_indent="  "))
-    return out
-
-
-def uncertain_passes(r: StudyResult) -> list[tuple[str, str, float]]:
-    """(scenario, criterion, P) of every check that passes as computed but whose limit the soil uncertainty exceeds with
-    a probability above UNLIKELY: the case as written and each scenario with its solve, each judged on its own check
-    (a scenario with a thinner margin than the case's has the higher probability)."""
-    u = r.uncertainty
-    if u is None:
-        return []
-    base = r.scenarios[0] if r.scenarios else r
-    by_name = {s.scenario: s for s in r.scenarios}
-    conditions = [(base, {k: u.quantities[k].probability_exceeds_limit for k in ("touch", "step", "mesh")})]
-    conditions += [(by_name[name], probs) for name, probs in u.scenario_probabilities if name in by_name]
-    out = []
-    for cond, probs in conditions:
-        for name, check in (("touch", cond.touch_check), ("step", cond.step_check), ("mesh", cond.mesh_check)):
-            p = probs.get(name)
-            if check.ok and p is not None and p > UNLIKELY:
-                out.append((cond.scenario, name, p))
     return out
 
 

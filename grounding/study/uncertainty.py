@@ -45,6 +45,8 @@ from .result import QuantityUncertainty, SoilUncertaintyResult, StudyResult
 
 #: Step of the forward differences in log-parameter space (≈ 3 %).
 LOG_STEP = 0.03
+#: A passing criterion whose probability of exceeding its limit is above this is flagged marginal.
+UNLIKELY = 0.05
 #: Above this many segments the sensitivities are taken at a coarser level (a base solve and one per parameter
 #: there): a sensitivity S = ∂ log y / ∂ log p is a ratio of changes and moves with the discretisation far less
 #: than y itself. Smaller models are cheap enough at their own level.
@@ -207,6 +209,26 @@ def _exceedance(ratio: float, sr: np.ndarray, cov: np.ndarray) -> float | None:
     slr = float(math.sqrt(max(sr @ cov @ sr, 0.0)))
     q = math.log(ratio)
     return float(norm.cdf(q / slr)) if slr > 0 else float(q > 0)
+
+
+def uncertain_passes(r: StudyResult) -> list[tuple[str, str, float]]:
+    """(scenario, criterion, P) of every check that passes as computed but whose limit the soil uncertainty exceeds with
+    a probability above UNLIKELY: the case as written and each scenario with its solve, each judged on its own check
+    (a scenario with a thinner margin than the case's has the higher probability)."""
+    u = r.uncertainty
+    if u is None:
+        return []
+    base = r.scenarios[0] if r.scenarios else r
+    by_name = {s.scenario: s for s in r.scenarios}
+    conditions = [(base, {k: u.quantities[k].probability_exceeds_limit for k in ("touch", "step", "mesh")})]
+    conditions += [(by_name[name], probs) for name, probs in u.scenario_probabilities if name in by_name]
+    out = []
+    for cond, probs in conditions:
+        for name, check in (("touch", cond.touch_check), ("step", cond.step_check), ("mesh", cond.mesh_check)):
+            p = probs.get(name)
+            if check.ok and p is not None and p > UNLIKELY:
+                out.append((cond.scenario, name, p))
+    return out
 
 
 def scope_of(result: StudyResult) -> str:

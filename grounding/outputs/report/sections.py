@@ -15,6 +15,7 @@ from reportlab.lib.units import mm
 from reportlab.platypus import Image, KeepTogether, PageBreak, Paragraph, Spacer
 
 from ...study.result import StudyResult
+from ...study.uncertainty import uncertain_passes
 from ...study.validation import validation_checks
 from ...version import __version__
 from ..figures import png_bytes
@@ -25,7 +26,6 @@ from ..summary_text import (
     shared_probability_lines,
     soil_text,
     solver_text,
-    uncertain_passes,
     where_scenario,
 )
 from .common import caution_box, plus_minus, table, verdict_word, volts
