@@ -375,4 +375,5 @@ def test_a_scenario_with_the_same_solve_gets_its_own_probability_and_warning():
     assert any(scenario == "thin" and name == "touch" for scenario, name, _ in uncertain_passes(r))
     assert "MARGINAL (touch, scenario 'thin')" in " ".join(study_summary(r).split())
     marginal = results_dict(r)["uncertainty"]["marginal"]
-    assert {"criterion": "touch", "scenario": "thin"}.items() <= next(m for m in marginal if m["criterion"] == "touch").items()
+    touch = next(m for m in marginal if m["criterion"] == "touch")
+    assert {"criterion": "touch", "scenario": "thin"}.items() <= touch.items()

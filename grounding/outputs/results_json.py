@@ -133,7 +133,8 @@ def _uncertainty(r: StudyResult) -> dict | None:
         return None
     keys = {"grid_resistance": "grid_resistance_ohm", "ground_potential_rise": "ground_potential_rise_v",
             "touch": "max_touch_voltage_v", "step": "max_step_voltage_v", "mesh": "max_mesh_voltage_v"}
-    out = {"source": u.source, "scope": u.scope or None, "model": u.model, "level": u.level, "extra_solves": u.extra_solves, "seconds": _num(u.seconds, 3),
+    out = {"source": u.source, "scope": u.scope or None, "model": u.model, "level": u.level,
+           "extra_solves": u.extra_solves, "seconds": _num(u.seconds, 3),
            "parameters": [{"name": n, "sigma_log": _num(s)} for n, s in zip(u.parameters, u.sigma_log)]}
     for k, name in keys.items():
         q = u.quantities[k]

@@ -194,8 +194,7 @@ def safety_lines(r: StudyResult) -> list[str]:
                           "the verdict as marginal (soil data, fault data and discretisation are all less certain "
                           "than that)."))
     for scenario, name, p in uncertain_passes(r):
-        out.extend(_alert(f"MARGINAL ({name}{where_scenario(scenario)}): it passes as computed, but with the soil uncertainty given "
-                          f"the probability that the limit is exceeded is {_probability(p)}."))
+        out.extend(_alert(uncertain_pass_text(scenario, name, _probability(p))))
     inside = [(name, check) for name, check in (("touch", r.touch_check), ("step", r.step_check),
                                                 ("mesh", r.mesh_check)) if check.limit_within_error]
     for name, check in inside:
@@ -286,9 +285,12 @@ def uncertainty_lines(r: StudyResult) -> list[str]:
     return out
 
 
-def where_scenario(scenario: str) -> str:
-    """", scenario 'name'" for a named scenario, "" for the case without scenarios."""
-    return f", scenario '{scenario}'" if scenario else ""
+def uncertain_pass_text(scenario: str, criterion: str, probability: str) -> str:
+    """The warning for a check that passes as computed but that the soil uncertainty may fail (``probability`` in
+    words, e.g. "12.3 %"); ``scenario`` "" for the case without scenarios."""
+    where = f", scenario '{scenario}'" if scenario else ""
+    return (f"MARGINAL ({criterion}{where}): it passes as computed, but with the soil uncertainty given the "
+            f"probability that the limit is exceeded is {probability}.")
 
 
 def shared_probability_lines(u) -> list[str]:

@@ -241,7 +241,8 @@ def scope_of(result: StudyResult) -> str:
     base, others = result.scenarios[0], result.scenarios[1:]
     scaled = [r.scenario for r in others if _same_solve(r, base)]
     other = [r.scenario for r in others if not _same_solve(r, base)]
-    words = [f"for the case as written ('{base.scenario}'): its worst voltages, at its own worst places, and its limits"]
+    words = [f"for the case as written ('{base.scenario}'): its worst voltages, at its own worst places, "
+             "and its limits"]
     if scaled:
         words.append("scenarios with the same solve (" + ", ".join(f"'{n}'" for n in scaled) + ") have the same "
                      "relative σ of Rg, GPR and the voltages; their own probabilities (their limits or fault current "

@@ -26,7 +26,7 @@ from ..summary_text import (
     shared_probability_lines,
     soil_text,
     solver_text,
-    where_scenario,
+    uncertain_pass_text,
 )
 from .common import caution_box, plus_minus, table, verdict_word, volts
 from .method import method_paragraphs
@@ -282,8 +282,7 @@ def results(ctx: Context) -> list:
                     "only; fault data, the discretisation and the choice of soil model add to it.", "small"),
                   table(rows, [45 * mm, 35 * mm, 35 * mm, 40 * mm], st)]
         story += [P("P(limit exceeded), " + line + ".", "small") for line in shared_probability_lines(u)]
-        story += [P(f"MARGINAL ({name}{where_scenario(scenario)}): it passes as computed, but with the soil uncertainty "
-                    f"given the probability that the limit is exceeded is {p * 100:.2f} %.", "small")
+        story += [P(uncertain_pass_text(scenario, name, f"{p * 100:.2f} %"), "small")
                   for scenario, name, p in uncertain_passes(r)]
         story += [image("uncertainty", 150 * mm)]
     cc = r.conductor
