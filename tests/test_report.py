@@ -191,3 +191,11 @@ def test_method_section_names_the_coupled_solve_and_the_iterative_solve():
                                                      estimate_error=False)))
     assert "conjugate gradients" in iterative and "iterations" in iterative and "image series" in iterative
     assert "Cholesky" not in iterative
+
+
+def test_probabilities_near_certainty_are_printed_as_bounds():
+    """A first-order log-normal probability of 0.999999 is not certainty: every output prints it as a bound."""
+    from grounding.outputs.summary_text import probability_text
+    assert probability_text(1 - 1e-9) == "> 99.99 %"
+    assert probability_text(1e-9) == "< 0.01 %"
+    assert probability_text(0.1234) == "12.3 %"

@@ -14,6 +14,7 @@ from matplotlib.figure import Figure
 
 from ..study.result import StudyResult
 from .style import new_figure
+from .summary_text import probability_text
 
 #: Figure size for a report page column, inches.
 FIGSIZE = (7.0, 5.2)
@@ -316,7 +317,7 @@ def uncertainty_figure(r: StudyResult) -> Rendered | None:
     ax.plot(v, dist.pdf(v), color="#1f3b73", lw=1.5, label="worst touch voltage (soil uncertainty)")
     above = v >= limit
     ax.fill_between(v[above], dist.pdf(v[above]), color="#d7301f", alpha=0.35, hatch="////", lw=0,
-                    label=f"beyond the limit: P = {q.probability_exceeds_limit * 100:.1f} %")
+                    label=f"beyond the limit: P {_p_label(q.probability_exceeds_limit)}")
     ax.axvline(limit, color="#d7301f", lw=1.6, ls=(0, (5, 1.5)), label=f"tolerable {limit:,.0f} V")
     ax.axvline(q.value, color="black", lw=0.8, ls=":", label=f"computed {q.value:,.0f} V")
     ax.set_xlabel("worst touch voltage (V)")
@@ -437,3 +438,9 @@ def png_bytes(fig: Figure) -> bytes:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None})
     return buf.getvalue()
+
+
+def _p_label(p: float) -> str:
+    """'= 12.3 %' or '> 99.99 %' (a bound is not written as an equality)."""
+    text = probability_text(p)
+    return text if text[0] in "<>" else "= " + text

@@ -194,7 +194,7 @@ def safety_lines(r: StudyResult) -> list[str]:
                           "the verdict as marginal (soil data, fault data and discretisation are all less certain "
                           "than that)."))
     for scenario, name, p in uncertain_passes(r):
-        out.extend(_alert(uncertain_pass_text(scenario, name, _probability(p))))
+        out.extend(_alert(uncertain_pass_text(scenario, name, probability_text(p))))
     inside = [(name, check) for name, check in (("touch", r.touch_check), ("step", r.step_check),
                                                 ("mesh", r.mesh_check)) if check.limit_within_error]
     for name, check in inside:
@@ -274,7 +274,7 @@ def uncertainty_lines(r: StudyResult) -> list[str]:
         if q.value is None or q.sigma is None:
             continue
         fmt = (lambda v: f"{v:.3f} Ω") if key == "grid_resistance" else _volts
-        prob = "" if q.probability_exceeds_limit is None else _probability(q.probability_exceeds_limit)
+        prob = "" if q.probability_exceeds_limit is None else probability_text(q.probability_exceeds_limit)
         out.append(f"  {label:<22}{fmt(q.value):>10}{fmt(q.sigma):>10}{prob:>20}")
     for line in shared_probability_lines(u):
         out.extend(textwrap.wrap(f"P(limit exceeded), {line}", WIDTH - 4, initial_indent="  ",
@@ -296,12 +296,14 @@ def uncertain_pass_text(scenario: str, criterion: str, probability: str) -> str:
 def shared_probability_lines(u) -> list[str]:
     """P(limit exceeded) of the scenarios with the as-written case's solve, a line each, in words."""
     return [f"'{name}' (same solve): " + ", ".join(
-        f"{k} {'not computed (worst point elsewhere)' if p is None else _probability(p).replace(' %', NBSP + '%')}"
+        f"{k} {'not computed (worst point elsewhere)' if p is None else probability_text(p).replace(' %', NBSP + '%')}"
         for k, p in probs.items())
         for name, probs in u.scenario_probabilities]
 
 
-def _probability(p: float) -> str:
+def probability_text(p: float) -> str:
+    """A probability as engineers read it (%): below 0.01 % and above 99.99 % as bounds, never as 0 or 100 %
+    (a first-order log-normal estimate does not make an outcome certain)."""
     if p < 1e-4:
         return "< 0.01 %"
     if p > 1 - 1e-4:

@@ -23,6 +23,7 @@ from ..plan_vector import plan_drawing
 from ..summary_text import (
     UNCERTAINTY_LABELS,
     covering_text,
+    probability_text,
     shared_probability_lines,
     soil_text,
     solver_text,
@@ -273,7 +274,7 @@ def results(ctx: Context) -> list:
                 continue
             unit = (lambda v: f"{v:.4f} Ω") if key == "grid_resistance" else volts
             rows.append([label, unit(q.value), unit(q.sigma),
-                         "" if q.probability_exceeds_limit is None else f"{q.probability_exceeds_limit * 100:.2f} %"])
+                         "" if q.probability_exceeds_limit is None else probability_text(q.probability_exceeds_limit)])
         story += [P("Soil uncertainty carried to the verdict", "h2"),
                   P(f"Parameter uncertainty from {u.source}: " + ", ".join(
                       f"{n} ± {math.expm1(sg) * 100:.0f} %" for n, sg in zip(u.parameters, u.sigma_log)) + ". "
@@ -282,7 +283,7 @@ def results(ctx: Context) -> list:
                     "only; fault data, the discretisation and the choice of soil model add to it.", "small"),
                   table(rows, [45 * mm, 35 * mm, 35 * mm, 40 * mm], st)]
         story += [P("P(limit exceeded), " + line + ".", "small") for line in shared_probability_lines(u)]
-        story += [P(uncertain_pass_text(scenario, name, f"{p * 100:.2f} %"), "small")
+        story += [P(uncertain_pass_text(scenario, name, probability_text(p)), "small")
                   for scenario, name, p in uncertain_passes(r)]
         story += [image("uncertainty", 150 * mm)]
     cc = r.conductor
