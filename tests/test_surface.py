@@ -161,30 +161,3 @@ def test_touch_area_shortcut_equals_buffering_every_conductor(make_case):
     full_meshes, band = metal_footprint(segments, main, case.surface.touch_reach)   # every conductor buffered
     reference = unary_union([meshes, band])
     assert area.symmetric_difference(reference).area < 1e-6 * reference.area
-
-
-STEP_EDGE_CASE = """\
-format: 1
-title: step beyond the edge
-soil: {resistivity: 100}
-surface_layer: {resistivity: 3000, thickness: 0.1}
-fault: {current: 3000, split_factor: 0.6, x_over_r: 10, clearing_time: 0.5}
-electrodes:
-  grids: [{origin: [0, 0], size: [20, 20], meshes: [4, 4], depth: 0.5, diameter: 0.0124}]
-surface: {margin: %s, resolution: 0.5}
-"""
-
-
-def test_a_map_ending_at_the_electrodes_understates_the_step_and_says_so():
-    """The largest step voltage lies just outside the perimeter conductor (IEEE Std 80-2013 §16.5.2 takes it at the
-    grid depth outside the perimeter; clause recalled from memory): a map with no margin misses it, and the case,
-    the JSON warnings and the summary beside a step PASS say so; a map a step wider finds it."""
-    from grounding.outputs.summary_text import study_summary
-    narrow = run_study(parse_case(STEP_EDGE_CASE % 0), estimate_error=False, uncertainty=False)
-    wide = run_study(parse_case(STEP_EDGE_CASE % 3), estimate_error=False, uncertainty=False)
-    assert narrow.step_check.worst.value < 0.5 * wide.step_check.worst.value      # 270 V against 704 V
-    assert narrow.step_check.ok                                                     # a PASS on a map too small
-    assert any("shorter than one step" in w for w in narrow.warnings)
-    assert "The step PASS covers the map only" in study_summary(narrow)
-    assert not any("shorter than one step" in w for w in wide.warnings)
-    assert "The step PASS covers the map only" not in study_summary(wide)

@@ -167,12 +167,6 @@ class CaseReader(ElectrodeSections, SiteSections, DrawingSections):
             notes.insert(0, f"the surface layer ({surface_layer.resistivity:g} Ω·m, {surface_layer.thickness * 1000:.0f} "
                             "mm) is assumed to cover the whole map, also outside the fence; where people stand on "
                             "native soil the limits are lower: describe the site with surface_zones")
-        if surface.margin < surface.step_distance:
-            notes.append(f"surface.margin ({surface.margin:g} m) is shorter than one step (surface.step_distance, "
-                         f"{surface.step_distance:g} m): the largest step voltages usually lie just beyond the "
-                         "electrodes' outer edge, outside this map, so the step voltage is judged on the map only and "
-                         f"may be understated; widen surface.margin to at least {surface.step_distance:g} m (the default "
-                         "is 3 m)")
         if "sweep" in top:
             sweep_settings(self.doc)                      # validated here; expanded by load_variants
             notes.append("the sweep block is not used by a single study (the case is studied as written); "

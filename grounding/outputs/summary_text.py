@@ -193,8 +193,6 @@ def safety_lines(r: StudyResult) -> list[str]:
         out.extend(_alert(f"The {' and '.join(thin)} margin is within {MARGINAL * 100:.0f} % of the limit: treat "
                           "the verdict as marginal (soil data, fault data and discretisation are all less certain "
                           "than that)."))
-    if step_map_text(r):
-        out.extend(_alert(step_map_text(r)))
     for scenario, name, p in uncertain_passes(r):
         out.extend(_alert(uncertain_pass_text(scenario, name, probability_text(p))))
     inside = [(name, check) for name, check in (("touch", r.touch_check), ("step", r.step_check),
@@ -301,15 +299,6 @@ def shared_probability_lines(u) -> list[str]:
         f"{k} {'not computed (worst point elsewhere)' if p is None else probability_text(p).replace(' %', NBSP + '%')}"
         for k, p in probs.items())
         for name, probs in u.scenario_probabilities]
-
-
-def step_map_text(r: StudyResult) -> str:
-    """The caution on a step PASS judged on a map that ends less than one step beyond the electrodes ('' if none)."""
-    if not (r.step_check.ok and r.case.surface.margin < r.case.surface.step_distance):
-        return ""
-    return (f"The step PASS covers the map only: it reaches {r.case.surface.margin:g} m beyond the electrodes, less "
-            "than one step, and the largest step voltages usually lie just outside the outer edge; widen "
-            "surface.margin before relying on it.")
 
 
 def probability_text(p: float) -> str:

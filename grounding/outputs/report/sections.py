@@ -27,7 +27,6 @@ from ..summary_text import (
     shared_probability_lines,
     soil_text,
     solver_text,
-    step_map_text,
     uncertain_pass_text,
 )
 from .common import caution_box, plus_minus, table, verdict_word, volts
@@ -88,8 +87,6 @@ def cover(ctx: Context) -> list:
         story.append(P("Failing: " + escape("; ".join(r.failures()) or "see the table") + ".", "body"))
     story += [table(verdict_rows(r, st), [30 * mm, 32 * mm, 32 * mm, 18 * mm, 17 * mm, 41 * mm], st, verdict_col=4),
               Spacer(1, 4 * mm)]
-    if step_map_text(r):
-        story.append(P(step_map_text(r), "body"))
     story.append(P(f"Grid resistance Rg = <b>{r.grid_resistance:.4f} Ω</b>; grid current IG = "
                    f"<b>{r.grid_current / 1000:.3f} kA</b>; ground potential rise GPR = <b>{volts(r.ground_potential_rise)}</b>."))
     story += [Spacer(1, 6 * mm), caution_box(st), PageBreak()]
