@@ -161,3 +161,34 @@ def test_touch_area_shortcut_equals_buffering_every_conductor(make_case):
     full_meshes, band = metal_footprint(segments, main, case.surface.touch_reach)   # every conductor buffered
     reference = unary_union([meshes, band])
     assert area.symmetric_difference(reference).area < 1e-6 * reference.area
+
+
+STEP_EDGE_CASE = """\
+format: 1
+title: step beyond the edge
+soil: {resistivity: 100}
+surface_layer: {resistivity: 3000, thickness: 0.1}
+fault: {current: 3000, split_factor: 0.6, x_over_r: 10, clearing_time: 0.5}
+electrodes:
+  grids: [{origin: [0, 0], size: [20, 20], meshes: [4, 4], depth: 0.5, diameter: 0.0124}]
+surface: {margin: %s, resolution: %s}
+"""
+
+
+@pytest.mark.parametrize("margin, resolution", [(3, 0.5), (3, 1.0), (3, 4.0), (0, 0.5)])
+def test_worst_step_is_found_whatever_the_map(margin, resolution):
+    """The largest step voltage of a square grid lies just outside a corner (IEEE Std 80-2013 §16.5.2 takes the
+    step just outside the perimeter conductor; clause recalled from memory). Reference: an exhaustive search, the
+    exact step (64 directions, both ways) at every point of a 0.1 m lattice over a 2 m square at the corner (the
+    grid is symmetric, so every corner gives the same). Before the search along the rings outside the metal a
+    4 m map reported 284 V and a map ending at the grid 270 V, where 704 V occur."""
+    from grounding.operators.potential import SurfacePotential
+    from grounding.surface.steps import steps_at
+    r = run_study(parse_case(STEP_EDGE_CASE % (margin, resolution)), estimate_error=False, uncertainty=False)
+    potential = SurfacePotential(r.segments, r.segment_currents, r.kernel)
+    g = np.arange(-1.5, 0.5 + 1e-9, 0.1)
+    lattice = np.column_stack([a.ravel() for a in np.meshgrid(g, g)])
+    exhaustive = float(steps_at(potential, lattice, 1.0).max())
+    assert 650 < exhaustive < 750                                   # the case's own scale (about 704 V)
+    assert r.step_check.worst.value == pytest.approx(exhaustive, rel=2e-3)
+    assert r.step_check.worst.value <= exhaustive * (1 + 2e-3)

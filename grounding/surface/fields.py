@@ -14,7 +14,7 @@ import numpy as np
 import shapely
 
 from ..case.model import SurfaceMap
-from ..geometry.plan import map_axes, touch_region
+from ..geometry.plan import map_axes, metal_footprint, touch_region
 from ..geometry.segments import Segments
 from ..kernels.base import SoilKernel
 from ..operators.assembly import AssemblyOptions
@@ -104,7 +104,7 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     zone_touch = [worst_main(area, in_area, k) for k in range(len(zoning))]
     zone_mesh = [worst_main(meshes, in_mesh, k) if in_mesh.any() else None for k in range(len(zoning))]
     step, zone_step = step_voltages(x, y, V, surface.step_distance, potential, zoning, labels,
-                                     coarse if check_map else None)
+                                     coarse if check_map else None, step_rings(segments, surface, area, metal))
     zones = tuple(ZoneExtremes(t, st, m) for t, st, m in zip(zone_touch, zone_step, zone_mesh))
     max_touch = largest(zone_touch)
     if max_touch is None:                                  # no touch area at all: nothing to report
@@ -120,3 +120,15 @@ def surface_fields(segments: Segments, currents: np.ndarray, gpr: float, kernel:
     profile = Profile(f * np.hypot(x1 - x0, y1 - y0), px, py, np.abs(potential(np.column_stack([px, py]))))
     return SurfaceResult(x, y, np.abs(V), touch, step, area, meshes, max_touch, largest(zone_step), largest(zone_mesh),
                          probe_v, profile, zones, metal_touch, labels, probe_touch)
+
+
+def step_rings(segments: Segments, surface: SurfaceMap, area: shapely.Geometry,
+               metal: tuple[SeparateMetal, ...] = ()) -> shapely.Geometry:
+    """Lines just outside the metal where step voltages peak: the outline of the main system's touch area
+    (``area``: its meshes and everything within ``touch_reach``; with explicit ``touch_areas``, the main metal
+    within ``touch_reach`` instead) and of every separate electrode's reach, m."""
+    reach = max(surface.touch_reach, 0.5 * surface.step_distance)
+    if surface.touch_areas or surface.touch_reach < 0.5 * surface.step_distance:
+        _, area = metal_footprint(segments, segments.conductors.group == 0, reach)
+    lines = [area.boundary] + [metal_footprint(segments, m.mask, reach)[1].boundary for m in metal]
+    return shapely.union_all([g for g in lines if not g.is_empty]) if lines else shapely.LineString()
