@@ -97,7 +97,7 @@ def test_entry_of_another_version_is_not_trusted(store, monkeypatch):
     key = first.diagnostics.solve.key
     unit_parts = C.decode(store.store.get(key), key, case)
     from grounding.study.conditions import UnitStudy
-    monkeypatch.setattr(C, "__version__", "0.0.1")
+    monkeypatch.setattr(C, "TOOL_VERSION", "0.0.1")
     old = encode(key, UnitStudy(*unit_parts))                                  # the same key, written by 0.0.1
     monkeypatch.undo()
     store.store.set(key, old)
@@ -177,3 +177,17 @@ def test_command_line_reuse_no_cache_clear_and_two_writers(tmp_path):
     cleared = _cli("cache", "clear", env=env)
     assert cleared.returncode == 0 and "Removed 2 entries" in cleared.stdout
     assert "Entries  0" in _cli("cache", "info", env=env).stdout
+
+
+def test_the_version_an_entry_needs_changes_with_the_source(tmp_path):
+    """Entries are tied to the code that wrote them, not only to the version number: one changed source file
+    (e.g. a better search of the worst step) gives another tool_version, so the old results are not reused."""
+    import grounding.study.cache as C
+    pkg = tmp_path / "pkg"
+    (pkg / "surface").mkdir(parents=True)
+    (pkg / "surface" / "steps.py").write_text("STEP = 1\n")
+    before = C.tool_version(pkg)
+    assert before == C.tool_version(pkg) and before.startswith(C.__version__ + "+")
+    (pkg / "surface" / "steps.py").write_text("STEP = 2\n")
+    assert C.tool_version(pkg) != before
+    assert C.TOOL_VERSION == C.tool_version()

@@ -35,6 +35,20 @@ from .result import DiscretizationError
 
 #: Format of a stored entry (raise when the layout of the arrays or the header changes).
 FORMAT = 2
+
+
+def tool_version(root: Path = Path(__file__).resolve().parents[1]) -> str:
+    """The tool's version and a SHA-256 of its own source files (``root``: the package), e.g. '0.1.0+3f2a…': an
+    entry is trusted only by the code that wrote it, so a change of the search or the solve between releases (an
+    install from a newer commit with the same version number) never reuses results the old code computed."""
+    digest = hashlib.sha256()
+    for f in sorted(root.rglob("*.py")):
+        digest.update(f.relative_to(root).as_posix().encode() + b"\0" + f.read_bytes() + b"\0")
+    return f"{__version__}+{digest.hexdigest()[:16]}"
+
+
+#: This installation's :func:`tool_version`, written into and required of every entry.
+TOOL_VERSION = tool_version()
 #: Bound of the store's size on disk, bytes (least recently used entries leave first).
 SIZE_LIMIT = 2 ** 30
 #: First bytes of every value.
@@ -70,7 +84,7 @@ def _canonical(value):
 
 def entry_key(solve_key, estimate_error: bool, screen_drop: bool) -> str:
     """The SHA-256 (hex) that names a solve's entry."""
-    doc = {"format": FORMAT, "version": __version__, "estimate_error": bool(estimate_error),
+    doc = {"format": FORMAT, "version": TOOL_VERSION, "estimate_error": bool(estimate_error),
            "screen_drop": bool(screen_drop), "solve": _canonical(solve_key)}
     return hashlib.sha256(json.dumps(doc, sort_keys=True, allow_nan=True).encode()).hexdigest()
 
@@ -102,7 +116,7 @@ def encode(key: str, unit) -> bytes:
     if s.probe_touch is not None:
         arrays["probe_touch"] = s.probe_touch
     err, drop = unit.error, unit.drop
-    header = {"format": FORMAT, "version": __version__, "key": key, "segments": len(unit.segments),
+    header = {"format": FORMAT, "version": TOOL_VERSION, "key": key, "segments": len(unit.segments),
               "fingerprint": _fingerprint(unit.segments), "resistance": sol.resistance,
               "relative_residual": sol.relative_residual, "solver": _canonical(sol.solver),
               "max": [_extreme(s.max_touch), _extreme(s.max_step), _extreme(s.max_mesh)],
@@ -135,7 +149,7 @@ def decode(value, key: str, case: Case) -> tuple:
         header = json.loads(arrays["header"].tobytes().decode())
     except Exception as exc:                                       # a damaged archive: never trusted
         raise EntryRefused(f"it cannot be read ({type(exc).__name__})") from None
-    if header.get("format") != FORMAT or header.get("version") != __version__:
+    if header.get("format") != FORMAT or header.get("version") != TOOL_VERSION:
         raise EntryRefused(f"it was written by another version ({header.get('version')}, format {header.get('format')})")
     if header.get("key") != key:
         raise EntryRefused("its key does not match")
@@ -216,7 +230,7 @@ class SolveCache:
                 raise ValueError
             digest, payload = value[len(MAGIC):len(MAGIC) + 32], value[len(MAGIC) + 32:]
             doc = json.loads(payload.decode())
-            if hashlib.sha256(payload).digest() != digest or doc["version"] != __version__ or doc["format"] != FORMAT \
+            if hashlib.sha256(payload).digest() != digest or doc["version"] != TOOL_VERSION or doc["format"] != FORMAT \
                     or doc["key"] != key:
                 raise ValueError
             return {k: [float(x) for x in v] for k, v in doc["sensitivities"].items()}
@@ -226,7 +240,7 @@ class SolveCache:
 
     def put_sensitivities(self, key: str, sensitivities: dict) -> None:
         """Keep soil-uncertainty sensitivities (JSON with the same checksum and version check as solves)."""
-        payload = json.dumps({"format": FORMAT, "version": __version__, "key": key,
+        payload = json.dumps({"format": FORMAT, "version": TOOL_VERSION, "key": key,
                               "sensitivities": sensitivities}).encode()
         self.store.set(key, MAGIC + hashlib.sha256(payload).digest() + payload, retry=True)
 
