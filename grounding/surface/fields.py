@@ -131,4 +131,4 @@ def step_rings(segments: Segments, surface: SurfaceMap, area: shapely.Geometry,
     if surface.touch_areas or surface.touch_reach < 0.5 * surface.step_distance:
         _, area = metal_footprint(segments, segments.conductors.group == 0, reach)
     lines = [area.boundary] + [metal_footprint(segments, m.mask, reach)[1].boundary for m in metal]
-    return shapely.union_all([g for g in lines if not g.is_empty]) if lines else shapely.LineString()
+    return shapely.union_all([g for g in lines if not g.is_empty])

@@ -39,8 +39,8 @@ def step_voltages(x, y, V, step_len, potential: SurfacePotential, zoning: Zoning
 
     ``rings``: lines just outside the metal (the outlines of the touch areas), where step voltages peak (the
     steepest fall of the potential is just beyond the outer conductors, most of all at corners). They are sampled
-    one step apart, independently of the map, and the best points are refined
-    on the exact potential: a map coarser than a step cannot resolve that peak, and its spline smooths it away
+    one step apart, independently of the map, and the best points are refined on the exact potential: a map
+    coarser than a step cannot resolve that peak, and its spline smooths it away
     (a 20 m grid: 284 V found on a 4 m map against 704 V)."""
     resolution = float(x[1] - x[0]) if len(x) > 1 else 1.0
     spline = _PhasorSpline(x, y, V)
@@ -116,6 +116,14 @@ def ring_points(rings: shapely.Geometry | None, spacing: float) -> tuple[np.ndar
     return (np.unique(np.round(pts, 9), axis=0) if len(pts) else np.zeros((0, 2))), spacing
 
 
+def step_offsets(step_len: float, directions: int) -> np.ndarray:
+    """The other foot's offsets (m) in ``directions`` directions over a half circle, each both ways;
+    shape (2·directions, 2)."""
+    ang = np.pi * np.arange(directions) / directions
+    half = step_len * np.column_stack([np.cos(ang), np.sin(ang)])
+    return np.concatenate([half, -half])
+
+
 def steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None" = None, k: int = 0,
              directions: int = EXACT_STEP_DIRECTIONS) -> np.ndarray:
     """Largest potential difference (V) between each point and the points one step away, over
@@ -123,9 +131,7 @@ def steps_at(potential, xy: np.ndarray, step_len: float, zoning: "Zoning | None"
     potential, or a spline of the map for a cheap search). With ``zoning``, only steps that belong to
     zone k (the zone of the more severe foot) count (−inf where none does). ``xy`` has shape (M, 2)."""
     xy = np.atleast_2d(np.asarray(xy, float))
-    ang = np.pi * np.arange(directions) / directions
-    d = step_len * np.concatenate([np.column_stack([np.cos(ang), np.sin(ang)]),
-                                   -np.column_stack([np.cos(ang), np.sin(ang)])])
+    d = step_offsets(step_len, directions)
     ends = (xy[:, None, :] + d[None, :, :]).reshape(-1, 2)
     v = potential(np.vstack([xy, ends]))
     v0, ve = v[:len(xy)], v[len(xy):].reshape(len(xy), len(d))
@@ -158,9 +164,7 @@ def ring_screen(ring: np.ndarray, step_len: float, potential, zoning: Zoning, sm
     nz = len(zoning)
     if not len(ring):
         return np.zeros((nz, 0))
-    ang = np.pi * np.arange(RING_DIRECTIONS) / RING_DIRECTIONS
-    d = step_len * np.concatenate([np.column_stack([np.cos(ang), np.sin(ang)]),
-                                   -np.column_stack([np.cos(ang), np.sin(ang)])])
+    d = step_offsets(step_len, RING_DIRECTIONS)
     ends = (ring[:, None, :] + d[None, :, :]).reshape(-1, 2)
     pts = np.vstack([ring, ends])
     if inside is None or smooth is None:
@@ -170,10 +174,9 @@ def ring_screen(ring: np.ndarray, step_len: float, potential, zoning: Zoning, sm
         in_map = (pts[:, 0] >= x0) & (pts[:, 0] <= x1) & (pts[:, 1] >= y0) & (pts[:, 1] <= y1)
         both = in_map[:len(ring)] & in_map[len(ring):].reshape(len(ring), -1).all(axis=1)
         on_map = np.concatenate([both, np.repeat(both, len(d))])
-        v = np.zeros(len(pts), complex if np.iscomplexobj(smooth(pts[:1])) else float)
-        v[on_map] = smooth(pts[on_map])
-        if (~on_map).any():
-            v[~on_map] = potential(pts[~on_map])
+        on, off = smooth(pts[on_map]), (potential(pts[~on_map]) if (~on_map).any() else np.zeros(0))
+        v = np.empty(len(pts), np.result_type(on, off))
+        v[on_map], v[~on_map] = on, off
     dv = np.abs(v[len(ring):].reshape(len(ring), len(d)) - v[:len(ring), None])
     if nz == 1:
         return dv.max(axis=1)[None, :]
